@@ -1,0 +1,154 @@
+"""The ``tenure`` command line (DESIGN.md §6).
+
+Exit codes: 0 ok; 1 a check failed; 2 bad input or usage, with one line
+``error: <where>: <what is wrong>`` on stderr and never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import json
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+from core.errors import StudyError
+from core.estimates import Study
+from core.report import format_study
+from core.study import run_study
+
+SQLITE_MAGIC = b"SQLite format 3\x00"
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors as one ``error:`` line with exit 2."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise StudyError(self.prog, message)
+
+
+def load_studies(path: str | Path) -> list[Study]:
+    """Studies from a study JSON file or a workbook (the current year of each asset)."""
+    file = Path(path)
+    if not file.exists():
+        raise StudyError(str(file), "no such file")
+    if file.is_dir():
+        raise StudyError(str(file), "is a folder, not a study file or workbook")
+    try:
+        with file.open("rb") as fh:
+            head = fh.read(16)
+    except OSError as exc:
+        raise StudyError(str(file), f"cannot read ({exc.strerror or exc})") from None
+    if head == SQLITE_MAGIC or file.suffix.lower() == ".tenure":
+        try:
+            workbook = importlib.import_module("core.workbook")
+        except ImportError:
+            raise StudyError(str(file), "workbooks are not supported by this build") from None
+        return workbook.studies_from_workbook(file)
+    from core.studyfile import load_study_file
+
+    return load_study_file(file)
+
+
+def _select(studies: list[Study], title: str | None) -> list[Study]:
+    if title is None:
+        return studies
+    chosen = [s for s in studies if s.title == title]
+    if not chosen:
+        titles = "; ".join(s.title for s in studies)
+        raise StudyError("--study", f"no study titled '{title}' (titles: {titles})")
+    return chosen
+
+
+def cmd_study(args: argparse.Namespace) -> int:
+    studies = _select(load_studies(args.file), args.study)
+    results = [run_study(s) for s in studies]
+    if args.json:
+        json.dump({"studies": [r.to_json() for r in results]}, sys.stdout, indent=2,
+                  ensure_ascii=False, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        sys.stdout.write("\n\n".join(format_study(r) for r in results))
+        sys.stdout.write("\n")
+    return 0
+
+
+def cmd_window(args: argparse.Namespace) -> int:
+    try:
+        app = importlib.import_module("desktop_app.app")
+    except ImportError as exc:
+        raise StudyError("tenure", f"the desktop window is not available ({exc})") from None
+    return int(app.main(args.file) or 0)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="tenure",
+        description="Tenure: keep-or-replace decisions for production equipment. Without a "
+                    "command, opens the window on the last workbook, else on the bundled demo.",
+        epilog="Exit codes: 0 ok; 1 a check failed (verify); 2 bad input or usage.")
+    parser.add_argument("--open", dest="file", metavar="FILE", default=None,
+                        help="open this workbook or study file in the window")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    study = sub.add_parser(
+        "study", help="run the replacement study of a study file or workbook",
+        description="Compute every alternative's annual worth (AW) for each retention year, its "
+                    "economic service life (ESL), the recommendation with its reason, the "
+                    "replacement value and any study-period options. FILE is a study JSON "
+                    "(format tenure-study, version 1) or a .tenure workbook (one study per "
+                    "asset, its current year). AW is signed: costs are negative; EAC = -AW.")
+    study.add_argument("file", metavar="FILE", help="study JSON or .tenure workbook")
+    study.add_argument("--json", action="store_true",
+                       help="print one JSON object {\"studies\": [...]} instead of tables")
+    study.add_argument("--study", metavar="TITLE", default=None,
+                       help="only the study with this title")
+    study.set_defaults(func=cmd_study)
+    for module in ("core.memo.cli", "core.demo"):
+        try:
+            importlib.import_module(module).register(sub)
+        except ImportError:
+            pass
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    try:
+        parser = build_parser()
+        args = parser.parse_args(list(sys.argv[1:] if argv is None else argv))
+        if getattr(args, "func", None) is None:
+            return cmd_window(args)
+        return int(args.func(args) or 0)
+    except StudyError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("error: tenure: interrupted", file=sys.stderr)
+        return 2
+    except BrokenPipeError:
+        return 0
+    except Exception as exc:  # last line of defence: never a traceback to the user
+        log = _log_unexpected(exc)
+        print(f"error: tenure: unexpected internal error ({type(exc).__name__}: {exc}); "
+              f"details in {log}", file=sys.stderr)
+        return 2
+
+
+def _log_unexpected(exc: BaseException) -> str:
+    import traceback
+
+    try:
+        from platformdirs import user_log_dir
+
+        folder = Path(user_log_dir("tenure", appauthor=False))
+        folder.mkdir(parents=True, exist_ok=True)
+        log = folder / "tenure-errors.log"
+        with log.open("a", encoding="utf-8") as fh:
+            fh.write("".join(traceback.format_exception(exc)))
+        return str(log)
+    except Exception:
+        return "(no log could be written)"
+
+
+if __name__ == "__main__":
+    sys.exit(main())

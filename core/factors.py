@@ -1,0 +1,156 @@
+"""Discrete compound-interest factors, vectorised over numpy arrays.
+
+All factors use end-of-period cash flows and discrete compounding at rate
+``i`` per period (a decimal: 0.10 for 10 %).  ``i`` must be greater than -1;
+``i == 0`` returns the mathematical limit instead of dividing by zero.  Every
+argument broadcasts with numpy rules, so a whole table of factors comes from
+one call.
+
+Reference: the standard factor definitions of engineering economy (notation
+(X/Y,i,n): "find X given Y"), as used in any compound-interest table.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+FloatArray = NDArray[np.float64]
+
+_ZERO = 1e-12
+
+
+def _check_rate(i: ArrayLike) -> FloatArray:
+    rate = np.asarray(i, dtype=float)
+    if np.any(~np.isfinite(rate)):
+        raise ValueError("interest rate must be a finite number")
+    if np.any(rate <= -1.0):
+        raise ValueError("interest rate must be greater than -1 (-100 %)")
+    return rate
+
+
+def _zero_mask(rate: FloatArray) -> NDArray[np.bool_]:
+    return np.abs(rate) < _ZERO
+
+
+def fp(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Single-payment compound amount (F/P,i,n) = (1+i)^n.
+
+    >>> round(float(fp(0.10, 5)), 4)
+    1.6105
+    """
+    rate = _check_rate(i)
+    return np.power(1.0 + rate, np.asarray(n, dtype=float))
+
+
+def pf(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Single-payment present worth (P/F,i,n) = (1+i)^-n.
+
+    >>> round(float(pf(0.10, 5)), 4)
+    0.6209
+    """
+    rate = _check_rate(i)
+    return np.power(1.0 + rate, -np.asarray(n, dtype=float))
+
+
+def pa(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Uniform-series present worth (P/A,i,n) = ((1+i)^n - 1) / (i(1+i)^n); n at i = 0.
+
+    >>> round(float(pa(0.10, 5)), 4), float(pa(0.0, 5))
+    (3.7908, 5.0)
+    """
+    rate = _check_rate(i)
+    periods = np.asarray(n, dtype=float)
+    zero = _zero_mask(rate)
+    safe = np.where(zero, 1.0, rate)
+    value = (1.0 - np.power(1.0 + safe, -periods)) / safe
+    return np.where(zero, periods + 0.0 * safe, value)
+
+
+def ap(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Capital recovery (A/P,i,n) = i(1+i)^n / ((1+i)^n - 1); 1/n at i = 0.
+
+    >>> round(float(ap(0.10, 5)), 5), float(ap(0.0, 4))
+    (0.2638, 0.25)
+    """
+    periods = np.asarray(n, dtype=float)
+    if np.any(periods <= 0):
+        raise ValueError("number of periods must be at least 1 for (A/P,i,n)")
+    return 1.0 / pa(i, periods)
+
+
+def fa(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Uniform-series compound amount (F/A,i,n) = ((1+i)^n - 1)/i; n at i = 0.
+
+    >>> round(float(fa(0.10, 5)), 4)
+    6.1051
+    """
+    rate = _check_rate(i)
+    periods = np.asarray(n, dtype=float)
+    zero = _zero_mask(rate)
+    safe = np.where(zero, 1.0, rate)
+    value = (np.power(1.0 + safe, periods) - 1.0) / safe
+    return np.where(zero, periods + 0.0 * safe, value)
+
+
+def af(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Sinking fund (A/F,i,n) = i / ((1+i)^n - 1); 1/n at i = 0.
+
+    >>> round(float(af(0.10, 5)), 5)
+    0.1638
+    """
+    periods = np.asarray(n, dtype=float)
+    if np.any(periods <= 0):
+        raise ValueError("number of periods must be at least 1 for (A/F,i,n)")
+    return 1.0 / fa(i, periods)
+
+
+def pg(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Arithmetic-gradient present worth (P/G,i,n) = [(P/A,i,n) - n(P/F,i,n)] / i.
+
+    The gradient series is 0, G, 2G, ..., (n-1)G at the ends of years 1..n.
+    At i = 0 the limit is n(n-1)/2.
+
+    >>> round(float(pg(0.10, 5)), 3), float(pg(0.0, 5))
+    (6.862, 10.0)
+    """
+    rate = _check_rate(i)
+    periods = np.asarray(n, dtype=float)
+    zero = _zero_mask(rate)
+    safe = np.where(zero, 1.0, rate)
+    value = (pa(safe, periods) - periods * pf(safe, periods)) / safe
+    return np.where(zero, periods * (periods - 1.0) / 2.0 + 0.0 * safe, value)
+
+
+def ag(i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Arithmetic-gradient uniform series (A/G,i,n) = 1/i - n/((1+i)^n - 1); (n-1)/2 at i = 0.
+
+    >>> round(float(ag(0.10, 5)), 4), float(ag(0.0, 5))
+    (1.8101, 2.0)
+    """
+    periods = np.asarray(n, dtype=float)
+    if np.any(periods <= 0):
+        raise ValueError("number of periods must be at least 1 for (A/G,i,n)")
+    return pg(i, periods) * ap(i, periods)
+
+
+def pa_geometric(g: ArrayLike, i: ArrayLike, n: ArrayLike) -> FloatArray:
+    """Geometric-gradient present worth (P/A,g,i,n) per unit first-year amount.
+
+    The series is A_1, A_1(1+g), ..., A_1(1+g)^(n-1) at the ends of years 1..n:
+
+        (P/A,g,i,n) = [1 - ((1+g)/(1+i))^n] / (i - g)    for g != i
+                    = n / (1+i)                          for g == i
+
+    >>> round(float(pa_geometric(0.05, 0.10, 5)), 4), round(float(pa_geometric(0.1, 0.1, 5)), 4)
+    (4.1506, 4.5455)
+    """
+    rate = _check_rate(i)
+    growth = np.asarray(g, dtype=float)
+    if np.any(growth <= -1.0):
+        raise ValueError("growth rate must be greater than -1 (-100 %)")
+    periods = np.asarray(n, dtype=float)
+    equal = np.abs(rate - growth) < _ZERO
+    diff = np.where(equal, 1.0, rate - growth)
+    value = (1.0 - np.power((1.0 + growth) / (1.0 + rate), periods)) / diff
+    return np.where(equal, periods / (1.0 + rate), value)

@@ -1,0 +1,528 @@
+"""The study file (DESIGN.md §5): strict parsing, canonical form and fingerprint.
+
+Parsing refuses anything doubtful and names the JSON path of the problem, for
+example ``$.challengers[0].max_life: must be a whole number of years >= 1``.
+Unknown keys, NaN, infinities, booleans where numbers belong, lists too short
+for the life, extra costs past the life and a study without a challenger are
+all refused.  ``study_to_dict`` gives back the §5 form, so a study round-trips.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from core.errors import StudyError
+from core.estimates import (
+    Alternative,
+    Depreciation,
+    Distribution,
+    ExtraCost,
+    Inflation,
+    MarketValues,
+    OperatingCosts,
+    Study,
+    Tax,
+    Uncertainty,
+)
+
+FORMAT = "tenure-study"
+VERSION = 1
+MACRS_CLASSES = (3, 5, 7, 10, 15, 20)
+DISTRIBUTION_ARITY = {"triangular": 3, "uniform": 2, "normal": 2, "pert": 3, "lognormal": 2}
+#: Uncertain-input suffixes after "<alternative name>." (DESIGN.md §5); "marr" stands alone.
+INPUT_SUFFIXES = (
+    "first_cost",
+    "market_value",
+    "market_values.decline_rate",
+    "operating_costs.first",
+    "operating_costs.gradient",
+    "operating_costs.growth",
+)
+
+
+# --------------------------------------------------------------------------- helpers
+def _keys(obj: Any, path: str, allowed: set[str], required: set[str] = frozenset()) -> dict:
+    if not isinstance(obj, Mapping):
+        raise StudyError(path, f"must be an object, not {_kind(obj)}")
+    for key in obj:
+        if key not in allowed:
+            hint = ", ".join(sorted(allowed))
+            raise StudyError(f"{path}.{key}", f"unknown key (allowed here: {hint})")
+    for key in sorted(required):
+        if key not in obj:
+            raise StudyError(f"{path}.{key}", "is required")
+    return dict(obj)
+
+
+def _kind(value: Any) -> str:
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true/false"
+    if isinstance(value, str):
+        return "text"
+    if isinstance(value, list):
+        return "a list"
+    if isinstance(value, Mapping):
+        return "an object"
+    return type(value).__name__
+
+
+def _number(value: Any, path: str, *, low: float | None = None, low_open: bool = False,
+            high: float | None = None) -> float:
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise StudyError(path, f"must be a number, not {_kind(value)}")
+    number = float(value)
+    if not math.isfinite(number):
+        raise StudyError(path, "must be a finite number (NaN and infinity are not allowed)")
+    if low is not None:
+        if low_open and number <= low:
+            raise StudyError(path, f"must be greater than {low:g}")
+        if not low_open and number < low:
+            raise StudyError(path, f"must be at least {low:g}")
+    if high is not None and number > high:
+        raise StudyError(path, f"must be at most {high:g}")
+    return number
+
+
+def _integer(value: Any, path: str, *, low: int = 1, what: str = "a whole number") -> int:
+    if isinstance(value, bool):
+        raise StudyError(path, f"must be {what}, not true/false")
+    if isinstance(value, float) and value.is_integer():
+        value = int(value)
+    if not isinstance(value, int):
+        raise StudyError(path, f"must be {what} >= {low}, not {value!r}")
+    if value < low:
+        raise StudyError(path, f"must be {what} >= {low}, not {value}")
+    return value
+
+
+def _text(value: Any, path: str, *, empty_ok: bool = False) -> str:
+    if not isinstance(value, str):
+        raise StudyError(path, f"must be text, not {_kind(value)}")
+    if not empty_ok and not value.strip():
+        raise StudyError(path, "must not be empty")
+    return value
+
+
+def _number_list(value: Any, path: str, life: int, what: str) -> tuple[float, ...]:
+    if not isinstance(value, list):
+        raise StudyError(path, f"must be a list of numbers, not {_kind(value)}")
+    if len(value) < life:
+        raise StudyError(path, f"has {len(value)} {what}, but max_life {life} needs {life}")
+    return tuple(_number(v, f"{path}[{k}]") for k, v in enumerate(value))
+
+
+# --------------------------------------------------------------------------- parts
+def _market_values(obj: Any, path: str, life: int, warnings: list[str]) -> MarketValues:
+    data = _keys(obj, path, {"values", "decline_rate"})
+    if ("values" in data) == ("decline_rate" in data):
+        raise StudyError(path, "give exactly one of 'values' or 'decline_rate'")
+    if "values" in data:
+        values = _number_list(data["values"], f"{path}.values", life, "values")
+        if any(v < 0 for v in values[:life]):
+            warnings.append(f"{path}.values: negative market value (a net removal cost)")
+        return MarketValues(values=values)
+    rate = _number(data["decline_rate"], f"{path}.decline_rate", high=1.0)
+    if rate <= -1.0:
+        raise StudyError(f"{path}.decline_rate", "must be greater than -1")
+    return MarketValues(decline_rate=rate)
+
+
+def _operating_costs(obj: Any, path: str, life: int) -> OperatingCosts:
+    data = _keys(obj, path, {"values", "first", "gradient", "growth"})
+    if "values" in data:
+        if len(data) > 1:
+            raise StudyError(path, "'values' cannot be combined with 'first', 'gradient' or 'growth'")
+        return OperatingCosts(values=_number_list(data["values"], f"{path}.values", life, "values"))
+    if "first" not in data:
+        raise StudyError(path, "give 'values', or 'first' with an optional 'gradient' or 'growth'")
+    if "gradient" in data and "growth" in data:
+        raise StudyError(path, "give 'gradient' or 'growth', not both")
+    first = _number(data["first"], f"{path}.first")
+    gradient = _number(data["gradient"], f"{path}.gradient") if "gradient" in data else None
+    growth = (_number(data["growth"], f"{path}.growth", low=-1.0, low_open=True)
+              if "growth" in data else None)
+    return OperatingCosts(first=first, gradient=gradient, growth=growth)
+
+
+def _extra_costs(obj: Any, path: str, life: int) -> tuple[ExtraCost, ...]:
+    if not isinstance(obj, list):
+        raise StudyError(path, f"must be a list, not {_kind(obj)}")
+    out = []
+    for k, item in enumerate(obj):
+        where = f"{path}[{k}]"
+        data = _keys(item, where, {"year", "amount", "label"}, {"year", "amount"})
+        year = _integer(data["year"], f"{where}.year", what="a whole year")
+        if year > life:
+            raise StudyError(f"{where}.year", f"year {year} is past max_life {life}")
+        amount = _number(data["amount"], f"{where}.amount")
+        label = _text(data.get("label", ""), f"{where}.label", empty_ok=True)
+        out.append(ExtraCost(year=year, amount=amount, label=label))
+    return tuple(out)
+
+
+def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
+    data = _keys(obj, path, {"method", "basis", "years", "age", "salvage", "class", "rate"},
+                 {"method"})
+    method = data["method"]
+    if method not in ("straight_line", "macrs", "declining_balance"):
+        raise StudyError(f"{path}.method",
+                         "must be 'straight_line', 'macrs' or 'declining_balance'")
+    basis = _number(data["basis"], f"{path}.basis", low=0.0) if "basis" in data else None
+    if role == "defender" and basis is None:
+        raise StudyError(f"{path}.basis", "is required for the defender (its original tax basis)")
+    age = _integer(data.get("age", 0), f"{path}.age", low=0, what="a whole number of years")
+    if role == "challenger" and age:
+        raise StudyError(f"{path}.age", "a challenger is new: its age must be 0")
+    years = macrs_class = rate = None
+    salvage = 0.0
+    if method == "macrs":
+        for key in ("years", "rate", "salvage"):
+            if key in data:
+                raise StudyError(f"{path}.{key}", "does not apply to MACRS (give 'class')")
+        if "class" not in data:
+            raise StudyError(f"{path}.class", "is required for MACRS (3, 5, 7, 10, 15 or 20)")
+        macrs_class = _integer(data["class"], f"{path}.class", what="a MACRS class")
+        if macrs_class not in MACRS_CLASSES:
+            raise StudyError(f"{path}.class", "must be one of 3, 5, 7, 10, 15, 20")
+    else:
+        if "class" in data:
+            raise StudyError(f"{path}.class", "applies only to MACRS")
+        if "years" not in data:
+            raise StudyError(f"{path}.years", "is required (the recovery period in years)")
+        years = _integer(data["years"], f"{path}.years", what="a whole number of years")
+        if method == "straight_line":
+            if "rate" in data:
+                raise StudyError(f"{path}.rate", "applies only to declining balance")
+            salvage = _number(data.get("salvage", 0.0), f"{path}.salvage", low=0.0)
+        else:
+            if "salvage" in data:
+                raise StudyError(f"{path}.salvage", "applies only to straight line")
+            if "rate" not in data:
+                raise StudyError(f"{path}.rate", "is required for declining balance (e.g. 0.25)")
+            rate = _number(data["rate"], f"{path}.rate", low=0.0, low_open=True, high=1.0)
+    return Depreciation(method=method, basis=basis, years=years, age=age, salvage=salvage,
+                        macrs_class=macrs_class, rate=rate)
+
+
+def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alternative:
+    price_key = "market_value" if role == "defender" else "first_cost"
+    data = _keys(obj, path,
+                 {"name", price_key, "max_life", "market_values", "operating_costs",
+                  "extra_costs", "depreciation"},
+                 {"name", price_key, "max_life", "market_values", "operating_costs"})
+    name = _text(data["name"], f"{path}.name").strip()
+    if role == "challenger":
+        price = _number(data[price_key], f"{path}.{price_key}", low=0.0)
+    else:
+        price = _number(data[price_key], f"{path}.{price_key}")
+        if price < 0:
+            warnings.append(f"{path}.market_value: negative market value today (a net removal cost)")
+    life = _integer(data["max_life"], f"{path}.max_life", what="a whole number of years")
+    if life > 100:
+        raise StudyError(f"{path}.max_life", "must be at most 100 years")
+    market_values = _market_values(data["market_values"], f"{path}.market_values", life, warnings)
+    if market_values.decline_rate is not None and price < 0:
+        raise StudyError(f"{path}.market_values.decline_rate",
+                         "a decline rate needs a market value today of at least 0")
+    operating = _operating_costs(data["operating_costs"], f"{path}.operating_costs", life)
+    extras = _extra_costs(data.get("extra_costs", []), f"{path}.extra_costs", life)
+    depreciation = (_depreciation(data["depreciation"], f"{path}.depreciation", role)
+                    if "depreciation" in data else None)
+    return Alternative(name=name, role=role, price=price, max_life=life,
+                       market_values=market_values, operating_costs=operating,
+                       extra_costs=extras, depreciation=depreciation)
+
+
+def _rate(value: Any, path: str) -> float:
+    return _number(value, path, low=-1.0, low_open=True)
+
+
+def _uncertainty(obj: Any, path: str, study: Study) -> Uncertainty:
+    data = _keys(obj, path, {"trials", "seed", "inputs"}, {"inputs"})
+    trials = _integer(data.get("trials", 10000), f"{path}.trials", what="a whole number")
+    if trials > 5_000_000:
+        raise StudyError(f"{path}.trials", "must be at most 5,000,000")
+    seed = data.get("seed")
+    if seed is not None:
+        seed = _integer(seed, f"{path}.seed", low=0, what="a whole number")
+    inputs_obj = data["inputs"]
+    if not isinstance(inputs_obj, Mapping) or not inputs_obj:
+        raise StudyError(f"{path}.inputs", "must be a non-empty object of input: distribution")
+    inputs = []
+    for address, spec in inputs_obj.items():
+        where = f"{path}.inputs[{json.dumps(address)}]"
+        _check_address(address, where, study)
+        dist = _keys(spec, where, set(DISTRIBUTION_ARITY))
+        if len(dist) != 1:
+            raise StudyError(where, "give exactly one distribution, e.g. {\"uniform\": [low, high]}")
+        kind, params = next(iter(dist.items()))
+        arity = DISTRIBUTION_ARITY[kind]
+        if not isinstance(params, list) or len(params) != arity:
+            raise StudyError(f"{where}.{kind}", f"must be a list of {arity} numbers")
+        values = tuple(_number(p, f"{where}.{kind}[{k}]") for k, p in enumerate(params))
+        _check_distribution(kind, values, f"{where}.{kind}")
+        inputs.append((address, Distribution(kind=kind, params=values)))
+    return Uncertainty(trials=trials, seed=seed, inputs=tuple(inputs))
+
+
+def _check_distribution(kind: str, p: tuple[float, ...], where: str) -> None:
+    if kind in ("triangular", "pert") and not p[0] <= p[1] <= p[2]:
+        raise StudyError(where, "needs low <= mode <= high")
+    if kind == "uniform" and not p[0] <= p[1]:
+        raise StudyError(where, "needs low <= high")
+    if kind in ("normal", "lognormal") and p[1] < 0:
+        raise StudyError(where, "standard deviation must be at least 0")
+    if kind == "lognormal" and p[0] <= 0:
+        raise StudyError(where, "a lognormal mean must be greater than 0")
+
+
+def split_address(address: str, study: Study) -> tuple[Alternative | None, str]:
+    """Split an uncertain-input address into (alternative, suffix); ``(None, 'marr')`` for MARR."""
+    if address == "marr":
+        return None, "marr"
+    for alt in sorted(study.alternatives, key=lambda a: -len(a.name)):
+        prefix = alt.name + "."
+        if address.startswith(prefix) and address[len(prefix):] in INPUT_SUFFIXES:
+            return alt, address[len(prefix):]
+    raise KeyError(address)
+
+
+def _check_address(address: str, where: str, study: Study) -> None:
+    try:
+        alt, suffix = split_address(address, study)
+    except KeyError:
+        names = ", ".join(a.name for a in study.alternatives)
+        raise StudyError(where, "not an input of this study: use 'marr' or '<name>.<input>' with "
+                         f"a name among {names} and an input among {', '.join(INPUT_SUFFIXES)}"
+                         ) from None
+    if alt is None:
+        return
+    if suffix == "first_cost" and alt.role != "challenger":
+        raise StudyError(where, "the defender has a market_value, not a first_cost")
+    if suffix == "market_value" and alt.role != "defender":
+        raise StudyError(where, "a challenger has a first_cost, not a market_value")
+    if suffix == "market_values.decline_rate" and alt.market_values.decline_rate is None:
+        raise StudyError(where, f"{alt.name} gives explicit market values, not a decline rate")
+    ops = alt.operating_costs
+    if suffix == "operating_costs.first" and ops.first is None:
+        raise StudyError(where, f"{alt.name} gives explicit operating costs, not a first year")
+    if suffix == "operating_costs.gradient" and ops.gradient is None:
+        raise StudyError(where, f"{alt.name} has no operating-cost gradient")
+    if suffix == "operating_costs.growth" and ops.growth is None:
+        raise StudyError(where, f"{alt.name} has no operating-cost growth")
+
+
+# --------------------------------------------------------------------------- studies
+STUDY_KEYS = {"title", "marr", "study_period", "defender", "challengers", "tax", "inflation",
+              "uncertainty", "notes"}
+
+
+def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) -> Study:
+    """Parse one study object (DESIGN.md §5), refusing anything doubtful with a StudyError."""
+    warnings = [] if warnings is None else warnings
+    data = _keys(obj, path, STUDY_KEYS, {"title", "marr", "defender", "challengers"})
+    title = _text(data["title"], f"{path}.title").strip()
+    marr = _rate(data["marr"], f"{path}.marr")
+    period = data.get("study_period")
+    if period is not None:
+        period = _integer(period, f"{path}.study_period", what="a whole number of years")
+    defender = _alternative(data["defender"], f"{path}.defender", "defender", warnings)
+    challengers_obj = data["challengers"]
+    if not isinstance(challengers_obj, list):
+        raise StudyError(f"{path}.challengers", f"must be a list, not {_kind(challengers_obj)}")
+    if not challengers_obj:
+        raise StudyError(f"{path}.challengers", "a study needs at least one challenger")
+    challengers = tuple(_alternative(c, f"{path}.challengers[{k}]", "challenger", warnings)
+                        for k, c in enumerate(challengers_obj))
+    seen = {defender.name}
+    for k, alt in enumerate(challengers):
+        if alt.name in seen:
+            raise StudyError(f"{path}.challengers[{k}].name", f"'{alt.name}' is used twice")
+        seen.add(alt.name)
+    tax = None
+    if "tax" in data and data["tax"] is not None:
+        tdata = _keys(data["tax"], f"{path}.tax", {"rate", "after_tax_marr"},
+                      {"rate", "after_tax_marr"})
+        tax = Tax(rate=_number(tdata["rate"], f"{path}.tax.rate", low=0.0, high=0.99),
+                  after_tax_marr=_rate(tdata["after_tax_marr"], f"{path}.tax.after_tax_marr"))
+    inflation = None
+    if "inflation" in data and data["inflation"] is not None:
+        idata = _keys(data["inflation"], f"{path}.inflation", {"rate", "estimates"}, {"rate"})
+        basis = idata.get("estimates", "constant")
+        if basis not in ("constant", "then-current"):
+            raise StudyError(f"{path}.inflation.estimates", "must be 'constant' or 'then-current'")
+        inflation = Inflation(rate=_rate(idata["rate"], f"{path}.inflation.rate"), estimates=basis)
+    notes = _text(data.get("notes", ""), f"{path}.notes", empty_ok=True)
+    study = Study(title=title, marr=marr, study_period=period, defender=defender,
+                  challengers=challengers, tax=tax, inflation=inflation, notes=notes)
+    if period is not None:
+        longest = defender.max_life + max(c.max_life for c in challengers)
+        if period > longest:
+            raise StudyError(f"{path}.study_period",
+                             f"{period} years cannot be filled: the defender lasts at most "
+                             f"{defender.max_life} and the longest challenger {longest - defender.max_life}")
+    if tax is not None:
+        for alt_path, alt in [(f"{path}.defender", defender)] + [
+                (f"{path}.challengers[{k}]", c) for k, c in enumerate(challengers)]:
+            if alt.depreciation is None:
+                raise StudyError(f"{alt_path}.depreciation",
+                                 "is required when the study has 'tax'")
+    if "uncertainty" in data and data["uncertainty"] is not None:
+        study = Study(**{**study.__dict__,
+                         "uncertainty": _uncertainty(data["uncertainty"], f"{path}.uncertainty",
+                                                     study)})
+    return study
+
+
+def parse_study_document(obj: Any) -> list[Study]:
+    """Parse a whole study file: one study object, or ``{"studies": [...]}``, with format and version."""
+    if not isinstance(obj, Mapping):
+        raise StudyError("$", f"must be an object, not {_kind(obj)}")
+    if obj.get("format") != FORMAT:
+        raise StudyError("$.format", f"must be \"{FORMAT}\"")
+    version = obj.get("version")
+    if isinstance(version, bool) or version != VERSION:
+        raise StudyError("$.version", f"must be {VERSION}")
+    body = {k: v for k, v in obj.items() if k not in ("format", "version")}
+    if "studies" in body:
+        if set(body) != {"studies"}:
+            extra = sorted(set(body) - {"studies"})[0]
+            raise StudyError(f"$.{extra}", "unknown key beside 'studies'")
+        items = body["studies"]
+        if not isinstance(items, list) or not items:
+            raise StudyError("$.studies", "must be a non-empty list of studies")
+        studies = [parse_study(s, f"$.studies[{k}]") for k, s in enumerate(items)]
+        titles = [s.title for s in studies]
+        for k, title in enumerate(titles):
+            if title in titles[:k]:
+                raise StudyError(f"$.studies[{k}].title", f"'{title}' is used twice")
+        return studies
+    return [parse_study(body, "$")]
+
+
+def _refuse_constant(name: str) -> float:
+    raise ValueError(f"{name} is not allowed")
+
+
+def loads_study_document(text: str, where: str = "$") -> list[Study]:
+    """Parse study-file text; JSON syntax errors become a StudyError with line and column."""
+    try:
+        obj = json.loads(text, parse_constant=_refuse_constant)
+    except json.JSONDecodeError as exc:
+        raise StudyError(where, f"not valid JSON: {exc.msg} at line {exc.lineno} column {exc.colno}"
+                         ) from None
+    except ValueError as exc:
+        raise StudyError(where, f"not valid JSON: {exc} (NaN and infinity are refused)") from None
+    return parse_study_document(obj)
+
+
+def load_study_file(path: str | Path) -> list[Study]:
+    """Read and parse a study file from disk."""
+    file = Path(path)
+    try:
+        raw = file.read_bytes()
+    except OSError as exc:
+        raise StudyError(str(file), f"cannot read ({exc.strerror or exc})") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise StudyError(str(file), "not UTF-8 text") from None
+    return loads_study_document(text)
+
+
+# --------------------------------------------------------------------------- writing
+def _num(x: float) -> float | int:
+    return int(x) if float(x).is_integer() and abs(x) < 2**53 else float(x)
+
+
+def alternative_to_dict(alt: Alternative) -> dict[str, Any]:
+    """The §5 dictionary of one alternative."""
+    out: dict[str, Any] = {"name": alt.name}
+    out["market_value" if alt.role == "defender" else "first_cost"] = _num(alt.price)
+    out["max_life"] = alt.max_life
+    mv = alt.market_values
+    out["market_values"] = ({"values": [_num(v) for v in mv.values]} if mv.values is not None
+                            else {"decline_rate": _num(mv.decline_rate or 0.0)})
+    oc = alt.operating_costs
+    if oc.values is not None:
+        out["operating_costs"] = {"values": [_num(v) for v in oc.values]}
+    else:
+        ops: dict[str, Any] = {"first": _num(oc.first or 0.0)}
+        if oc.gradient is not None:
+            ops["gradient"] = _num(oc.gradient)
+        if oc.growth is not None:
+            ops["growth"] = _num(oc.growth)
+        out["operating_costs"] = ops
+    if alt.extra_costs:
+        out["extra_costs"] = [{"year": x.year, "amount": _num(x.amount), "label": x.label}
+                              for x in alt.extra_costs]
+    dep = alt.depreciation
+    if dep is not None:
+        d: dict[str, Any] = {"method": dep.method}
+        if dep.basis is not None:
+            d["basis"] = _num(dep.basis)
+        if dep.macrs_class is not None:
+            d["class"] = dep.macrs_class
+        if dep.years is not None:
+            d["years"] = dep.years
+        if dep.age:
+            d["age"] = dep.age
+        if dep.method == "straight_line" and dep.salvage:
+            d["salvage"] = _num(dep.salvage)
+        if dep.rate is not None:
+            d["rate"] = _num(dep.rate)
+        out["depreciation"] = d
+    return out
+
+
+def study_to_dict(study: Study) -> dict[str, Any]:
+    """The §5 study object (without format/version), such that ``parse_study`` gives it back."""
+    out: dict[str, Any] = {"title": study.title, "marr": _num(study.marr),
+                           "study_period": study.study_period,
+                           "defender": alternative_to_dict(study.defender),
+                           "challengers": [alternative_to_dict(c) for c in study.challengers]}
+    if study.tax is not None:
+        out["tax"] = {"rate": _num(study.tax.rate), "after_tax_marr": _num(study.tax.after_tax_marr)}
+    if study.inflation is not None:
+        out["inflation"] = {"rate": _num(study.inflation.rate),
+                            "estimates": study.inflation.estimates}
+    if study.uncertainty is not None:
+        unc = study.uncertainty
+        u: dict[str, Any] = {"trials": unc.trials,
+                             "inputs": {a: {d.kind: [_num(p) for p in d.params]}
+                                        for a, d in unc.inputs}}
+        if unc.seed is not None:
+            u["seed"] = unc.seed
+        out["uncertainty"] = u
+    if study.notes:
+        out["notes"] = study.notes
+    return out
+
+
+def dump_study_document(studies: list[Study] | tuple[Study, ...], indent: int | None = 2) -> str:
+    """A complete study file holding ``studies`` (one study object when there is just one)."""
+    head = {"format": FORMAT, "version": VERSION}
+    if len(studies) == 1:
+        doc = {**head, **study_to_dict(studies[0])}
+    else:
+        doc = {**head, "studies": [study_to_dict(s) for s in studies]}
+    return json.dumps(doc, indent=indent, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def canonical_json(study: Study) -> str:
+    """Canonical JSON of one study: §5 form, sorted keys, no spaces, UTF-8, with format/version."""
+    doc = {"format": FORMAT, "version": VERSION, **study_to_dict(study)}
+    return json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                      allow_nan=False)
+
+
+def fingerprint(study: Study) -> str:
+    """SHA-256 (hex) of the canonical study JSON: the memo footer's study fingerprint."""
+    return hashlib.sha256(canonical_json(study).encode("utf-8")).hexdigest()
