@@ -131,7 +131,9 @@ class VerifyReport:
         for p in self.problems:
             out.append(f"problem: {p}")
         code = self.exit_code(require_trust)
-        if not self.integrity_ok:
+        if not self.signatures:
+            verdict = "FAILED: the memo carries no signature"
+        elif not self.integrity_ok:
             verdict = "FAILED: the memo is not intact"
         elif code:
             verdict = "FAILED: intact, but a signer is not vouched for (--require-trust)"
@@ -343,8 +345,12 @@ def verify_memo_bytes(
             sp.append("changes after signing break the document's signing policy")
         if st.trusted:
             anchor = st.validation_path[0] if st.validation_path is not None else None
-            via = f" via {_cert_name(anchor)[0]}" if anchor is not None else ""
-            trust_state = f"trusted{via}"
+            if anchor is not None and anchor.sha256 == cert.sha256:
+                trust_state = "trusted (this certificate is in your trust list)"
+            elif anchor is not None:
+                trust_state = f"trusted (chains to {_cert_name(anchor)[0]}, in your trust list)"
+            else:  # pragma: no cover
+                trust_state = "trusted"
         elif roots and st.trust_problem_indic is not None and st.intact and st.valid:
             trust_state = "not vouched for (does not chain to a trusted certificate)"
         else:

@@ -1,0 +1,165 @@
+"""The AW-against-retention chart of the memo, as reportlab vector graphics.
+
+One line per alternative: AW_k (signed, costs negative) for k = 1..n years of
+retention, with the economic service life (the best AW) marked by a large
+filled marker and an "ESL k" label. Lines differ in colour and dash pattern so
+the chart also reads in black-and-white print.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+from reportlab.graphics.shapes import Circle, Drawing, Line, Polygon, PolyLine, Rect, String
+from reportlab.lib import colors
+
+__all__ = ["nice_ticks", "aw_chart", "SERIES_STYLES", "short_money"]
+
+SERIES_STYLES = (
+    (colors.HexColor("#1f4e79"), None, "circle"),
+    (colors.HexColor("#c55a11"), (4, 2), "square"),
+    (colors.HexColor("#548235"), (1, 2), "triangle"),
+    (colors.HexColor("#7030a0"), (6, 2, 1, 2), "diamond"),
+    (colors.HexColor("#7f6000"), (2, 2), "circle"),
+    (colors.HexColor("#2e75b6"), (8, 3), "square"),
+)
+
+
+def nice_ticks(lo: float, hi: float, target: int = 6) -> list[float]:
+    """Round tick values covering [lo, hi] (1, 2, 2.5 or 5 times a power of ten).
+
+    >>> nice_ticks(-43000, -8000)
+    [-50000.0, -40000.0, -30000.0, -20000.0, -10000.0, 0.0]
+    >>> nice_ticks(0, 0)
+    [-1.0, -0.5, 0.0, 0.5, 1.0]
+    """
+    if hi < lo:
+        lo, hi = hi, lo
+    if hi - lo < 1e-9:
+        pad = max(abs(lo) * 0.1, 1.0)
+        lo, hi = lo - pad, hi + pad
+    raw = (hi - lo) / max(target - 1, 1)
+    mag = 10 ** math.floor(math.log10(raw))
+    step = next(m * mag for m in (1, 2, 2.5, 5, 10) if m * mag >= raw)
+    start = math.floor(lo / step) * step
+    ticks = []
+    v = start
+    while v < hi + step * 0.999:
+        ticks.append(round(v, 10) + 0.0)
+        v += step
+    return [float(t) for t in ticks]
+
+
+def short_money(v: float) -> str:
+    """Axis labels: thousands separators, ASCII minus.
+
+    >>> short_money(-40000.0), short_money(2500.5), short_money(0.0)
+    ('-40,000', '2,500', '0')
+    """
+    r = round(v)
+    return "0" if r == 0 else f"{r:,.0f}"
+
+
+def _marker(kind: str, x: float, y: float, r: float, color, filled: bool):
+    fill = color if filled else colors.white
+    if kind == "square":
+        return Rect(x - r, y - r, 2 * r, 2 * r, fillColor=fill, strokeColor=color, strokeWidth=0.8)
+    if kind == "triangle":
+        return Polygon([x - r, y - r, x + r, y - r, x, y + r * 1.1], fillColor=fill,
+                       strokeColor=color, strokeWidth=0.8)
+    if kind == "diamond":
+        return Polygon([x, y - r * 1.2, x + r * 1.2, y, x, y + r * 1.2, x - r * 1.2, y],
+                       fillColor=fill, strokeColor=color, strokeWidth=0.8)
+    return Circle(x, y, r, fillColor=fill, strokeColor=color, strokeWidth=0.8)
+
+
+def aw_chart(
+    series: Sequence[tuple[str, Sequence[float], int]],
+    width: float,
+    height: float = 230.0,
+    currency: str = "",
+    title: str | None = None,
+) -> Drawing:
+    """Draw AW_k against retention k for each (name, AW_1..AW_n, ESL) series."""
+    d = Drawing(width, height)
+    legend_h = 14 * math.ceil(len(series) / 2) + 6
+    left, right, bottom, top = 62.0, 12.0, 30.0 + legend_h, 18.0 if title else 8.0
+    pw, ph = width - left - right, height - bottom - top
+    values = [v for _, aw, _ in series for v in aw if math.isfinite(v)]
+    n_max = max((len(aw) for _, aw, _ in series), default=1)
+    lo, hi = (min(values), max(values)) if values else (-1.0, 0.0)
+    ticks = nice_ticks(lo, hi)
+    y0, y1 = ticks[0], ticks[-1]
+
+    def X(k: float) -> float:
+        return left + (k - 0.5) / n_max * pw
+
+    def Y(v: float) -> float:
+        return bottom + (v - y0) / (y1 - y0) * ph
+
+    if title:
+        d.add(String(left, height - 11, title, fontName="Helvetica-Bold", fontSize=9))
+    d.add(Rect(left, bottom, pw, ph, fillColor=None, strokeColor=colors.grey, strokeWidth=0.5))
+    for t in ticks:
+        y = Y(t)
+        d.add(Line(left, y, left + pw, y, strokeColor=colors.HexColor("#dddddd"), strokeWidth=0.4))
+        d.add(String(left - 4, y - 3, short_money(t), fontName="Helvetica", fontSize=7,
+                     textAnchor="end"))
+    if y0 < 0 < y1:
+        d.add(Line(left, Y(0), left + pw, Y(0), strokeColor=colors.black, strokeWidth=0.6))
+    step = 1 if n_max <= 15 else (2 if n_max <= 30 else 5)
+    for k in range(1, n_max + 1):
+        if k % step and k != 1:
+            continue
+        d.add(Line(X(k), bottom, X(k), bottom - 3, strokeColor=colors.grey, strokeWidth=0.5))
+        d.add(String(X(k), bottom - 11, str(k), fontName="Helvetica", fontSize=7,
+                     textAnchor="middle"))
+    d.add(String(left + pw / 2, bottom - 22, "years of retention k", fontName="Helvetica",
+                 fontSize=7.5, textAnchor="middle"))
+    ylab = f"AW ({currency}/yr; costs negative)" if currency else "AW per year (costs negative)"
+    lab = String(0, 0, ylab, fontName="Helvetica", fontSize=7.5, textAnchor="middle")
+    from reportlab.graphics.shapes import Group
+
+    g = Group(lab)
+    g.transform = (0, 1, -1, 0, 9, bottom + ph / 2)
+    d.add(g)
+    label_spots: list[tuple[float, float]] = []
+    for idx, (_name, aw, esl) in enumerate(series):
+        color, dash, mk = SERIES_STYLES[idx % len(SERIES_STYLES)]
+        pts = []
+        for k, v in enumerate(aw, 1):
+            if math.isfinite(v):
+                pts += [X(k), Y(v)]
+        if len(pts) >= 4:
+            d.add(PolyLine(pts, strokeColor=color, strokeWidth=1.3, strokeDashArray=dash))
+        for k, v in enumerate(aw, 1):
+            if math.isfinite(v) and k != esl:
+                d.add(_marker(mk, X(k), Y(v), 1.8, color, False))
+        if 1 <= esl <= len(aw) and math.isfinite(aw[esl - 1]):
+            ex, ey = X(esl), Y(aw[esl - 1])
+            d.add(_marker(mk, ex, ey, 4.0, color, True))
+            # put the label above the point, moving it up if another label is there
+            ly = ey + 7
+            while any(abs(ly - sy) < 9 and abs(ex - sx) < 60 for sx, sy in label_spots):
+                ly += 9
+            ly = min(ly, bottom + ph - 4) if ly > bottom + ph - 4 else ly
+            label_spots.append((ex, ly))
+            anchor = "end" if ex > left + pw - 50 else ("start" if ex < left + 40 else "middle")
+            d.add(String(ex, ly, f"ESL {esl}", fontName="Helvetica-Bold", fontSize=7,
+                         fillColor=color, textAnchor=anchor))
+    # legend, two columns under the axis title
+    col_w = pw / 2
+    for idx, (name, _aw, esl) in enumerate(series):
+        color, dash, mk = SERIES_STYLES[idx % len(SERIES_STYLES)]
+        row, col = divmod(idx, 2)
+        lx = left + col * col_w
+        ly = bottom - 34 - row * 14
+        d.add(Line(lx, ly + 3, lx + 22, ly + 3, strokeColor=color, strokeWidth=1.3,
+                   strokeDashArray=dash))
+        d.add(_marker(mk, lx + 11, ly + 3, 3.0, color, True))
+        label = f"{name} (ESL {esl} yr{'s' if esl != 1 else ''})"
+        if len(label) > 48:
+            label = label[:45] + "..."
+        d.add(String(lx + 28, ly, label, fontName="Helvetica", fontSize=7.5))
+    return d

@@ -1,0 +1,811 @@
+"""Render the decision memo of one study as PDF (reportlab), DESIGN.md §8.
+
+The memo reads a :class:`core.results.StudyResult` and never recomputes
+economics. Order: the recommendation in one sentence; key figures; the chart
+of AW against retention with every ESL marked; study-period options (when the
+study has a period); after-tax and risk results (when the study has them);
+every assumption and input; the method in plain words; warnings; cautions;
+the sign-off block with one empty signature field per role. Every page
+carries a footer with the study fingerprint and "page x of y".
+
+The study JSON rides inside the PDF as an attachment (``study.tenure.json``)
+and its fingerprint is stored in the ``/TenureFingerprint`` Info key, so
+``tenure verify`` can check the attachment against the footer.
+
+>>> from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+>>> from core.study import run_study
+>>> d = Alternative("Old press", "defender", 20000.0, 3, MarketValues(decline_rate=0.3),
+...                 OperatingCosts(first=9000.0, gradient=2500.0))
+>>> c = Alternative("New press", "challenger", 60000.0, 8, MarketValues(decline_rate=0.2),
+...                 OperatingCosts(first=3000.0, gradient=500.0))
+>>> pdf = render_memo(run_study(Study("Press line", 0.10, d, (c,))))
+>>> pdf[:5]
+b'%PDF-'
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import io
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+from xml.sax.saxutils import escape
+
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT
+from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
+from reportlab.lib.units import mm
+from reportlab.platypus import (
+    CondPageBreak,
+    Flowable,
+    KeepTogether,
+    Paragraph,
+    SimpleDocTemplate,
+    Spacer,
+    Table,
+    TableStyle,
+)
+
+from core.memo.cautions import caution_texts
+from core.memo.chart import aw_chart
+from core.memo.sign import ROLES, finish_pdf
+
+__all__ = ["MemoOptions", "render_memo", "render_memo_pages", "money", "PAGE_SIZES"]
+
+PAGE_SIZES = {"A4": A4, "Letter": LETTER}
+MARGIN = 18 * mm
+
+CONVENTIONS = (
+    "End-of-year convention: every cash flow of a year falls at its end; discrete annual "
+    "compounding; rates are per year.",
+    "Annual worth (AW) is signed: outflows negative, inflows positive. The best option has the "
+    "largest AW, that is the least equivalent annual cost (EAC = -AW).",
+    "The defender is priced at today's market value (its opportunity cost); what was paid for it "
+    "in the past is sunk and does not enter the before-tax study. A challenger is priced at its "
+    "installed first cost.",
+    "AW for retention k: AW_k = -P(A/P,i,k) + S_k(A/F,i,k) - [sum over j<=k of "
+    "(C_j+X_j)(P/F,i,j)](A/P,i,k); capital recovery CR_k = P(A/P,i,k) - S_k(A/F,i,k).",
+    "The economic service life (ESL) is the retention k with the best AW; on an exact tie "
+    "(to the cent) the shorter life.",
+    "Marginal cost of year j: MC_j = (S_(j-1) - S_j) + i S_(j-1) + C_j + X_j with S_0 = P.",
+)
+
+METHOD = (
+    "For every alternative and every possible retention of 1 to n years, the capital it ties "
+    "up (price less resale value) and its running and one-off costs are turned into one "
+    "constant yearly amount at the interest rate of the study, the annual worth. The retention "
+    "with the best annual worth is that alternative's economic service life.",
+    "Without a study period, the defender at its economic life is compared with each challenger "
+    "at its economic life. If the best challenger costs less per year, replace now; otherwise "
+    "keep the defender, and keep it each further year only while that year's marginal cost "
+    "stays below the best challenger's equivalent annual cost. The study is repeated each year "
+    "with fresh estimates.",
+    "With a study period T, every option 'keep the defender j years, then a challenger for the "
+    "remaining T-j years' is valued over T years, and the option with the best annual worth "
+    "wins; options a machine's life cannot fill are listed as infeasible.",
+    "The replacement value is the market value of the defender today at which keeping it is "
+    "exactly as good as the best challenger; an offer above it favours selling.",
+)
+
+
+def money(x: float | None, decimals: int = 0) -> str:
+    """Thousands separators, ASCII minus, '-' never on a zero; blank for None.
+
+    >>> money(-12345.6), money(0.4), money(1234.5, 2), money(None)
+    ('-12,346', '0', '1,234.50', '')
+    """
+    if x is None:
+        return ""
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return str(x)
+    if not math.isfinite(v):
+        return "n/a"
+    r = round(v, decimals)
+    if r == 0:
+        r = 0.0
+    return f"{r:,.{decimals}f}"
+
+
+def pct(x: float | None) -> str:
+    """A decimal rate as a percentage.
+
+    >>> pct(0.09), pct(0.0325), pct(None)
+    ('9%', '3.25%', '')
+    """
+    if x is None:
+        return ""
+    s = f"{float(x) * 100:.4f}".rstrip("0").rstrip(".")
+    return f"{s}%"
+
+
+def yrs(n: int | None) -> str:
+    if n is None:
+        return ""
+    return f"{n} year" if n == 1 else f"{n} years"
+
+
+@dataclass(frozen=True)
+class MemoOptions:
+    """How the memo is laid out and who signs it off."""
+
+    page_size: str = "A4"
+    currency: str = "GBP"
+    prepared_by: str | None = None
+    reviewed_by: str | None = None
+    approved_by: str | None = None
+    organisation: str | None = None
+    issued: _dt.date | None = None
+    signature_fields: bool = True
+    extra_notes: tuple[str, ...] = field(default=())
+
+    def names(self) -> dict[str, str | None]:
+        return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
+                "approved": self.approved_by}
+
+
+# --------------------------------------------------------------------------- styles
+def _styles() -> dict[str, ParagraphStyle]:
+    base = getSampleStyleSheet()
+    body = ParagraphStyle("body", parent=base["BodyText"], fontName="Helvetica", fontSize=9,
+                          leading=11.5, spaceAfter=3, alignment=TA_LEFT)
+    return {
+        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=16,
+                                leading=19, spaceAfter=2),
+        "sub": ParagraphStyle("sub", parent=body, fontSize=8.5, textColor=colors.HexColor("#444444")),
+        "h": ParagraphStyle("h", parent=body, fontName="Helvetica-Bold", fontSize=11, leading=14,
+                            spaceBefore=8, spaceAfter=3, textColor=colors.HexColor("#1f4e79")),
+        "h3": ParagraphStyle("h3", parent=body, fontName="Helvetica-Bold", fontSize=9.5,
+                             leading=12, spaceBefore=5, spaceAfter=2),
+        "body": body,
+        "rec": ParagraphStyle("rec", parent=body, fontName="Helvetica-Bold", fontSize=11,
+                              leading=14.5),
+        "small": ParagraphStyle("small", parent=body, fontSize=7.5, leading=9.5),
+        "cell": ParagraphStyle("cell", parent=body, fontSize=7.5, leading=9, spaceAfter=0),
+        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=7.5,
+                               leading=9, spaceAfter=0),
+        "bullet": ParagraphStyle("bullet", parent=body, leftIndent=10, bulletIndent=0),
+    }
+
+
+def _p(text: str, style: ParagraphStyle) -> Paragraph:
+    return Paragraph(escape(str(text)), style)
+
+
+_GRID = TableStyle([
+    ("FONT", (0, 0), (-1, -1), "Helvetica", 7.5),
+    ("FONT", (0, 0), (-1, 0), "Helvetica-Bold", 7.5),
+    ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8eef5")),
+    ("LINEBELOW", (0, 0), (-1, 0), 0.6, colors.HexColor("#1f4e79")),
+    ("LINEBELOW", (0, 1), (-1, -1), 0.25, colors.HexColor("#cccccc")),
+    ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+    ("TOPPADDING", (0, 0), (-1, -1), 2),
+    ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+    ("LEFTPADDING", (0, 0), (-1, -1), 3),
+    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+])
+
+
+def _table(rows: list[list[Any]], widths: Sequence[float] | None = None,
+           numeric_from: int | None = 1, extra: Iterable[tuple] = ()) -> Table:
+    if rows and widths is not None:
+        hs = _styles()["head"]
+        hr = ParagraphStyle("headr", parent=hs, alignment=2)
+        rows = [[Paragraph(escape(c), hr if numeric_from is not None and i >= numeric_from
+                           else hs) if isinstance(c, str) else c
+                 for i, c in enumerate(rows[0])]] + rows[1:]
+    t = Table(rows, colWidths=widths, repeatRows=1, hAlign="LEFT")
+    style = TableStyle(list(_GRID.getCommands()) + list(extra))
+    if numeric_from is not None:
+        style.add("ALIGN", (numeric_from, 0), (-1, -1), "RIGHT")
+    t.setStyle(style)
+    return t
+
+
+# --------------------------------------------------------------------------- sign-off block
+class SignOffBlock(Flowable):
+    """Three rows (prepared, reviewed, approved): name, date and the signature box.
+
+    While drawing, records where each signature box lands on the page, so the
+    empty signature fields can be placed exactly there afterwards.
+    """
+
+    ROW_H = 50.0
+
+    def __init__(self, width: float, names: dict[str, str | None], dates: dict[str, str],
+                 sink: dict[str, tuple[int, tuple[float, float, float, float]]]):
+        super().__init__()
+        self.width = width
+        self.names = names
+        self.dates = dates
+        self.sink = sink
+        self.height = self.ROW_H * len(ROLES) + 14
+
+    def wrap(self, availWidth, availHeight):  # noqa: N803 - reportlab API
+        return self.width, self.height
+
+    def draw(self):
+        c = self.canv
+        sig_w = min(215.0, self.width * 0.45)
+        col_role, col_name = 0.0, 70.0
+        col_date = 70.0 + (self.width - sig_w - 70.0) * 0.62
+        sig_x = self.width - sig_w
+        c.setFont("Helvetica-Bold", 7.5)
+        top = self.height
+        c.setFillColor(colors.HexColor("#444444"))
+        c.drawString(col_role, top - 9, "Role")
+        c.drawString(col_name, top - 9, "Name")
+        c.drawString(col_date, top - 9, "Date")
+        c.drawString(sig_x, top - 9, "Digital signature")
+        c.setFillColor(colors.black)
+        page = c.getPageNumber() - 1
+        for n, role in enumerate(ROLES):
+            y_top = top - 14 - n * self.ROW_H
+            y_bot = y_top - self.ROW_H
+            c.setStrokeColor(colors.HexColor("#999999"))
+            c.setLineWidth(0.4)
+            c.line(0, y_bot, self.width, y_bot)
+            mid = y_bot + self.ROW_H / 2
+            c.setFont("Helvetica-Bold", 9)
+            c.drawString(col_role, mid - 3, role.capitalize())
+            c.setFont("Helvetica", 9)
+            name = self.names.get(role)
+            if name:
+                c.drawString(col_name, mid - 3, _fit(name, col_date - col_name - 6, c, 9))
+            else:
+                c.setStrokeColor(colors.HexColor("#777777"))
+                c.line(col_name, mid - 5, col_date - 8, mid - 5)
+            date = self.dates.get(role)
+            if date:
+                c.drawString(col_date, mid - 3, date)
+            else:
+                c.line(col_date, mid - 5, sig_x - 10, mid - 5)
+            # the signature box: a thin frame; the signature's appearance goes inside it
+            bx1, by1 = sig_x, y_bot + 5
+            bx2, by2 = self.width, y_top - 5
+            c.setStrokeColor(colors.HexColor("#1f4e79"))
+            c.setDash(2, 2)
+            c.rect(bx1, by1, bx2 - bx1, by2 - by1, stroke=1, fill=0)
+            c.setDash()
+            c.setFillColor(colors.HexColor("#8a8a8a"))
+            c.setFont("Helvetica-Oblique", 6.5)
+            c.drawString(bx1 + 4, by1 + 3, f"{role.capitalize()}: digital signature field")
+            c.setFillColor(colors.black)
+            c.setStrokeColor(colors.HexColor("#cccccc"))
+            c.line(bx1, by1 + 11, bx2, by1 + 11)
+            # the field sits above the hint line, so a signature never covers the hint
+            ax1, ay1 = c.absolutePosition(bx1 + 1, by1 + 12)
+            ax2, ay2 = c.absolutePosition(bx2 - 1, by2 - 1)
+            self.sink[role] = (page, (ax1, ay1, ax2, ay2))
+
+
+def _fit(text: str, width: float, c, size: float) -> str:
+    if c.stringWidth(text, "Helvetica", size) <= width:
+        return text
+    while text and c.stringWidth(text + "...", "Helvetica", size) > width:
+        text = text[:-1]
+    return text + "..."
+
+
+# --------------------------------------------------------------------------- helpers
+def _to_json(obj: Any) -> dict | None:
+    if obj is None:
+        return None
+    if isinstance(obj, dict):
+        return obj
+    fn = getattr(obj, "to_json", None)
+    if callable(fn):
+        try:
+            out = fn()
+        except Exception:  # noqa: BLE001 - another helper's object; be defensive
+            return None
+        return out if isinstance(out, dict) else None
+    return None
+
+
+def _label(key: str) -> str:
+    return key.replace("_", " ").capitalize()
+
+
+def _fmt_value(v: Any, key: str = "") -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if isinstance(v, int):
+        return f"{v:,}" if abs(v) >= 10000 else str(v)
+    if isinstance(v, float):
+        k = key.lower()
+        if any(w in k for w in ("probability", "share", "rate", "marr")) and abs(v) <= 1.5:
+            return pct(v) if "probability" not in k and "share" not in k else f"{v * 100:.1f}%"
+        return money(v, 2 if abs(v) < 100 else 0)
+    if isinstance(v, (list, tuple)):
+        if all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in v):
+            return ", ".join(_fmt_value(x, key) for x in v)
+        return "; ".join(_fmt_value(x, key) for x in v)
+    if isinstance(v, dict):
+        return "; ".join(f"{_label(k)}: {_fmt_value(x, k)}" for k, x in v.items())
+    return str(v)
+
+
+def _generic_rows(d: dict, skip: Iterable[str] = ()) -> list[list[str]]:
+    skip = set(skip)
+    return [[_label(k), _fmt_value(v, k)] for k, v in d.items() if k not in skip]
+
+
+# --------------------------------------------------------------------------- sections
+class _Builder:
+    def __init__(self, result: Any, opts: MemoOptions, width: float):
+        self.r = result
+        self.o = opts
+        self.w = width
+        self.s = _styles()
+        self.cur = opts.currency
+        self.story: list = []
+
+    def add(self, *flow):
+        self.story.extend(flow)
+
+    def h(self, text: str):
+        self.add(CondPageBreak(60), _p(text, self.s["h"]))
+
+    # -- top
+    def header(self):
+        r, o, s = self.r, self.o, self.s
+        study = r.study
+        self.add(_p("Decision memo", s["sub"]), _p(study.title, s["title"]))
+        issued = (o.issued or _dt.date.today()).isoformat()
+        bits = [f"Issued {issued}"]
+        if o.organisation:
+            bits.insert(0, o.organisation)
+        bits.append(f"Amounts in {self.cur}; AW is signed (costs negative); EAC = -AW")
+        self.add(_p(" | ".join(bits), s["sub"]), Spacer(1, 6))
+        rec = r.recommendation
+        head = "REPLACE" if rec.action == "replace" else "KEEP"
+        box = Table([[Paragraph(f"<font color='#1f4e79'>Recommendation ({head}, "
+                                f"{escape(rec.basis)}):</font>", s["small"])],
+                     [_p(rec.reason, s["rec"])]],
+                    colWidths=[self.w], hAlign="LEFT")
+        box.setStyle(TableStyle([
+            ("BOX", (0, 0), (-1, -1), 1.0, colors.HexColor("#1f4e79")),
+            ("BACKGROUND", (0, 0), (-1, -1), colors.HexColor("#f3f6fa")),
+            ("LEFTPADDING", (0, 0), (-1, -1), 7), ("RIGHTPADDING", (0, 0), (-1, -1), 7),
+            ("TOPPADDING", (0, 0), (-1, 0), 5), ("BOTTOMPADDING", (0, -1), (-1, -1), 7),
+        ]))
+        self.add(box, Spacer(1, 4))
+        btr = getattr(r, "before_tax_recommendation", None)
+        if btr is not None and btr is not rec and getattr(btr, "reason", None) and \
+                btr.reason != rec.reason:
+            self.add(_p(f"Before tax, for comparison: {btr.reason}", s["small"]))
+
+    def key_figures(self):
+        r, s, cur = self.r, self.s, self.cur
+        self.h("Key figures")
+        rows = [["Rank", "Alternative", "Role", f"Price ({cur})", "Max life",
+                 "ESL", f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
+        for a in r.ranking:
+            rows.append([str(a.rank), Paragraph(escape(a.name), s["cell"]), a.role,
+                         money(a.price), yrs(a.max_life), yrs(a.economic_life),
+                         money(a.annual_worth_at_economic_life),
+                         money(-a.annual_worth_at_economic_life)])
+        w = self.w
+        widths = [0.06 * w, 0.25 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w, 0.14 * w, 0.14 * w]
+        self.add(_table(rows, widths, numeric_from=3,
+                        extra=[("ALIGN", (0, 0), (0, -1), "CENTER")]))
+        rec = r.recommendation
+        facts = [["Basis of the recommendation", rec.basis],
+                 ["Interest rate used for AW", pct(getattr(r, "rate", r.study.marr))
+                  + ("" if getattr(r, "rate", r.study.marr) == r.study.marr
+                     else f" (MARR {pct(r.study.marr)}, adjusted for inflation)")]]
+        if rec.best_challenger:
+            facts.append(["Best challenger", rec.best_challenger])
+        if rec.replacement_value is not None:
+            facts.append([f"Replacement value of the defender ({cur})",
+                          f"{money(rec.replacement_value)} (market value today "
+                          f"{money(r.defender.price)})"])
+        omy = rec.one_more_year or {}
+        if "defender_marginal_cost" in omy:
+            keep = "keep" if omy.get("keep_next_year") else "do not keep"
+            facts.append(["One-more-year check (next year)",
+                          f"defender marginal cost {money(omy['defender_marginal_cost'])} "
+                          f"{cur} vs best challenger EAC {money(omy.get('challenger_annual_cost'))} "
+                          f"{cur}: {keep} it another year"])
+        if rec.action == "keep" and rec.planned_defender_years and r.study.study_period is None:
+            facts.append(["Planned replacement (today's estimates)",
+                          f"after {yrs(rec.planned_defender_years)}"])
+        if r.study.study_period:
+            facts.append(["Study period", yrs(r.study.study_period)])
+        facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
+        self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
+                                      extra=[("BACKGROUND", (0, 0), (-1, 0), colors.white),
+                                             ("LINEBELOW", (0, 0), (-1, 0), 0.25,
+                                              colors.HexColor("#cccccc"))]))
+
+    def chart(self):
+        r = self.r
+        series = [(a.name, [float(v) for v in a.annual_worth], int(a.economic_life))
+                  for a in r.alternatives]
+        title = "Annual worth against years of retention (before tax)" \
+            if r.after_tax is not None or r.recommendation.basis == "after-tax" \
+            else "Annual worth against years of retention"
+        self.h("Annual worth against retention")
+        self.add(aw_chart(series, self.w, 250, self.cur, title))
+        self.add(_p("Each line is one alternative's AW for keeping it k years; the large filled "
+                    "marker is its economic service life (ESL), the best AW. Higher is better "
+                    f"(less cost). EAC = -AW. Amounts in {self.cur} per year.", self.s["small"]))
+        at_series = []
+        for a in r.alternatives:
+            at = _to_json(getattr(a, "after_tax", None))
+            if at and isinstance(at.get("annual_worth"), list) and at.get("economic_life"):
+                at_series.append((a.name, [float(v) for v in at["annual_worth"]],
+                                  int(at["economic_life"])))
+        if at_series and len(at_series) == len(r.alternatives):
+            self.add(Spacer(1, 4), aw_chart(at_series, self.w, 230, self.cur,
+                                            "After-tax annual worth against years of retention"))
+
+    def schedules(self):
+        """Year-by-year table of every alternative: the inputs and AW's parts."""
+        r, s, cur = self.r, self.s, self.cur
+        self.add(CondPageBreak(200))
+        self.h("Year by year")
+        self.add(_p(f"Market value S_k, operating cost C_k and extra cost X_k (inputs), and the "
+                    f"annual worth AW_k of keeping the asset k years with its capital-recovery "
+                    f"and operating parts, and the marginal cost MC_k of year k. All in {cur}; "
+                    f"AW and its parts are signed (costs negative); the ESL row is marked.",
+                    s["small"]))
+        for a in r.alternatives:
+            rows = [["k", "S_k", "C_k", "X_k", "AW_k", "Capital recovery -CR_k", "Operating part of AW",
+                     "EAC_k = -AW_k", "MC_k"]]
+            n = len(a.annual_worth)
+            for k in range(n):
+                rows.append([str(k + 1) + (" ESL" if k + 1 == a.economic_life else ""),
+                             money(_at(a.market_values, k)), money(_at(a.operating_costs, k)),
+                             money(_at(a.extra_costs, k)), money(a.annual_worth[k]),
+                             money(-_at(a.capital_recovery, k)), money(_at(a.operating, k)),
+                             money(-a.annual_worth[k]), money(_at(a.marginal_cost, k))])
+            esl_row = a.economic_life
+            w = self.w / 9
+            self.add(KeepTogether([
+                _p(f"{a.name} ({a.role}, price {money(a.price)} {cur})", s["h3"]),
+                _table(rows, [w] * 9, numeric_from=1, extra=[
+                    ("BACKGROUND", (0, esl_row), (-1, esl_row), colors.HexColor("#fff2cc")),
+                    ("FONT", (0, esl_row), (-1, esl_row), "Helvetica-Bold", 7.5)]),
+            ]) if n <= 25 else _table(rows, [w] * 9))
+
+    def study_period(self):
+        r, s, cur = self.r, self.s, self.cur
+        opts = list(r.study_period_options or ())
+        if not opts:
+            return
+        self.h(f"Study-period options ({yrs(r.study.study_period)})")
+        self.add(_p("Keep the defender j years, then the challenger for the remaining years. "
+                    f"AW over the whole study period, {cur} per year; the best feasible option "
+                    "is marked.", s["small"]))
+        feasible = [o for o in opts if o.feasible and o.annual_worth is not None]
+        best = max(feasible, key=lambda o: round(o.annual_worth, 2)) if feasible else None
+        rows = [["Keep defender", "Then challenger", "For", f"AW ({cur}/yr)",
+                 f"EAC ({cur}/yr)", "Feasible / note"]]
+        best_row = None
+        for o in opts:
+            if o is best:
+                best_row = len(rows)
+            rows.append([yrs(o.defender_years), Paragraph(escape(o.challenger or "(none)"),
+                                                          s["cell"]),
+                         yrs(o.challenger_years) if o.challenger else "-",
+                         money(o.annual_worth), money(-o.annual_worth) if o.annual_worth is not
+                         None else "", Paragraph(escape("best" if o is best else (
+                             "yes" if o.feasible else f"no: {o.reason}")), s["cell"])])
+        w = self.w
+        extra = []
+        if best_row is not None:
+            extra = [("BACKGROUND", (0, best_row), (-1, best_row), colors.HexColor("#fff2cc"))]
+        self.add(_table(rows, [0.13 * w, 0.25 * w, 0.1 * w, 0.14 * w, 0.14 * w, 0.24 * w],
+                        numeric_from=None, extra=extra + [("ALIGN", (3, 0), (4, -1), "RIGHT")]))
+
+    def after_tax(self):
+        r, s, cur = self.r, self.s, self.cur
+        per_alt = [(a, _to_json(getattr(a, "after_tax", None))) for a in r.alternatives]
+        per_alt = [(a, d) for a, d in per_alt if d]
+        top = _to_json(r.after_tax)
+        if not per_alt and not top:
+            return
+        self.h("After-tax results")
+        tax = r.study.tax
+        if tax is not None:
+            self.add(_p(f"Effective tax rate {pct(tax.rate)}; after-tax MARR "
+                        f"{pct(tax.after_tax_marr)}. Year j flow: -(1-t)(C_j+X_j) + t D_j; "
+                        "disposal at k: S_k - t(S_k - BV_k); the defender today is valued at "
+                        "its forgone after-tax sale proceeds MV - t(MV - BV_now).", s["small"]))
+        if per_alt:
+            n = max(len(d.get("annual_worth") or []) for _, d in per_alt)
+            if n:
+                rows = [["Alternative", "ESL", f"AW at ESL ({cur}/yr)"]
+                        + [f"k={k}" for k in range(1, n + 1)]]
+                for a, d in per_alt:
+                    aw = list(d.get("annual_worth") or [])
+                    esl = d.get("economic_life")
+                    at_esl = aw[esl - 1] if isinstance(esl, int) and 0 < esl <= len(aw) else None
+                    rows.append([Paragraph(escape(a.name), s["cell"]), yrs(esl), money(at_esl)]
+                                + [money(v) for v in aw] + [""] * (n - len(aw)))
+                if n <= 8:
+                    rest = (self.w * 0.62) / n
+                    widths = [self.w * 0.18, self.w * 0.08, self.w * 0.12] + [rest] * n
+                    self.add(_table(rows, widths, numeric_from=1))
+                else:
+                    self.add(_table([r_[:3] for r_ in rows],
+                                    [self.w * 0.4, self.w * 0.2, self.w * 0.25], numeric_from=1))
+                    self.add(_p("After-tax AW by year of retention (" + cur + "/yr):",
+                                s["small"]))
+                    for a, d in per_alt:
+                        self.add(_p(f"{a.name}: " + ", ".join(
+                            f"{k}: {money(v)}" for k, v in enumerate(d.get("annual_worth") or [], 1)),
+                            s["small"]))
+            for a, d in per_alt:
+                other = {k: v for k, v in d.items() if k not in ("annual_worth", "economic_life")}
+                if other:
+                    self.add(_p(f"{a.name}: " + _fmt_value(other), s["small"]))
+        if top:
+            rows = [[_p(k, s["cell"]), _p(v, s["cell"])] for k, v in _generic_rows(top)]
+            if rows:
+                self.add(Spacer(1, 3), _table([["Item", "Value"]] + rows,
+                                              [0.3 * self.w, 0.7 * self.w], numeric_from=None))
+
+    def risk(self):
+        r, s, cur = self.r, self.s, self.cur
+        d = _to_json(r.risk)
+        if not d:
+            return
+        self.h("Risk")
+        unc = r.study.uncertainty
+        if unc is not None:
+            self.add(_p(f"Monte Carlo simulation: {unc.trials:,} trials"
+                        + (f", seed {unc.seed}" if unc.seed is not None else "")
+                        + ". Each trial draws every uncertain input, recomputes every economic "
+                        "life and compares the best challenger with the defender.", s["small"]))
+        rows = [["Result", "Value"]]
+        if "probability_replace" in d:
+            p = d["probability_replace"]
+            rows.append(["Share of trials that say replace",
+                         f"{float(p) * 100:.1f}%" if isinstance(p, (int, float)) else str(p)])
+        awd = d.get("annual_worth_difference")
+        if isinstance(awd, dict):
+            for q in ("p10", "p50", "p90"):
+                if q in awd:
+                    rows.append([f"AW difference, best challenger minus defender, {q.upper()} "
+                                 f"({cur}/yr)", money(awd[q])])
+            for k, v in awd.items():
+                if k not in ("p10", "p50", "p90"):
+                    rows.append([f"AW difference {k} ({cur}/yr)", _fmt_value(v, k)])
+        for k, v in d.items():
+            if k in ("probability_replace", "annual_worth_difference", "breakeven"):
+                continue
+            if isinstance(v, (list, dict)) and len(str(v)) > 400:
+                continue  # raw samples or histograms: not for print
+            rows.append([_label(k), _fmt_value(v, k)])
+        rows = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows]
+        self.add(_table(rows, [0.6 * self.w, 0.4 * self.w], numeric_from=1))
+        be = d.get("breakeven")
+        if isinstance(be, dict) and be:
+            brow = [["Uncertain input (alone; the rest at their estimates)",
+                     "Value at which the recommendation flips"]]
+            for k, v in be.items():
+                brow.append([Paragraph(escape(k), s["cell"]),
+                             "does not flip within a tenfold range" if v is None
+                             else _fmt_value(v, k)])
+            self.add(Spacer(1, 4), _table(brow, [0.6 * self.w, 0.4 * self.w], numeric_from=1))
+
+    def assumptions(self):
+        r, s, cur = self.r, self.s, self.cur
+        st = r.study
+        self.h("Assumptions and inputs")
+        rows = [["Item", "Value"],
+                ["Minimum attractive rate of return (MARR)", pct(st.marr)],
+                ["Currency", cur],
+                ["Study period", yrs(st.study_period) if st.study_period else
+                 "none (each alternative at its own economic life, repeated)"]]
+        if st.tax is not None:
+            rows.append(["Tax", f"effective rate {pct(st.tax.rate)}, after-tax MARR "
+                                f"{pct(st.tax.after_tax_marr)}; the recommendation rests on "
+                                "the after-tax study"])
+        else:
+            rows.append(["Tax", "not modelled (before-tax study)"])
+        if st.inflation is not None:
+            money_kind = ("constant (today's) money, discounted at the real rate"
+                          if st.inflation.estimates == "constant"
+                          else "then-current money, discounted at the market rate "
+                               "i_f = i + f + i f")
+            rows.append(["Inflation", f"general inflation {pct(st.inflation.rate)} a year; "
+                                      f"estimates are in {money_kind}"])
+        else:
+            rows.append(["Inflation", "not modelled; all estimates in one kind of money"])
+        if st.uncertainty is not None:
+            u = st.uncertainty
+            ins = "; ".join(f"{a}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
+                            for a, dist in u.inputs)
+            rows.append(["Uncertainty", f"{u.trials:,} trials"
+                         + (f", seed {u.seed}" if u.seed is not None else "") + f"; {ins}"])
+        if st.notes:
+            rows.append(["Notes", st.notes])
+        rows = [rows[0]] + [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows[1:]]
+        self.add(_table(rows, [0.3 * self.w, 0.7 * self.w], numeric_from=None))
+        for alt in st.alternatives:
+            self.add(KeepTogether([_p(f"{alt.name} ({alt.role})", s["h3"]),
+                                   _table(self._alt_rows(alt), [0.3 * self.w, 0.7 * self.w],
+                                          numeric_from=None)]))
+        self.add(_p("Conventions", s["h3"]))
+        for c in CONVENTIONS:
+            self.add(Paragraph(escape(c), s["bullet"], bulletText="\u2022"))
+
+    def _alt_rows(self, alt) -> list:
+        s, cur = self.s, self.cur
+        rows = [["Input", "Value"]]
+        if alt.role == "defender":
+            rows.append([f"Market value today ({cur})", money(alt.price)])
+        else:
+            rows.append([f"Installed first cost ({cur})", money(alt.price)])
+        rows.append(["Longest retention considered", yrs(alt.max_life)])
+        mv = alt.market_values
+        if mv.values is not None:
+            rows.append([f"Market values S_1..S_n ({cur})", ", ".join(money(v) for v in mv.values)])
+        else:
+            rows.append(["Market values", f"decline {pct(mv.decline_rate or 0.0)} a year on "
+                                          "the year-0 value"])
+        oc = alt.operating_costs
+        if oc.values is not None:
+            rows.append([f"Operating costs C_1..C_n ({cur})", ", ".join(money(v) for v in oc.values)])
+        else:
+            txt = f"{money(oc.first or 0.0)} in year 1"
+            if oc.growth is not None:
+                txt += f", growing {pct(oc.growth)} a year"
+            elif oc.gradient:
+                txt += f", rising {money(oc.gradient)} a year"
+            else:
+                txt += ", level"
+            rows.append([f"Operating costs ({cur})", txt])
+        for x in alt.extra_costs:
+            rows.append([f"Extra cost, year {x.year} ({cur})",
+                         f"{money(x.amount)}" + (f" ({x.label})" if x.label else "")])
+        dep = alt.depreciation
+        if dep is not None:
+            bits = [dep.method.replace("_", " ")]
+            if dep.macrs_class:
+                bits.append(f"{dep.macrs_class}-year class")
+            if dep.years:
+                bits.append(f"over {yrs(dep.years)}")
+            if dep.basis is not None:
+                bits.append(f"basis {money(dep.basis)} {cur}")
+            if dep.rate is not None:
+                bits.append(f"rate {pct(dep.rate)}")
+            if dep.age:
+                bits.append(f"{yrs(dep.age)} already claimed")
+            if dep.salvage:
+                bits.append(f"tax salvage {money(dep.salvage)} {cur}")
+            rows.append(["Tax depreciation", ", ".join(bits)])
+        return [rows[0]] + [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows[1:]]
+
+    def method(self):
+        self.h("Method")
+        for m in METHOD:
+            self.add(_p(m, self.s["body"]))
+
+    def warnings(self):
+        w = list(getattr(self.r, "warnings", ()) or ()) + list(self.o.extra_notes)
+        if not w:
+            return
+        self.h("Warnings from the study")
+        for x in w:
+            self.add(Paragraph(escape(str(x)), self.s["bullet"], bulletText="\u2022"))
+
+    def cautions(self):
+        self.h("Cautions")
+        for c in caution_texts():
+            self.add(Paragraph(escape(c), self.s["bullet"], bulletText="\u2022"))
+
+    def signoff(self, sink: dict):
+        s = self.s
+        issued = (self.o.issued or _dt.date.today()).isoformat()
+        names = self.o.names()
+        dates = {"prepared": issued} if names.get("prepared") else {}
+        block = SignOffBlock(self.w, names, dates, sink)
+        self.add(CondPageBreak(block.height + 60), KeepTogether([
+            _p("Sign-off", s["h"]),
+            _p("Each signatory signs digitally in their own box (tenure memo / tenure sign). "
+               "A digital signature seals the memo: any later change shows on verification "
+               "(tenure verify). Printed copies may be signed by hand in the same boxes.",
+               s["small"]),
+            Spacer(1, 3), block]))
+
+
+def _at(arr: Any, k: int) -> float | None:
+    try:
+        return float(arr[k])
+    except (IndexError, TypeError, ValueError):
+        return None
+
+
+# --------------------------------------------------------------------------- build
+def _footer_factory(fingerprint: str, title: str, total: list[int], size):
+    def draw(canvas, doc):
+        canvas.saveState()
+        w, _h = size
+        canvas.setStrokeColor(colors.HexColor("#999999"))
+        canvas.setLineWidth(0.4)
+        canvas.line(MARGIN, MARGIN - 6, w - MARGIN, MARGIN - 6)
+        canvas.setFont("Helvetica", 6.5)
+        canvas.setFillColor(colors.HexColor("#444444"))
+        canvas.drawString(MARGIN, MARGIN - 15, f"Study fingerprint (SHA-256): {fingerprint}")
+        page = f"page {doc.page} of {total[0] if total[0] else doc.page}"
+        canvas.drawRightString(w - MARGIN, MARGIN - 15, page)
+        canvas.drawString(MARGIN, MARGIN - 23, _fit(f"Tenure decision memo: {title}",
+                                                    w - 2 * MARGIN - 40, canvas, 6.5))
+        canvas.restoreState()
+    return draw
+
+
+def _build(result: Any, opts: MemoOptions, fingerprint: str, total: list[int],
+           sink: dict) -> tuple[bytes, int]:
+    size = PAGE_SIZES[opts.page_size]
+    buf = io.BytesIO()
+    title = result.study.title
+    author = opts.prepared_by or opts.organisation or "Tenure"
+    doc = SimpleDocTemplate(
+        buf, pagesize=size, leftMargin=MARGIN, rightMargin=MARGIN, topMargin=MARGIN,
+        bottomMargin=MARGIN + 10, title=f"Decision memo: {title}", author=author,
+        subject=f"Keep-or-replace decision: {result.recommendation.reason}",
+        creator="Tenure", keywords=f"tenure decision memo; study fingerprint {fingerprint}",
+        producer="Tenure (reportlab)",
+    )
+    b = _Builder(result, opts, doc.width)
+    b.header()
+    b.key_figures()
+    b.chart()
+    b.study_period()
+    b.after_tax()
+    b.risk()
+    b.schedules()
+    b.assumptions()
+    b.method()
+    b.warnings()
+    b.cautions()
+    b.signoff(sink)
+    foot = _footer_factory(fingerprint, title, total, size)
+    doc.build(b.story, onFirstPage=foot, onLaterPages=foot)
+    return buf.getvalue(), doc.page
+
+
+def render_memo(result: Any, options: MemoOptions | None = None) -> bytes:
+    """The unsigned memo PDF of one study result, with the study attached.
+
+    The PDF holds empty signature fields Prepared, Reviewed, Approved in the
+    sign-off block (unless ``options.signature_fields`` is False); sign with
+    :func:`core.memo.sign.sign_pdf_bytes`.
+    """
+    return render_memo_pages(result, options)[0]
+
+
+def render_memo_pages(result: Any, options: MemoOptions | None = None) -> tuple[bytes, int]:
+    """:func:`render_memo`, and the page count."""
+    from core.studyfile import dump_study_document, fingerprint
+
+    opts = options or MemoOptions()
+    if opts.page_size not in PAGE_SIZES:
+        raise ValueError(f"page size must be one of {', '.join(PAGE_SIZES)}")
+    fp = fingerprint(result.study)
+    total = [0]
+    sink: dict = {}
+    _, pages = _build(result, opts, fp, total, sink)  # first pass: count the pages
+    total[0] = pages
+    sink.clear()
+    pdf, pages2 = _build(result, opts, fp, total, sink)
+    if pages2 != pages:  # pragma: no cover - page count is stable between passes
+        total[0] = pages2
+        sink.clear()
+        pdf, _ = _build(result, opts, fp, total, sink)
+    attachment = dump_study_document([result.study]).encode("utf-8")
+    return finish_pdf(pdf, attachment=attachment, fingerprint=fp,
+                      fields=sink if opts.signature_fields else {},
+                      title=result.study.title), total[0]
