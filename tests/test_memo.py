@@ -1,0 +1,378 @@
+"""Decision memo: content, attachment, signatures, verification (core/memo).
+
+References: the memo's contents follow DESIGN.md §8/§9 (our own spec); PDF
+signatures and their incremental updates follow ISO 32000-1 §12.8 as
+implemented by pyHanko (common practice, no further source). Expected figures
+are the engine's own StudyResult values: the memo must print, not recompute.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import io
+import json
+import os
+import stat
+
+import pytest
+from pypdf import PdfReader
+
+from core.cli import main
+from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
+from core.memo.cautions import CAUTIONS_FILE, caution_texts, parse_cautions
+from core.memo.identity import load_identity, new_identity
+from core.memo.issue import issue_memo
+from core.memo.render import MemoOptions, money, render_memo
+from core.memo.sign import sign_memo_file, sign_pdf_bytes
+from core.memo.verify import verify_memo, verify_memo_bytes
+from core.study import run_study
+from core.studyfile import dump_study_document, fingerprint, parse_study_document
+
+PASS = b"kestrel-road-2026"
+
+
+def _study(period: int | None = None, title: str = "Millbrook lathe L-4") -> Study:
+    d = Alternative("Lathe L-4 (2009)", "defender", 18000.0, 4, MarketValues(decline_rate=0.25),
+                    OperatingCosts(first=11000.0, gradient=2200.0),
+                    (ExtraCost(2, 4000.0, "spindle rebuild"),))
+    c1 = Alternative("CNC lathe Ouseburn-7", "challenger", 72000.0, 9,
+                     MarketValues(decline_rate=0.17), OperatingCosts(first=4200.0, growth=0.05))
+    c2 = Alternative("Refurbished lathe R-2", "challenger", 39000.0, 6,
+                     MarketValues(values=(30000.0, 24000.0, 19000.0, 15000.0, 12000.0, 9000.0)),
+                     OperatingCosts(first=7600.0, gradient=900.0))
+    return Study(title, 0.08, d, (c1, c2), study_period=period)
+
+
+def _text(pdf: bytes) -> str:
+    r = PdfReader(io.BytesIO(pdf))
+    return " ".join(" ".join((p.extract_text() or "").split()) for p in r.pages)
+
+
+def _norm(s: str) -> str:
+    return " ".join(s.split())
+
+
+@pytest.fixture(scope="module")
+def ids(tmp_path_factory):
+    """Two identities (RSA 2048), made once for the module."""
+    d = tmp_path_factory.mktemp("ids")
+    pw = d / "pass.txt"
+    pw.write_bytes(PASS + b"\n")
+    bad = d / "bad.txt"
+    bad.write_bytes(b"not-the-passphrase\n")
+    a = d / "priya.p12"
+    b = d / "tom.p12"
+    new_identity("Priya Natarajan", a, PASS, organisation="Harrowgate Fabrication Ltd.")
+    new_identity("Tom Ashworth", b, PASS, organisation="Harrowgate Fabrication Ltd.",
+                 email="tom@example.invalid")
+    return {"dir": d, "a": a, "b": b, "pw": pw, "bad": bad}
+
+
+@pytest.fixture(scope="module")
+def result():
+    return run_study(_study())
+
+
+@pytest.fixture(scope="module")
+def signed(ids, result, tmp_path_factory):
+    """A memo signed by the preparer (bytes)."""
+    pdf = render_memo(result, MemoOptions(prepared_by="Priya Natarajan"))
+    pdf, _ = sign_pdf_bytes(pdf, ids["a"], PASS, "prepared")
+    return pdf
+
+
+# ------------------------------------------------------------------- content
+def test_text_holds_recommendation_figures_cautions_and_names(result):
+    pdf = render_memo(result, MemoOptions(prepared_by="Priya Natarajan", currency="GBP"))
+    text = _text(pdf)
+    assert _norm(result.recommendation.reason) in text
+    for alt in result.alternatives:
+        assert alt.name in text
+        assert money(alt.annual_worth_at_economic_life) in text  # AW at ESL, signed
+        assert money(-alt.annual_worth_at_economic_life) in text  # EAC = -AW
+    for caution in caution_texts():
+        assert _norm(caution) in text
+    assert "EAC = -AW" in text
+    assert "GBP" in text
+    assert result.fingerprint in text  # footer
+    assert "page 1 of" in text
+    assert "Prepared" in text and "Reviewed" in text and "Approved" in text
+    assert "MARR" in text and "8%" in text
+    assert "spindle rebuild" in text  # every input, extra costs too
+
+
+def test_thousands_separators_and_minus_signs():
+    # hand calculation
+    assert money(-1234567.4) == "-1,234,567"
+    assert money(-0.3) == "0"
+    assert money(2500.0, 2) == "2,500.00"
+
+
+def test_metadata_and_page_sizes(result):
+    for size, width in (("A4", 595), ("Letter", 612)):  # ISO 216 / ANSI points, from memory
+        pdf = render_memo(result, MemoOptions(page_size=size, prepared_by="Priya Natarajan"))
+        r = PdfReader(io.BytesIO(pdf))
+        assert round(float(r.pages[0].mediabox.width)) == width
+        meta = r.metadata
+        assert meta.title == f"Decision memo: {result.study.title}"
+        assert meta.author == "Priya Natarajan"
+        assert meta.creator == "Tenure"
+        assert meta.subject
+        assert meta["/TenureFingerprint"] == result.fingerprint
+
+
+def test_study_period_options_are_listed():
+    res = run_study(_study(period=5, title="Millbrook lathe L-4, 5-year period"))
+    text = _text(render_memo(res))
+    assert "Study-period options" in text
+    feasible = [o for o in res.study_period_options if o.feasible]
+    assert feasible
+    for o in feasible:
+        assert money(o.annual_worth) in text
+    assert _norm(res.recommendation.reason) in text
+
+
+class _FakeRisk:
+    def to_json(self):
+        return {"probability_replace": 0.734,
+                "annual_worth_difference": {"p10": -1200.0, "p50": 2100.0, "p90": 5400.0},
+                "breakeven": {"CNC lathe Ouseburn-7.first_cost": 88123.0,
+                              "Lathe L-4 (2009).operating_costs.first": None}}
+
+
+class _FakeAT:
+    def __init__(self, aw, esl):
+        self.aw, self.esl = aw, esl
+
+    def to_json(self):
+        return {"annual_worth": self.aw, "economic_life": self.esl}
+
+
+def test_after_tax_and_risk_sections_are_read_defensively(result):
+    alts = tuple(dataclasses.replace(a, after_tax=_FakeAT([float(v) * 0.7 for v in a.annual_worth],
+                                                          a.economic_life))
+                 for a in result.alternatives)
+    res = dataclasses.replace(result, alternatives=alts, risk=_FakeRisk(),
+                              after_tax=_FakeAT([1.0], 1))
+    text = _text(render_memo(res))
+    assert "After-tax results" in text
+    assert "Risk" in text and "73.4%" in text
+    assert "88,123" in text and "does not flip within a tenfold range" in text
+    assert "5,400" in text
+    # an object whose to_json fails must not break the memo
+    class Broken:
+        def to_json(self):
+            raise RuntimeError("boom")
+    assert render_memo(dataclasses.replace(result, risk=Broken()))[:5] == b"%PDF-"
+
+
+def test_caution_texts_come_from_the_resource_file():
+    texts = caution_texts()
+    assert texts == parse_cautions(CAUTIONS_FILE.read_text(encoding="utf-8"))
+    joined = " ".join(texts).lower()
+    for needle in ("forecasts", "safety", "regulation", "tax adviser", "local codes",
+                   "licensed engineering"):
+        assert needle in joined
+
+
+# ------------------------------------------------------------------- attachment
+def test_attachment_round_trips_to_the_same_study(result):
+    pdf = render_memo(result)
+    r = PdfReader(io.BytesIO(pdf))
+    att = r.attachments
+    assert "study.tenure.json" in att
+    data = att["study.tenure.json"][0]
+    studies = parse_study_document(json.loads(data.decode("utf-8")))
+    assert len(studies) == 1
+    assert fingerprint(studies[0]) == result.fingerprint == fingerprint(result.study)
+    assert data.decode("utf-8") == dump_study_document([result.study])
+
+
+# ------------------------------------------------------------------- identities
+def test_identity_is_encrypted_and_private(ids):
+    from cryptography.hazmat.primitives.serialization import pkcs12
+
+    data = ids["a"].read_bytes()
+    with pytest.raises(ValueError):
+        pkcs12.load_key_and_certificates(data, None)
+    key, cert, _ = pkcs12.load_key_and_certificates(data, PASS)
+    assert key is not None and cert is not None
+    assert b"PRIVATE KEY" not in data
+    if os.name == "posix":
+        assert stat.S_IMODE(ids["a"].stat().st_mode) == 0o600
+    info = load_identity(ids["b"], PASS)
+    assert (info.common_name, info.organisation, info.email) == (
+        "Tom Ashworth", "Harrowgate Fabrication Ltd.", "tom@example.invalid")
+    ku = cert.extensions.get_extension_for_class(__import__(
+        "cryptography.x509", fromlist=["KeyUsage"]).KeyUsage).value
+    assert ku.digital_signature and ku.content_commitment
+
+
+def test_identity_new_cli_refuses_overwrite(ids, capsys):
+    rc = main(["identity", "new", "--name", "X", "--out", str(ids["a"]),
+               "--passphrase-file", str(ids["pw"])])
+    err = capsys.readouterr().err
+    assert rc == 2 and err.startswith("error: --out:") and err.count("\n") == 1
+
+
+# ------------------------------------------------------------------- signing & verify
+def test_signed_memo_verifies_intact_but_not_vouched_for(signed):
+    rep = verify_memo_bytes(signed, use_user_trust=False)
+    assert rep.integrity_ok and rep.attachment_matches
+    assert len(rep.signatures) == 1
+    s = rep.signatures[0]
+    assert s.signer == "Priya Natarajan" and s.role == "prepared"
+    assert s.intact and s.valid and s.changes_after == "none" and s.coverage == "entire file"
+    assert not s.trusted and "not vouched for" in s.trust_state
+    assert rep.exit_code() == 0 and rep.exit_code(require_trust=True) == 1
+    assert set(rep.empty_fields) == {"Reviewed", "Approved"}
+
+
+def test_second_signature_keeps_the_first_valid(ids, signed, tmp_path, capsys):
+    memo = tmp_path / "memo.pdf"
+    memo.write_bytes(signed)
+    rc = main(["sign", str(memo), "--sign", str(ids["b"]), "--passphrase-file", str(ids["pw"]),
+               "--role", "approved"])
+    assert rc == 0, capsys.readouterr().err
+    assert memo.read_bytes().startswith(signed)  # incremental: the first revision is untouched
+    rep = verify_memo(memo, use_user_trust=False)
+    assert rep.integrity_ok
+    first, second = rep.signatures
+    assert first.intact and first.valid and first.changes_after == "later signatures only"
+    assert second.signer == "Tom Ashworth" and second.role == "approved"
+    assert second.changes_after == "none"
+    # the same field cannot be signed twice
+    rc = main(["sign", str(memo), "--sign", str(ids["b"]), "--passphrase-file", str(ids["pw"]),
+               "--role", "approved"])
+    assert rc == 2
+    capsys.readouterr()
+    rc = main(["verify", str(memo), "--no-user-trust"])
+    out = capsys.readouterr().out
+    assert rc == 0
+    assert "Priya Natarajan" in out and "Tom Ashworth" in out
+    assert "attached study: matches the footer fingerprint" in out
+
+
+def test_trust_state(ids, signed, tmp_path, capsys):
+    memo = tmp_path / "memo.pdf"
+    memo.write_bytes(signed)
+    cert = tmp_path / "priya.pem"
+    assert main(["identity", "show", str(ids["a"]), "--passphrase-file", str(ids["pw"]),
+                 "--cert-out", str(cert)]) == 0
+    capsys.readouterr()
+    assert main(["verify", str(memo), "--no-user-trust", "--require-trust"]) == 1
+    assert "not vouched for" in capsys.readouterr().out
+    assert main(["verify", str(memo), "--no-user-trust", "--require-trust",
+                 "--trust", str(cert)]) == 0
+    out = capsys.readouterr().out
+    assert "trusted (this certificate is in your trust list)" in out
+    # someone else's certificate does not vouch for Priya
+    other = tmp_path / "tom.pem"
+    main(["identity", "show", str(ids["b"]), "--passphrase-file", str(ids["pw"]),
+          "--cert-out", str(other)])
+    capsys.readouterr()
+    assert main(["verify", str(memo), "--no-user-trust", "--require-trust",
+                 "--trust", str(other)]) == 1
+
+
+def test_one_changed_byte_fails_verification(signed, tmp_path, capsys):
+    i = signed.find(b"(Decision memo: ")  # the title, in the first (signed) revision
+    assert 0 < i < signed.rfind(b"/ByteRange")
+    bad = bytearray(signed)
+    bad[i + 1] = ord("d")  # "decision memo"
+    memo = tmp_path / "tampered.pdf"
+    memo.write_bytes(bytes(bad))
+    rc = main(["verify", str(memo), "--no-user-trust"])
+    out = capsys.readouterr().out
+    assert rc == 1
+    assert "BROKEN" in out and "digest mismatch" in out
+
+
+def test_change_after_signing_is_reported(signed, tmp_path, capsys):
+    from pyhanko.pdf_utils import generic
+    from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
+
+    w = IncrementalPdfFileWriter(io.BytesIO(signed))
+    page = w.root["/Pages"]["/Kids"][0].get_object()
+    page["/Rotate"] = generic.NumberObject(90)
+    w.update_container(page)
+    out = io.BytesIO()
+    w.write(out)
+    memo = tmp_path / "changed.pdf"
+    memo.write_bytes(out.getvalue())
+    assert main(["verify", str(memo), "--no-user-trust"]) == 1
+    assert "changed after" in capsys.readouterr().out
+
+
+def test_swapped_attachment_is_caught(result, tmp_path, capsys):
+    other = run_study(dataclasses.replace(_study(), marr=0.12))
+    pdf = render_memo(result)
+    # a memo whose metadata claims a different study than the one attached
+    pdf2 = render_memo(other)
+    from core.memo.verify import read_attachment
+    assert read_attachment(pdf) != read_attachment(pdf2)
+    rep = verify_memo_bytes(pdf.replace(result.fingerprint.encode(), other.fingerprint.encode()),
+                            use_user_trust=False)
+    assert not rep.attachment_matches and not rep.integrity_ok
+
+
+def test_not_a_pdf_and_not_a_memo_exit_2(tmp_path, capsys):
+    junk = tmp_path / "junk.pdf"
+    junk.write_text("hello")
+    assert main(["verify", str(junk)]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error: ") and "Traceback" not in err
+    from reportlab.pdfgen import canvas
+
+    plain = tmp_path / "plain.pdf"
+    c = canvas.Canvas(str(plain))
+    c.drawString(72, 720, "An ordinary PDF")
+    c.save()
+    assert main(["verify", str(plain)]) == 2
+    assert "not a Tenure memo" in capsys.readouterr().err
+    assert main(["verify", str(tmp_path / "missing.pdf")]) == 2
+
+
+def test_wrong_passphrase_is_one_clear_line(ids, tmp_path, capsys):
+    study = tmp_path / "s.json"
+    study.write_text(dump_study_document([_study()]), encoding="utf-8")
+    out = tmp_path / "m.pdf"
+    rc = main(["memo", str(study), "-o", str(out), "--sign", str(ids["a"]),
+               "--passphrase-file", str(ids["bad"])])
+    err = capsys.readouterr().err
+    assert rc == 2
+    assert err.startswith("error: --passphrase-file: ") and err.count("\n") == 1
+    assert "Traceback" not in err
+    assert not out.exists()
+    with pytest.raises(Exception, match="passphrase"):
+        sign_memo_file(out, ids["a"], b"nope")
+
+
+def test_memo_cli_renders_and_signs(ids, tmp_path, capsys):
+    study = tmp_path / "two.json"
+    study.write_text(dump_study_document([_study(), _study(5, "Millbrook lathe L-4, period")]),
+                     encoding="utf-8")
+    out = tmp_path / "m.pdf"
+    assert main(["memo", str(study), "-o", str(out)]) == 2  # two studies, none chosen
+    assert "--study" in capsys.readouterr().err
+    rc = main(["memo", str(study), "-o", str(out), "--study", "Millbrook lathe L-4",
+               "--sign", str(ids["a"]), "--passphrase-file", str(ids["pw"]),
+               "--page-size", "Letter", "--reviewed-by", "Tom Ashworth",
+               "--approved-by", "Dana Whitfield"])
+    assert rc == 0, capsys.readouterr().err
+    capsys.readouterr()
+    text = _text(out.read_bytes())
+    assert "Tom Ashworth" in text and "Dana Whitfield" in text and "Priya Natarajan" in text
+    assert main(["verify", str(out), "--json", "--no-user-trust"]) == 0
+    rep = json.loads(capsys.readouterr().out)
+    assert rep["integrity_ok"] and rep["signatures"][0]["signer"] == "Priya Natarajan"
+    assert rep["attachment_matches"]
+
+
+def test_issue_memo_reports_progress(ids, result, tmp_path):
+    seen = []
+    issued = issue_memo(result, tmp_path / "m.pdf", identity=ids["b"], passphrase=PASS,
+                        role="reviewed", progress=lambda p, t: seen.append(p))
+    assert issued.signed_by == "Tom Ashworth" and issued.role == "reviewed"
+    assert seen[0] < seen[-1] == 100
+    assert verify_memo(issued.path, use_user_trust=False).integrity_ok
