@@ -279,6 +279,10 @@ def run_study(study: Study) -> StudyResult:
                          study_period_options=tuple(options),
                          warnings=tuple(_warnings(study, arrays)),
                          fingerprint=fingerprint(study))
+    if study.inflation is not None:
+        from core import inflation
+
+        result = inflation.restate(study, result)  # report AW in the money the study states
     if study.tax is not None:
         from core import aftertax
 
