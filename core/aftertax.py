@@ -153,8 +153,8 @@ def cash_flow_table(k: int, price: float, S: np.ndarray, C: np.ndarray,
     >>> sc = dep.schedule(Depreciation("straight_line", years=2), 1000.0, 2)
     >>> tab = cash_flow_table(1, 1000.0, np.array([600.0, 300.0]), np.array([100.0, 100.0]),
     ...                       sc, 0.5, False)
-    >>> tab.net.round(2).tolist()
-    [-1000.0, 600.0]
+    >>> tab.net.round(2).tolist()   # year 1: -100 + 600 - 0.5(-100 - 500 + 600 - 500)
+    [-1000.0, 750.0]
     """
     D = np.asarray(sched.allowance, dtype=float)
     h = np.asarray(sched.disposal_fraction, dtype=float)
