@@ -1,0 +1,302 @@
+"""The "Issue memo" dialog: render and sign the decision memo of one study.
+
+``IssueMemoDialog(result, parent=None, workbook_path=None)``. The render and
+the signature run on a QThreadPool worker with a progress bar; the dialog
+then opens the PDF (QDesktopServices) and records it in the workbook's memo
+register when the workbook offers ``core.workbook.record_memo``. No economics
+here: the dialog calls :func:`core.memo.issue.issue_memo`.
+"""
+
+from __future__ import annotations
+
+import inspect
+import re
+from pathlib import Path
+from typing import Any
+
+from PySide6.QtCore import QObject, QRunnable, QThreadPool, QUrl, Signal, Slot
+from PySide6.QtGui import QDesktopServices
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QFileDialog,
+    QFormLayout,
+    QGroupBox,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QProgressBar,
+    QPushButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from core.memo.cautions import caution_texts
+from core.memo.render import MemoOptions
+from core.memo.sign import ROLES
+
+__all__ = ["IssueMemoDialog", "MemoJob", "record_in_workbook"]
+
+
+class MemoSignals(QObject):
+    progress = Signal(int, str)
+    done = Signal(object)  # IssuedMemo
+    failed = Signal(str)
+
+
+class MemoJob(QRunnable):
+    """Render (and sign) one memo off the GUI thread."""
+
+    def __init__(self, result: Any, out: str, options: MemoOptions, identity: str | None,
+                 passphrase: bytes | None, role: str) -> None:
+        super().__init__()
+        self.result, self.out, self.options = result, out, options
+        self.identity, self.passphrase, self.role = identity, passphrase, role
+        self.signals = MemoSignals()
+        self.setAutoDelete(False)
+
+    def run(self) -> None:
+        from core.errors import StudyError
+        from core.memo.issue import issue_memo
+
+        try:
+            issued = issue_memo(self.result, self.out, self.options, identity=self.identity,
+                                passphrase=self.passphrase, role=self.role,
+                                progress=lambda p, t: self.signals.progress.emit(p, t))
+        except StudyError as exc:  # MemoError included: a message the user can act on
+            self.signals.failed.emit(str(exc))
+        except Exception as exc:  # noqa: BLE001 - never let a worker die silently
+            self.signals.failed.emit(f"could not issue the memo ({type(exc).__name__}: {exc})")
+        else:
+            self.signals.done.emit(issued)
+        finally:
+            self.passphrase = None
+
+
+def record_in_workbook(workbook_path: str | None, issued: Any) -> str | None:
+    """Record the memo in the workbook's register, if the workbook API offers it.
+
+    Returns None when recorded (or nothing to do), else a short note why not.
+    Passes only the keyword arguments ``core.workbook.record_memo`` accepts.
+    """
+    if not workbook_path:
+        return None
+    try:
+        from core import workbook  # lazily: another helper's package
+    except Exception:  # noqa: BLE001
+        return "the workbook register is not available in this build"
+    fn = getattr(workbook, "record_memo", None)
+    if not callable(fn):
+        return "the workbook register is not available in this build"
+    meta = {
+        "memo_path": issued.path, "pdf_path": issued.path, "memo": issued.path,
+        "fingerprint": issued.fingerprint, "study_fingerprint": issued.fingerprint,
+        "title": issued.title, "study_title": issued.title,
+        "signer": issued.signed_by, "signed_by": issued.signed_by, "role": issued.role,
+        "certificate_sha256": issued.signer_cert_sha256,
+    }
+    try:
+        params = list(inspect.signature(fn).parameters.values())
+        named = [p for p in params[1:]
+                 if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+        kwargs = {p.name: meta[p.name] for p in named if p.name in meta}
+        if any(p.kind == p.VAR_KEYWORD for p in params):
+            for k in ("memo_path", "fingerprint", "title", "signer", "role"):
+                kwargs.setdefault(k, meta[k])
+        fn(workbook_path, **kwargs)
+    except Exception as exc:  # noqa: BLE001 - the memo is issued either way
+        return f"not recorded in the workbook ({exc})"
+    return None
+
+
+def _safe_name(title: str) -> str:
+    return re.sub(r"[^\w\- .]+", "_", title).strip() or "memo"
+
+
+class IssueMemoDialog(QDialog):
+    """Identity, passphrase, sign-off names, page size; issue on a worker; open the PDF."""
+
+    memoIssued = Signal(object)  # noqa: N815 - Qt naming
+
+    def __init__(self, result: Any, parent: QWidget | None = None,
+                 workbook_path: str | None = None) -> None:
+        super().__init__(parent)
+        self.result = result
+        self.workbook_path = workbook_path
+        self.issued: Any = None
+        self.error: str | None = None
+        self._job: MemoJob | None = None
+        self.setWindowTitle(f"Issue memo: {result.study.title}")
+        self.setMinimumWidth(560)
+
+        root = QVBoxLayout(self)
+        rec = QLabel(result.recommendation.reason)
+        rec.setWordWrap(True)
+        rec.setStyleSheet("font-weight: bold;")
+        root.addWidget(rec)
+
+        form = QFormLayout()
+        self.out_edit = QLineEdit(str(Path.home() / f"{_safe_name(result.study.title)} memo.pdf"))
+        form.addRow("Save memo as", self._with_browse(self.out_edit, self._browse_out))
+        self.page_size = QComboBox()
+        self.page_size.addItems(["A4", "Letter"])
+        form.addRow("Page size", self.page_size)
+        self.currency = QLineEdit("GBP")
+        form.addRow("Currency", self.currency)
+        self.organisation = QLineEdit()
+        form.addRow("Organisation", self.organisation)
+        self.names = {}
+        for role in ROLES:
+            edit = QLineEdit()
+            edit.setPlaceholderText("name (optional)")
+            self.names[role] = edit
+            form.addRow(f"{role.capitalize()} by", edit)
+        root.addLayout(form)
+
+        sign_box = QGroupBox("Sign now")
+        sign_box.setCheckable(True)
+        sign_box.setChecked(False)
+        self.sign_box = sign_box
+        sform = QFormLayout(sign_box)
+        self.identity_edit = QLineEdit()
+        self.identity_edit.setPlaceholderText("your identity file (.p12)")
+        sform.addRow("Identity", self._with_browse(self.identity_edit, self._browse_identity))
+        self.passphrase = QLineEdit()
+        self.passphrase.setEchoMode(QLineEdit.EchoMode.Password)
+        sform.addRow("Passphrase", self.passphrase)
+        self.role = QComboBox()
+        self.role.addItems(list(ROLES))
+        sform.addRow("Sign as", self.role)
+        root.addWidget(sign_box)
+
+        cautions = QLabel("<b>Cautions (printed in the memo):</b><ul>"
+                          + "".join(f"<li>{_html(c)}</li>" for c in caution_texts()) + "</ul>")
+        cautions.setWordWrap(True)
+        root.addWidget(cautions)
+
+        self.open_after = QCheckBox("Open the memo when it is written")
+        self.open_after.setChecked(True)
+        root.addWidget(self.open_after)
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 100)
+        self.progress.setVisible(False)
+        root.addWidget(self.progress)
+        self.status = QLabel("")
+        self.status.setWordWrap(True)
+        root.addWidget(self.status)
+
+        self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Cancel)
+        self.issue_button = self.buttons.addButton("Issue memo",
+                                                   QDialogButtonBox.ButtonRole.AcceptRole)
+        self.buttons.accepted.connect(self.start)
+        self.buttons.rejected.connect(self.reject)
+        root.addWidget(self.buttons)
+
+    # -- widgets
+    def _with_browse(self, edit: QLineEdit, slot) -> QWidget:
+        w = QWidget()
+        lay = QHBoxLayout(w)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(edit, 1)
+        b = QPushButton("Browse...")
+        b.clicked.connect(slot)
+        lay.addWidget(b)
+        return w
+
+    def _browse_out(self) -> None:
+        path, _ = QFileDialog.getSaveFileName(self, "Save memo as", self.out_edit.text(),
+                                              "PDF (*.pdf)")
+        if path:
+            self.out_edit.setText(path if path.lower().endswith(".pdf") else path + ".pdf")
+
+    def _browse_identity(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Identity", str(Path.home()),
+                                              "PKCS#12 identity (*.p12 *.pfx)")
+        if path:
+            self.identity_edit.setText(path)
+
+    # -- work
+    def options(self) -> MemoOptions:
+        names = {r: (e.text().strip() or None) for r, e in self.names.items()}
+        return MemoOptions(page_size=self.page_size.currentText(),
+                           currency=self.currency.text().strip() or "GBP",
+                           prepared_by=names["prepared"], reviewed_by=names["reviewed"],
+                           approved_by=names["approved"],
+                           organisation=self.organisation.text().strip() or None)
+
+    def _fail(self, message: str) -> None:
+        self.error = message
+        self.status.setText(f"<span style='color:#b00020'>{_html(message)}</span>")
+        self.progress.setVisible(False)
+        self._set_busy(False)
+
+    def _set_busy(self, busy: bool) -> None:
+        self.issue_button.setEnabled(not busy)
+        for w in (self.out_edit, self.sign_box, self.page_size):
+            w.setEnabled(not busy)
+
+    @Slot()
+    def start(self) -> None:
+        self.error = None
+        out = self.out_edit.text().strip()
+        if not out:
+            self._fail("Save memo as: choose a file name")
+            return
+        if not Path(out).parent.exists():
+            self._fail(f"Save memo as: folder {Path(out).parent} does not exist")
+            return
+        identity = passphrase = None
+        role = self.role.currentText()
+        if self.sign_box.isChecked():
+            identity = self.identity_edit.text().strip()
+            if not identity:
+                self._fail("Identity: choose your identity file (.p12)")
+                return
+            if not self.passphrase.text():
+                self._fail("Passphrase: enter the passphrase of your identity")
+                return
+            passphrase = self.passphrase.text().encode("utf-8")
+        self._set_busy(True)
+        self.progress.setValue(0)
+        self.progress.setVisible(True)
+        self.status.setText("Issuing the memo...")
+        job = MemoJob(self.result, out, self.options(), identity, passphrase, role)
+        job.signals.progress.connect(self._on_progress)
+        job.signals.done.connect(self._on_done)
+        job.signals.failed.connect(self._fail)
+        self._job = job
+        self.passphrase.clear()
+        QThreadPool.globalInstance().start(job)
+
+    @Slot(int, str)
+    def _on_progress(self, percent: int, text: str) -> None:
+        self.progress.setValue(percent)
+        self.status.setText(text)
+
+    @Slot(object)
+    def _on_done(self, issued: Any) -> None:
+        self.issued = issued
+        self.progress.setValue(100)
+        note = record_in_workbook(self.workbook_path, issued)
+        signed = f"signed as {issued.role} by {issued.signed_by}" if issued.signed_by \
+            else "not signed yet"
+        msg = f"Memo written: {issued.path} ({issued.pages} pages, {signed})."
+        if note:
+            msg += f" Note: {note}."
+        self.status.setText(_html(msg))
+        self._set_busy(False)
+        self.issue_button.setEnabled(False)
+        self.buttons.button(QDialogButtonBox.StandardButton.Cancel).setText("Close")
+        self.memoIssued.emit(issued)
+        if self.open_after.isChecked():
+            QDesktopServices.openUrl(QUrl.fromLocalFile(issued.path))
+
+    def wait_for_job(self, msecs: int = 30000) -> bool:
+        """Block until the worker is done (tests, scripted use)."""
+        return QThreadPool.globalInstance().waitForDone(msecs)
+
+
+def _html(text: str) -> str:
+    return (str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;"))
