@@ -18,6 +18,7 @@ from numpy.typing import ArrayLike, NDArray
 FloatArray = NDArray[np.float64]
 
 _ZERO = 1e-12
+_SERIES = 1e-4
 
 
 def _check_rate(i: ArrayLike) -> FloatArray:
@@ -116,10 +117,16 @@ def pg(i: ArrayLike, n: ArrayLike) -> FloatArray:
     """
     rate = _check_rate(i)
     periods = np.asarray(n, dtype=float)
-    zero = _zero_mask(rate)
-    safe = np.where(zero, 1.0, rate)
+    # The closed form cancels catastrophically as i -> 0 (error ~ eps/i^2), so below
+    # |i| = 1e-4 use the series sum (j-1)(1+i)^-j = n(n-1)/2 - i(n-1)n(n+1)/3
+    # + i^2(n-1)n(n+1)(n+2)/8 - ..., whose next term is O(i^3 n^5).
+    small = np.abs(rate) < _SERIES
+    safe = np.where(small, 1.0, rate)
     value = (pa(safe, periods) - periods * pf(safe, periods)) / safe
-    return np.where(zero, periods * (periods - 1.0) / 2.0 + 0.0 * safe, value)
+    near = np.where(small, rate, 0.0)
+    m = (periods - 1.0) * periods * (periods + 1.0)
+    series = periods * (periods - 1.0) / 2.0 - near * m / 3.0 + near**2 * m * (periods + 2.0) / 8.0
+    return np.where(small, series, value)
 
 
 def ag(i: ArrayLike, n: ArrayLike) -> FloatArray:
