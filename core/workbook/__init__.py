@@ -1,0 +1,50 @@
+"""Tenure workbooks (``.tenure``): one SQLite file per plant or fleet (DESIGN.md §7).
+
+Overview for the window, the memo helpers and the CLI (no Qt anywhere here)::
+
+    from core.workbook import Workbook, WorkbookError, WorkbookInUse
+
+    with Workbook.open("plant.tenure", write=True) as wb:   # write=False: read-only
+        wb.company                       # "Harrowgate Fabrication Ltd."
+        wb.sites()                       # [Site(name, location), ...]
+        wb.assets(site=None)             # [Asset(tag, description, site, asset_class,
+                                         #        in_service: date|None, original_cost), ...]
+        wb.asset("AC-101")               # one Asset (KeyError if unknown)
+        wb.years("AC-101")               # [2025, 2026]  every year with a study, ascending
+        wb.study("AC-101")               # core.estimates.Study of the latest year
+        wb.study("AC-101", 2025)         # last year's study stays readable
+        wb.record("AC-101", 2025)        # StudyRecord(tag, year, study, result_json: dict|None,
+                                         #             fingerprint, action, saved_at)
+        wb.save_study("AC-101", 2026, study, result_json=None)   # one transaction
+        wb.start_restudy("AC-101", 2027) # copies the latest year's estimates -> Study
+        wb.candidates(tag=None, asset_class=None)  # [Candidate(id, name, asset_class,
+                                                   #            alternative, tags)]
+        wb.history("AC-101")             # [HistoryRow(tag, age, amount, kind, ...)]
+        wb.add_history(rows)             # from core.history.ImportReport.accepted
+        wb.save_fit("AC-101", 2026, fit) # a trend fit and its data, kept with the study
+        wb.fits("AC-101", 2026)
+        wb.record_memo("AC-101", 2026, fingerprint, signer, path, time=None)
+        wb.memos(tag=None)               # [MemoRecord(...)]
+
+    Workbook.create("new.tenure", company="...")   # a new empty workbook (refuses to overwrite)
+    studies_from_workbook(path) -> list[Study]     # current year per asset (the CLI's loader)
+    record_memo(workbook_path, memo_path=..., fingerprint=..., signer=..., title=...)
+                                                   # module-level hook used by the memo dialog
+    autosave(workbook, path=None, pending=None)    # atomic sibling recovery copy
+    find_recovery(path) -> Path | None             # offer it after a crash
+    discard_recovery(path); restore_recovery(path)
+
+Files are checked before anything is written: a damaged, truncated or foreign
+file raises :class:`WorkbookError` (a ``core.errors.StudyError``, printed as
+``error: <file>: not a Tenure workbook (...)``) and is left byte-identical. A
+second process opening the same workbook for writing gets :class:`WorkbookInUse`
+(a lock file ``<name>.lock`` holds pid, host and time; a lock left by a dead
+process on this host is taken over). ``PRAGMA user_version`` is the schema
+version; older workbooks are migrated forward in one transaction on opening for
+writing; ``PRAGMA application_id`` marks the file as ours.
+
+Studies are stored as the canonical study JSON (DESIGN.md §5, via
+``core.studyfile.study_to_dict`` / ``parse_study``) with relational columns for
+the register, and the computed result (``StudyResult.to_json()``) alongside as a
+readable snapshot.
+"""
