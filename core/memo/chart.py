@@ -143,10 +143,13 @@ def aw_chart(
             ly = ey + 7
             while any(abs(ly - sy) < 9 and abs(ex - sx) < 60 for sx, sy in label_spots):
                 ly += 9
-            ly = min(ly, bottom + ph - 4) if ly > bottom + ph - 4 else ly
-            label_spots.append((ex, ly))
+            lx = ex
             anchor = "end" if ex > left + pw - 50 else ("start" if ex < left + 40 else "middle")
-            d.add(String(ex, ly, f"ESL {esl}", fontName="Helvetica-Bold", fontSize=7,
+            if ly > bottom + ph - 8:  # no room above: put the label beside the marker
+                ly = ey - 2.5
+                lx, anchor = (ex - 7, "end") if ex > left + 40 else (ex + 7, "start")
+            label_spots.append((lx, ly))
+            d.add(String(lx, ly, f"ESL {esl}", fontName="Helvetica-Bold", fontSize=7,
                          fillColor=color, textAnchor=anchor))
     # legend, two columns under the axis title
     col_w = pw / 2

@@ -384,16 +384,35 @@ class _Builder:
 
     def key_figures(self):
         r, s, cur = self.r, self.s, self.cur
+        ats = {a.name: _to_json(getattr(a, "after_tax", None)) for a in r.alternatives}
+        with_tax = all(isinstance(d, dict) and isinstance(d.get("economic_life"), int)
+                       for d in ats.values())
         self.h("Key figures")
         rows = [["Rank", "Alternative", "Role", f"Price ({cur})", "Max life",
                  "ESL", f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
-        for a in r.ranking:
-            rows.append([str(a.rank), Paragraph(escape(a.name), s["cell"]), a.role,
-                         money(a.price), yrs(a.max_life), yrs(a.economic_life),
-                         money(a.annual_worth_at_economic_life),
-                         money(-a.annual_worth_at_economic_life)])
+        if with_tax:
+            rows[0][5:] = ["ESL before tax", f"EAC before tax ({cur}/yr)", "ESL after tax",
+                           f"EAC after tax ({cur}/yr)"]
+        order = r.ranking
+        if with_tax and r.recommendation.basis == "after-tax":
+            order = sorted(r.alternatives, key=lambda a: ats[a.name].get("rank") or 0)
+        for n, a in enumerate(order, 1):
+            row = [str(n if with_tax else a.rank), Paragraph(escape(a.name), s["cell"]), a.role,
+                   money(a.price), yrs(a.max_life), yrs(a.economic_life)]
+            if with_tax:
+                d = ats[a.name]
+                at_esl = d.get("annual_worth_at_economic_life")
+                row += [money(-a.annual_worth_at_economic_life), yrs(d["economic_life"]),
+                        money(-at_esl) if isinstance(at_esl, (int, float)) else "-"]
+            else:
+                row += [money(a.annual_worth_at_economic_life),
+                        money(-a.annual_worth_at_economic_life)]
+            rows.append(row)
         w = self.w
         widths = [0.06 * w, 0.25 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w, 0.14 * w, 0.14 * w]
+        if with_tax:
+            widths = [0.05 * w, 0.23 * w, 0.1 * w, 0.1 * w, 0.09 * w, 0.09 * w, 0.12 * w,
+                      0.09 * w, 0.13 * w]
         self.add(_table(rows, widths, numeric_from=3,
                         extra=[("ALIGN", (0, 0), (0, -1), "CENTER")]))
         rec = r.recommendation
@@ -510,49 +529,97 @@ class _Builder:
         r, s, cur = self.r, self.s, self.cur
         per_alt = [(a, _to_json(getattr(a, "after_tax", None))) for a in r.alternatives]
         per_alt = [(a, d) for a, d in per_alt if d]
-        top = _to_json(r.after_tax)
+        top = _to_json(r.after_tax) or {}
         if not per_alt and not top:
             return
         self.h("After-tax results")
         tax = r.study.tax
+        bits = []
         if tax is not None:
-            self.add(_p(f"Effective tax rate {pct(tax.rate)}; after-tax MARR "
-                        f"{pct(tax.after_tax_marr)}. Year j flow: -(1-t)(C_j+X_j) + t D_j; "
-                        "disposal at k: S_k - t(S_k - BV_k); the defender today is valued at "
-                        "its forgone after-tax sale proceeds MV - t(MV - BV_now).", s["small"]))
+            bits.append(f"Effective tax rate {pct(tax.rate)}; after-tax MARR "
+                        f"{pct(tax.after_tax_marr)}.")
+        if isinstance(top.get("rate_used"), (int, float)):
+            bits.append(f"Rate used for after-tax AW {pct(top['rate_used'])}"
+                        + (f" (discounting depreciation at {pct(top['discount_rate'])})"
+                           if isinstance(top.get("discount_rate"), (int, float))
+                           and top.get("discount_rate") != top.get("rate_used") else "") + ".")
+        if top.get("money"):
+            bits.append(f"After-tax AW is in {top['money']}.")
+        bits.append("Year j flow: -(1-t)(C_j+X_j) + t D_j; disposal at k: S_k - t(S_k - BV_k); "
+                    "the defender today is valued at its forgone after-tax sale proceeds "
+                    "MV - t(MV - BV_now).")
+        self.add(_p(" ".join(bits), s["small"]))
+        if isinstance(top.get("conventions"), str) and top["conventions"]:
+            self.add(_p(top["conventions"], s["small"]))
         if per_alt:
-            n = max(len(d.get("annual_worth") or []) for _, d in per_alt)
-            if n:
-                rows = [["Alternative", "ESL", f"AW at ESL ({cur}/yr)"]
-                        + [f"k={k}" for k in range(1, n + 1)]]
-                for a, d in per_alt:
-                    aw = list(d.get("annual_worth") or [])
-                    esl = d.get("economic_life")
-                    at_esl = aw[esl - 1] if isinstance(esl, int) and 0 < esl <= len(aw) else None
-                    rows.append([Paragraph(escape(a.name), s["cell"]), yrs(esl), money(at_esl)]
-                                + [money(v) for v in aw] + [""] * (n - len(aw)))
-                if n <= 8:
-                    rest = (self.w * 0.62) / n
-                    widths = [self.w * 0.18, self.w * 0.08, self.w * 0.12] + [rest] * n
-                    self.add(_table(rows, widths, numeric_from=1))
-                else:
-                    self.add(_table([r_[:3] for r_ in rows],
-                                    [self.w * 0.4, self.w * 0.2, self.w * 0.25], numeric_from=1))
-                    self.add(_p("After-tax AW by year of retention (" + cur + "/yr):",
-                                s["small"]))
-                    for a, d in per_alt:
-                        self.add(_p(f"{a.name}: " + ", ".join(
-                            f"{k}: {money(v)}" for k, v in enumerate(d.get("annual_worth") or [], 1)),
-                            s["small"]))
+            rows = [["Alternative", "Depreciation", f"Tax basis ({cur})",
+                     f"Book value today ({cur})", f"Outlay today ({cur})", "ESL after tax",
+                     f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
             for a, d in per_alt:
-                other = {k: v for k, v in d.items() if k not in ("annual_worth", "economic_life")}
-                if other:
-                    self.add(_p(f"{a.name}: " + _fmt_value(other), s["small"]))
-        if top:
-            rows = [[_p(k, s["cell"]), _p(v, s["cell"])] for k, v in _generic_rows(top)]
-            if rows:
-                self.add(Spacer(1, 3), _table([["Item", "Value"]] + rows,
-                                              [0.3 * self.w, 0.7 * self.w], numeric_from=None))
+                aw = list(d.get("annual_worth") or [])
+                esl = d.get("economic_life")
+                at_esl = d.get("annual_worth_at_economic_life")
+                if at_esl is None and isinstance(esl, int) and 0 < esl <= len(aw):
+                    at_esl = aw[esl - 1]
+                rows.append([Paragraph(escape(a.name), s["cell"]),
+                             str(d.get("depreciation_method") or "-").replace("_", " "),
+                             money(d.get("tax_basis")), money(d.get("book_value_today")),
+                             money(d.get("initial_outlay")),
+                             yrs(esl) if isinstance(esl, int) else "-", money(at_esl),
+                             money(-at_esl) if isinstance(at_esl, (int, float)) else ""])
+            w = self.w
+            self.add(_table(rows, [0.22 * w, 0.12 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w,
+                                   0.125 * w, 0.125 * w], numeric_from=2))
+            for a, d in per_alt:
+                aw = list(d.get("annual_worth") or [])
+                if not aw:
+                    continue
+                esl = d.get("economic_life") if isinstance(d.get("economic_life"), int) else 0
+                dep_ = list(d.get("depreciation") or [])
+                bv = list(d.get("book_value_at_disposal") or [])
+                disp = list(d.get("after_tax_disposal") or [])
+                rows = [["k", f"Depreciation D_k ({cur})", f"Book value BV_k ({cur})",
+                         f"After-tax disposal ({cur})", f"After-tax AW_k ({cur}/yr)",
+                         f"EAC_k ({cur}/yr)"]]
+                for k, v in enumerate(aw):
+                    rows.append([str(k + 1) + (" ESL" if k + 1 == esl else ""),
+                                 money(_at(dep_, k)), money(_at(bv, k)), money(_at(disp, k)),
+                                 money(v), money(-v)])
+                extra = []
+                if esl:
+                    extra = [("BACKGROUND", (0, esl), (-1, esl), colors.HexColor("#fff2cc")),
+                             ("FONT", (0, esl), (-1, esl), "Helvetica-Bold", 7.5)]
+                tbl = _table(rows, [self.w / 6] * 6, numeric_from=1, extra=extra)
+                head = _p(f"{a.name}, after tax", s["h3"])
+                self.add(KeepTogether([head, tbl]) if len(aw) <= 25 else head, )
+                if len(aw) > 25:
+                    self.add(tbl)
+        opts = top.get("study_period_options")
+        if isinstance(opts, list) and opts:
+            rows = [["Keep defender", "Then challenger", "For", f"AW after tax ({cur}/yr)",
+                     "Feasible / note"]]
+            for o in opts:
+                if not isinstance(o, dict):
+                    continue
+                rows.append([yrs(o.get("defender_years")),
+                             Paragraph(escape(str(o.get("challenger") or "(none)")), s["cell"]),
+                             yrs(o.get("challenger_years")) if o.get("challenger") else "-",
+                             money(o.get("annual_worth")),
+                             Paragraph(escape("yes" if o.get("feasible") else
+                                              f"no: {o.get('reason', '')}"), s["cell"])])
+            w = self.w
+            self.add(_p("Study-period options after tax", s["h3"]),
+                     _table(rows, [0.14 * w, 0.28 * w, 0.1 * w, 0.18 * w, 0.3 * w],
+                            numeric_from=None, extra=[("ALIGN", (3, 0), (3, -1), "RIGHT")]))
+        known = {"tax_rate", "after_tax_marr", "rate_used", "discount_rate", "money",
+                 "conventions", "alternatives", "recommendation", "study_period_options",
+                 "before_tax_study_period_options"}
+        rest = [[_p(_label(k), s["cell"]), _p(_fmt_value(v, k), s["cell"])]
+                for k, v in top.items()
+                if k not in known and isinstance(v, (str, int, float, bool)) and v is not None]
+        if rest:
+            self.add(Spacer(1, 3), _table([["Item", "Value"]] + rest,
+                                          [0.3 * self.w, 0.7 * self.w], numeric_from=None))
 
     def risk(self):
         r, s, cur = self.r, self.s, self.cur
