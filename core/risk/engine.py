@@ -1,0 +1,291 @@
+"""The replacement decision for a whole batch of input values at once.
+
+``Model(study)`` holds the study's estimates; ``Model.evaluate(values, size)``
+takes, for any subset of the uncertain-input addresses (DESIGN.md §5), an array
+of ``size`` values each (the rest stay at their estimates) and returns every
+alternative's AW schedule, every ESL and the decision for each of the ``size``
+cases, without a Python loop over them.
+
+How an input moves the cash flows:
+
+- ``<name>.first_cost`` / ``<name>.market_value`` set the price P.  When that
+  alternative's market values come from a decline rate d they follow it,
+  S_k = P(1-d)^k; explicit market values stay as estimated.
+- ``<name>.market_values.decline_rate`` sets d in S_k = P(1-d)^k.
+- ``<name>.operating_costs.first`` / ``.gradient`` / ``.growth`` set C_1, G or g
+  in C_j = C_1 + (j-1)G or C_j = C_1(1+g)^(j-1); extra costs stay as estimated.
+- ``marr`` sets the interest rate (through ``core.inflation`` when the study has
+  inflation).
+
+The decision is that of ``core.study.decide``: without a study period, replace
+when the best challenger's AW at its ESL beats the defender's AW at its ESL by
+more than a cent (challengers ranked on AW at ESL, ties to the first listed).
+With a study period T, every "keep the defender j years, then challenger c for
+T-j years" option is valued, AW = [PW_D(j) + (P/F,i,j) PW_c(T-j)](A/P,i,T),
+the best feasible option wins (ties to the earlier option, as in ``decide``)
+and "replace" means the winner starts the challenger now (j = 0).
+
+``difference`` is the figure the risk analysis reports: without a study period
+the best challenger's AW at its ESL minus the defender's AW at its ESL; with a
+study period the best "replace now" option's AW minus the best "keep at least a
+year" option's AW.  Replace exactly when it is above a cent (up to the rounding
+to cents of the two sides).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from core.estimates import Alternative, Study
+from core.factors import af, ap, pa, pf
+from core.studyfile import split_address
+
+
+def annual_worth_batch(price: np.ndarray | float, market_values: np.ndarray,
+                       costs: np.ndarray, rate: np.ndarray | float) -> np.ndarray:
+    """AW_k = -[P(A/P,i,k) - S_k(A/F,i,k)] - [sum_{j<=k} (C_j+X_j)(P/F,i,j)](A/P,i,k).
+
+    The AW part of ``core.annual_worth.annual_worth_schedule`` (same equation, same
+    sign convention: costs positive in, AW negative out) without the extra
+    schedules, so that a scalar rate computes each factor once for the whole
+    batch.  ``price`` (...), ``market_values`` and ``costs`` (..., n) or (n,),
+    ``rate`` scalar or (...); returns (..., n).
+
+    >>> annual_worth_batch(np.array([10000.0, 20000.0]), np.array([7000.0, 5000.0]),
+    ...                    np.array([1000.0, 1500.0]), 0.10).round(2).tolist()
+    [[-5000.0, -4619.05], [-16000.0, -10380.95]]
+    """
+    i = np.asarray(rate, dtype=float)
+    n = np.shape(market_values)[-1]
+    years = np.arange(1, n + 1, dtype=float)
+    i_col = i[..., None]
+    cap = ap(i_col, years)
+    sink = af(i_col, years)
+    disc = pf(i_col, years)
+    P_col = np.asarray(price, dtype=float)[..., None]
+    return market_values * sink - P_col * cap - np.cumsum(costs * disc, axis=-1) * cap
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """The batch result: every array has ``size`` rows."""
+
+    annual_worth: dict[str, np.ndarray]        # name -> (size, n)
+    economic_life: dict[str, np.ndarray]       # name -> (size,) ints 1..n
+    annual_worth_at_esl: dict[str, np.ndarray]  # name -> (size,)
+    best_challenger: np.ndarray                 # (size,) index into study.challengers
+    replace: np.ndarray                         # (size,) bool
+    difference: np.ndarray                      # (size,) see module docstring (NaN if undefined)
+
+
+class _Inflation:
+    """The study's inflation conversion, applied to batches.
+
+    ``core.inflation.before_tax_arrays`` is probed with unit cash flows to get the
+    year-by-year factors it applies to P, S_k and C_j + X_j (it is linear in them),
+    and checked against the real estimates; the rate comes from
+    ``core.inflation.before_tax_rate`` for each MARR value.
+    """
+
+    def __init__(self, study: Study) -> None:
+        from dataclasses import replace
+
+        from core import inflation
+        from core.estimates import MarketValues, OperatingCosts
+
+        self.study = study
+        self.module = inflation
+        self.factors: dict[str, tuple[float, np.ndarray, np.ndarray]] = {}
+        for alt in study.alternatives:
+            n = alt.max_life
+            probe = replace(alt, price=1.0, market_values=MarketValues(values=(1.0,) * n),
+                            operating_costs=OperatingCosts(values=(1.0,) * n), extra_costs=(),
+                            depreciation=None)
+            fp_, fs, fc = inflation.before_tax_arrays(study, probe)
+            self.factors[alt.name] = (float(fp_), np.asarray(fs, float), np.asarray(fc, float))
+            price, s, c = inflation.before_tax_arrays(study, alt)
+            ok = (np.isclose(price, alt.price * float(fp_))
+                  and np.allclose(s, alt.market_value_array() * fs, rtol=1e-9, atol=1e-6)
+                  and np.allclose(c, alt.cost_array() * fc, rtol=1e-9, atol=1e-6))
+            if not ok:
+                raise NotImplementedError(
+                    "the inflation conversion is not a year-by-year scaling; the risk "
+                    "analysis cannot vectorise it")
+        self._base_rate = float(inflation.before_tax_rate(study))
+
+    def rate(self, marr: np.ndarray | float) -> np.ndarray | float:
+        if np.ndim(marr) == 0 and float(marr) == self.study.marr:
+            return self._base_rate
+        from dataclasses import replace
+
+        flat = np.atleast_1d(np.asarray(marr, dtype=float))
+        unique, inverse = np.unique(flat, return_inverse=True)
+        rates = np.array([float(self.module.before_tax_rate(replace(self.study, marr=float(m))))
+                          for m in unique])
+        out = rates[inverse]
+        return out.reshape(np.shape(marr)) if np.ndim(marr) else float(out[0])
+
+
+class Model:
+    """A study prepared for batch evaluation (see the module docstring)."""
+
+    def __init__(self, study: Study) -> None:
+        self.study = study
+        self.names = [a.name for a in study.alternatives]
+        self.inflation = _Inflation(study) if study.inflation is not None else None
+        self._extras = {a.name: a.extra_cost_array() for a in study.alternatives}
+        self._years = {a.name: np.arange(1, a.max_life + 1, dtype=float)
+                       for a in study.alternatives}
+        self._options = self._study_period_options() if study.study_period else None
+
+    # ------------------------------------------------------------------ inputs
+    def estimate(self, address: str) -> float:
+        """The study's own value of an uncertain input."""
+        alt, suffix = split_address(address, self.study)
+        if alt is None:
+            return float(self.study.marr)
+        return float(_get(alt, suffix))
+
+    def _arrays(self, alt: Alternative, values: Mapping[str, np.ndarray]
+                ) -> tuple[np.ndarray | float, np.ndarray, np.ndarray]:
+        name = alt.name
+        price_key = f"{name}.{'market_value' if alt.role == 'defender' else 'first_cost'}"
+        price = values.get(price_key, alt.price)
+        years = self._years[name]
+        mv = alt.market_values
+        if mv.values is not None:
+            s = alt.market_value_array()
+        else:
+            d = values.get(f"{name}.market_values.decline_rate", mv.decline_rate or 0.0)
+            s = np.asarray(price, float)[..., None] * np.power(
+                1.0 - np.asarray(d, float)[..., None], years)
+        oc = alt.operating_costs
+        if oc.values is not None:
+            c = alt.operating_cost_array()
+        else:
+            first = np.asarray(values.get(f"{name}.operating_costs.first", oc.first or 0.0),
+                               float)[..., None]
+            if oc.growth is not None:
+                g = np.asarray(values.get(f"{name}.operating_costs.growth", oc.growth),
+                               float)[..., None]
+                c = first * np.power(1.0 + g, years - 1.0)
+            else:
+                grad = np.asarray(values.get(f"{name}.operating_costs.gradient",
+                                             oc.gradient or 0.0), float)[..., None]
+                c = first + (years - 1.0) * grad
+        c = c + self._extras[name]
+        if self.inflation is not None:
+            fp_, fs, fc = self.inflation.factors[name]
+            price, s, c = np.asarray(price, float) * fp_, s * fs, c * fc
+        return price, s, c
+
+    # ------------------------------------------------------------------ decision
+    def evaluate(self, values: Mapping[str, np.ndarray], size: int) -> Outcome:
+        """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed)."""
+        values = {k: np.asarray(v, dtype=float) for k, v in values.items()}
+        marr = values.get("marr", self.study.marr)
+        rate = self.inflation.rate(marr) if self.inflation is not None else marr
+        aw: dict[str, np.ndarray] = {}
+        esl: dict[str, np.ndarray] = {}
+        at_esl: dict[str, np.ndarray] = {}
+        for alt in self.study.alternatives:
+            price, s, c = self._arrays(alt, values)
+            schedule = np.broadcast_to(annual_worth_batch(price, s, c, rate),
+                                       (size, alt.max_life))
+            idx = np.argmax(np.round(schedule, 2), axis=-1)
+            aw[alt.name] = schedule
+            esl[alt.name] = idx + 1
+            at_esl[alt.name] = np.take_along_axis(schedule, idx[:, None], axis=-1)[:, 0]
+        d_name = self.study.defender.name
+        ch_aw = np.stack([at_esl[c.name] for c in self.study.challengers], axis=-1)
+        best = np.argmax(np.round(ch_aw, 2), axis=-1)
+        c_best = np.take_along_axis(ch_aw, best[:, None], axis=-1)[:, 0]
+        if self._options is None:
+            replace = np.round(c_best, 2) > np.round(at_esl[d_name], 2)
+            difference = c_best - at_esl[d_name]
+        else:
+            replace, difference = self._period_decision(aw, rate, size)
+        return Outcome(aw, esl, at_esl, best, replace, difference)
+
+    def _study_period_options(self) -> list[tuple[int, int | None, int]]:
+        """Feasible (j, challenger index or None, T-j) in the order of core.study."""
+        study = self.study
+        period = int(study.study_period or 0)
+        out: list[tuple[int, int | None, int]] = []
+        for j in range(0, min(study.defender.max_life, period) + 1):
+            rest = period - j
+            if rest == 0:
+                out.append((j, None, 0))
+                continue
+            for k, ch in enumerate(study.challengers):
+                if rest <= ch.max_life:
+                    out.append((j, k, rest))
+        return out
+
+    def _period_decision(self, aw: dict[str, np.ndarray], rate: np.ndarray | float,
+                         size: int) -> tuple[np.ndarray, np.ndarray]:
+        study = self.study
+        period = int(study.study_period or 0)
+        i = np.broadcast_to(np.asarray(rate, dtype=float), (size,))
+        d_aw = aw[study.defender.name]
+        values = []
+        for j, k, rest in self._options or []:
+            pw_d = d_aw[:, j - 1] * pa(i, j) if j else np.zeros(size)
+            if k is None:
+                value = pw_d * ap(i, period)
+            else:
+                c_aw = aw[study.challengers[k].name][:, rest - 1]
+                value = (pw_d + pf(i, j) * c_aw * pa(i, rest)) * ap(i, period)
+            values.append(value)
+        table = np.stack(values, axis=-1)
+        top = np.argmax(np.round(table, 2), axis=-1)
+        now = np.array([j == 0 and k is not None for j, k, _ in self._options or []])
+        replace = now[top]
+        if now.any() and (~now).any():
+            difference = table[:, now].max(axis=-1) - table[:, ~now].max(axis=-1)
+        else:
+            difference = np.full(size, np.nan)
+        return replace, difference
+
+
+def _get(alt: Alternative, suffix: str) -> float:
+    if suffix in ("first_cost", "market_value"):
+        return alt.price
+    if suffix == "market_values.decline_rate":
+        return float(alt.market_values.decline_rate or 0.0)
+    oc = alt.operating_costs
+    return float({"operating_costs.first": oc.first, "operating_costs.gradient": oc.gradient,
+                  "operating_costs.growth": oc.growth}[suffix] or 0.0)
+
+
+def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
+    """A copy of ``study`` with some inputs set (addresses as in DESIGN.md §5), without its
+    uncertainty block.  The scalar, one-study counterpart of ``Model.evaluate``, used by the
+    tests' naive reference loop and to check breakevens with ``core.study.run_study``.
+    """
+    from dataclasses import replace
+
+    alts = {a.name: a for a in study.alternatives}
+    marr = study.marr
+    for address, value in values.items():
+        alt, suffix = split_address(address, study)
+        value = float(value)
+        if alt is None:
+            marr = value
+            continue
+        current = alts[alt.name]
+        if suffix in ("first_cost", "market_value"):
+            current = replace(current, price=value)
+        elif suffix == "market_values.decline_rate":
+            current = replace(current, market_values=replace(current.market_values,
+                                                             decline_rate=value))
+        else:
+            field = suffix.split(".")[1]
+            current = replace(current, operating_costs=replace(current.operating_costs,
+                                                               **{field: value}))
+        alts[alt.name] = current
+    return replace(study, marr=marr, defender=alts[study.defender.name],
+                   challengers=tuple(alts[c.name] for c in study.challengers), uncertainty=None)
