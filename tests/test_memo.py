@@ -376,3 +376,39 @@ def test_issue_memo_reports_progress(ids, result, tmp_path):
     assert issued.signed_by == "Tom Ashworth" and issued.role == "reviewed"
     assert seen[0] < seen[-1] == 100
     assert verify_memo(issued.path, use_user_trust=False).integrity_ok
+
+
+def test_unsigned_metadata_change_after_signing_fails(signed, tmp_path, capsys):
+    from pyhanko.pdf_utils import generic
+    from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
+
+    w = IncrementalPdfFileWriter(io.BytesIO(signed))
+    ref = w.trailer.raw_get("/Info")
+    ref.get_object()["/Title"] = generic.TextStringObject("Decision memo: something else")
+    w.mark_update(ref)
+    out = io.BytesIO()
+    w.write(out)
+    memo = tmp_path / "meta.pdf"
+    memo.write_bytes(out.getvalue())
+    assert main(["verify", str(memo), "--no-user-trust"]) == 1
+    assert "unsigned changes were appended after the last signature" in capsys.readouterr().out
+
+
+def test_after_tax_memo_prints_after_tax_figures():
+    from core.estimates import Depreciation, Tax
+
+    st = dataclasses.replace(
+        _study(title="Millbrook lathe L-4, after tax"), tax=Tax(0.25, 0.06),
+        defender=dataclasses.replace(_study().defender, depreciation=Depreciation(
+            "straight_line", basis=40000.0, years=8, age=4)),
+        challengers=tuple(dataclasses.replace(c, depreciation=Depreciation("macrs", macrs_class=7))
+                          for c in _study().challengers))
+    res = run_study(st)
+    assert res.recommendation.basis == "after-tax"
+    text = _text(render_memo(res))
+    assert "After-tax results" in text
+    assert _norm(res.recommendation.reason) in text
+    for alt in res.alternatives:
+        at = alt.after_tax.to_json()
+        assert money(-at["annual_worth_at_economic_life"]) in text  # after-tax EAC at ESL
+    assert "25%" in text and "6%" in text

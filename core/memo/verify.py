@@ -337,10 +337,21 @@ def verify_memo_bytes(
             changes = "later signatures only"
         else:
             changes = "other changes"
+        if lvl == ModificationLevel.LTA_UPDATES and cov != SignatureCoverageLevel.ENTIRE_FILE:
+            changes = ("metadata or validation data only" if n == last_index
+                       else "later signatures and metadata only")
         if changes == "other changes":
             sp.append("the document was changed after this signature")
-        elif n == last_index and changes == "later signatures only":
-            sp.append("form fields were filled after the last signature, unsigned")
+        elif n == last_index and cov != SignatureCoverageLevel.ENTIRE_FILE:
+            sp.append(f"unsigned changes were appended after the last signature ({changes})")
+        # the fingerprint the signer saw must be the one the memo shows now
+        try:
+            signed_info = r.get_historical_resolver(es.signed_revision).trailer_view["/Info"]
+            signed_fp = signed_info.get_object().get(INFO_FINGERPRINT_KEY)
+        except Exception:  # noqa: BLE001
+            signed_fp = None
+        if signed_fp is not None and str(signed_fp) != footer_fp:
+            sp.append("the study fingerprint in the metadata was changed after this signature")
         if st.docmdp_ok is False:
             sp.append("changes after signing break the document's signing policy")
         if st.trusted:
