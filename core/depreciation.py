@@ -12,8 +12,8 @@ Conventions
   from the rule -- 200 % declining balance for classes 3-10, 150 % for 15 and
   20, switching to straight line in the first year straight line over the
   remaining recovery period gives at least as much; half a year in year 1 and
-  in year N+1.  The results agree with IRS Publication 946, Table A-1 to
-  0.01 percentage point (the test holds them to it).  Disposal in recovery
+  in year N+1; each year's percentage rounded as Publication 946 prints it,
+  which reproduces IRS Publication 946, Table A-1 (the test holds them to it).  Disposal in recovery
   year y < N+1 allows only half of year y's allowance (the half-year rule in
   the year of disposal).
 - Declining balance at rate r per year on the opening book value, switching
@@ -28,6 +28,7 @@ practice.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from decimal import ROUND_HALF_UP, Decimal
 from functools import cache
 
 import numpy as np
@@ -40,48 +41,57 @@ MACRS_CLASSES = (3, 5, 7, 10, 15, 20)
 
 
 @cache
-def _macrs_rates(macrs_class: int) -> tuple[float, ...]:
+def _macrs_rates(macrs_class: int, exact: bool = False) -> tuple[float, ...]:
     n = macrs_class
-    factor = 1.5 if n in (15, 20) else 2.0
+    factor = Decimal("1.5") if n in (15, 20) else Decimal(2)
     db = factor / n
-    remaining = 1.0
+    # Publication 946 prints percentages to 2 decimals (3 for 20-year property); rounding each
+    # year's percentage half-up and carrying the rounded balance reproduces Table A-1 exactly.
+    step = Decimal("0.001") if n == 20 else Decimal("0.01")
+    remaining = Decimal(100)
     rates = []
     switched = False
     for year in range(1, n + 2):
-        if year == 1:
-            d = 0.5 * db * remaining
-        elif year == n + 1:
+        if year == n + 1:
             d = remaining
         else:
-            life_left = n + 1.5 - year      # recovery years left at the start of this tax year
-            sl = remaining / life_left
-            dbd = db * remaining
-            if switched or sl >= dbd:
-                switched = True
-                d = sl
+            if year == 1:
+                d = db * remaining / 2
             else:
-                d = dbd
+                sl = remaining / (Decimal(n) + Decimal("1.5") - year)  # years left
+                dbd = db * remaining
+                switched = switched or sl >= dbd
+                d = sl if switched else dbd
+            if not exact:
+                d = d.quantize(step, rounding=ROUND_HALF_UP)
         rates.append(d)
         remaining -= d
-    return tuple(rates)
+    return tuple(float(r / 100) for r in rates)
 
 
-def macrs_rates(macrs_class: int) -> FloatArray:
+def macrs_rates(macrs_class: int, exact: bool = False) -> FloatArray:
     """MACRS GDS half-year-convention allowance fractions r_1..r_{N+1} for class N.
 
-    Generated from the rule (200 % DB for 3-10 years, 150 % DB for 15 and 20,
-    switch to straight line, half-year in years 1 and N+1); the fractions sum
-    to 1.  Units: fraction of the unadjusted basis per tax year.
-    Reference: IRS Publication 946, Table A-1 (which prints them rounded).
+    Generated from the rule: 200 % declining balance for classes 3-10 (150 %
+    for 15 and 20) on the remaining basis, switching to straight line over
+    the recovery years left (N + 1.5 - y at the start of year y) once that is
+    at least as large; half a year in year 1; year N+1 takes what is left.
+    Each year's percentage is rounded half-up to the precision Publication 946
+    prints (0.01 %, 0.001 % for 20-year property) and the rounded balance is
+    carried, which gives Table A-1 digit for digit; ``exact=True`` skips the
+    rounding.  The fractions sum to 1.  Units: fraction of the unadjusted
+    basis per tax year.  Reference: IRS Publication 946, Table A-1.
 
-    >>> (macrs_rates(5) * 100).round(2).tolist()
-    [20.0, 32.0, 19.2, 11.52, 11.52, 5.76]
+    >>> (macrs_rates(3) * 100).round(2).tolist()
+    [33.33, 44.45, 14.81, 7.41]
+    >>> (macrs_rates(3, exact=True) * 100).round(3).tolist()
+    [33.333, 44.444, 14.815, 7.407]
     >>> len(macrs_rates(20)), round(float(macrs_rates(20).sum()), 12)
     (21, 1.0)
     """
     if macrs_class not in MACRS_CLASSES:
         raise ValueError(f"MACRS class must be one of {MACRS_CLASSES}, not {macrs_class}")
-    return np.array(_macrs_rates(int(macrs_class)))
+    return np.array(_macrs_rates(int(macrs_class), bool(exact)))
 
 
 def straight_line(basis: ArrayLike, years: int, salvage: ArrayLike = 0.0,
@@ -141,7 +151,7 @@ def macrs(basis: ArrayLike, macrs_class: int, horizon: int | None = None) -> Flo
     Units: currency units per tax year.  Reference: IRS Publication 946, Table A-1.
 
     >>> macrs(10000.0, 3).round(2).tolist()
-    [3333.33, 4444.44, 1481.48, 740.74]
+    [3333.0, 4445.0, 1481.0, 741.0]
     """
     r = macrs_rates(macrs_class)
     h = len(r) if horizon is None else horizon
@@ -186,7 +196,7 @@ def schedule(dep: Depreciation, basis: ArrayLike, horizon: int) -> DepreciationS
     (6000.0, [2000.0, 2000.0, 2000.0, 0.0])
     >>> s = schedule(Depreciation("macrs", macrs_class=3), 10000.0, 2)
     >>> s.disposal_fraction.tolist(), s.book_value_at_disposal().round(2).tolist()
-    ([0.5, 0.5], [8333.33, 4444.44])
+    ([0.5, 0.5], [8333.5, 4444.5])
     """
     b = np.asarray(basis, dtype=float)
     age = dep.age

@@ -32,11 +32,14 @@ TABLE_A1 = {
 @pytest.mark.parametrize("cls", sorted(TABLE_A1))
 def test_macrs_matches_publication_946_table_a1(cls: int) -> None:
     # IRS Publication 946 Table A-1, to 0.01 percentage point (the table prints rounded values)
-    ours = macrs_rates(cls) * 100.0
     table = np.array(TABLE_A1[cls])
-    assert len(ours) == cls + 1 == len(table)
-    assert np.all(np.abs(ours - table) <= 0.01 + 1e-9), (ours.round(3), table)
-    assert ours.sum() == pytest.approx(100.0, abs=1e-9)
+    for exact in (False, True):
+        ours = macrs_rates(cls, exact=exact) * 100.0
+        assert len(ours) == cls + 1 == len(table)
+        assert np.all(np.abs(ours - table) <= 0.01 + 1e-9), (exact, ours.round(3), table)
+        assert ours.sum() == pytest.approx(100.0, abs=1e-9)
+    # the rounded generation (the default) gives the printed table digit for digit
+    assert np.all(np.abs(macrs_rates(cls) * 100.0 - table) < 1e-9)
 
 
 def test_macrs_vectorised_over_bases() -> None:
@@ -66,10 +69,10 @@ def test_declining_balance_switches_to_straight_line() -> None:
 
 def test_defender_schedule_continues_from_its_age() -> None:
     # hand calculation: 7-year MACRS on 100,000, 3 years claimed (14.29+24.49+17.49 = 56.27%
-    # by Table A-1; exact rule 56.268%), so BV_0 = 43,731.78; next allowance is year 4's 12.49%
+    # by Table A-1), so BV_0 = 43,730; the next allowance is year 4's 12.49% = 12,490
     s = schedule(Depreciation("macrs", basis=100000.0, age=3, macrs_class=7), 100000.0, 6)
-    assert float(s.book_value_0) == pytest.approx(100000.0 * (1 - 0.56268), abs=5.0)
-    assert s.allowance[0] == pytest.approx(12495.0, abs=5.0)
+    assert float(s.book_value_0) == pytest.approx(43730.0, abs=1e-6)
+    assert s.allowance[0] == pytest.approx(12490.0, abs=1e-6)
     # tax years 4..9: years 4..7 are < N+1 = 8 (half-year rule on disposal), 8 is N+1, 9 is past
     assert s.disposal_fraction.tolist() == [0.5, 0.5, 0.5, 0.5, 1.0, 1.0]
     assert s.allowance[5] == 0.0
@@ -80,11 +83,12 @@ def test_defender_schedule_continues_from_its_age() -> None:
 def test_macrs_half_year_rule_in_disposal_year() -> None:
     # IRS Publication 946 (half-year convention, year of disposal): sold in recovery year 2 of a
     # 3-year asset, only half of year 2's 44.45% is allowed.  Hand calculation on 10,000:
-    # D_1 = 3,333.33, D_2 = 4,444.44 / 2 = 2,222.22, BV_2 = 10,000 - 5,555.56 = 4,444.44
+    # D_1 = 3,333, D_2 = 4,445 / 2 = 2,222.50, BV_2 = 10,000 - 5,555.50 = 4,444.50;
+    # sold in year 1: half of 3,333, BV_1 = 8,333.50
     s = schedule(Depreciation("macrs", macrs_class=3), 10000.0, 4)
     bv = s.book_value_at_disposal()
-    assert bv[1] == pytest.approx(4444.44, abs=0.01)
-    assert bv[0] == pytest.approx(10000.0 - 3333.33 / 2, abs=0.01)
+    assert bv[1] == pytest.approx(4444.50, abs=1e-6)
+    assert bv[0] == pytest.approx(8333.50, abs=1e-6)
     # disposal in year N+1 = 4 takes the whole (already half-year) allowance: BV 0
     assert bv[3] == pytest.approx(0.0, abs=1e-9)
 
