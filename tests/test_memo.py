@@ -412,3 +412,69 @@ def test_after_tax_memo_prints_after_tax_figures():
         at = alt.after_tax.to_json()
         assert money(-at["annual_worth_at_economic_life"]) in text  # after-tax EAC at ESL
     assert "25%" in text and "6%" in text
+
+
+def _org_identity(tmp_path):
+    """An organisation CA and a signer certificate it issued, as PKCS#12 with the chain."""
+    import datetime as dt
+
+    from cryptography import x509
+    from cryptography.hazmat.primitives import hashes, serialization
+    from cryptography.hazmat.primitives.asymmetric import rsa
+    from cryptography.hazmat.primitives.serialization import pkcs12
+    from cryptography.x509.oid import NameOID
+
+    now = dt.datetime.now(dt.UTC)
+    ca_key = rsa.generate_private_key(public_exponent=65537, key_size=2048)
+    ca_name = x509.Name([x509.NameAttribute(NameOID.COMMON_NAME, "Harrowgate Signing CA"),
+                         x509.NameAttribute(NameOID.ORGANIZATION_NAME,
+                                            "Harrowgate Fabrication Ltd.")])
+    ca = (x509.CertificateBuilder().subject_name(ca_name).issuer_name(ca_name)
+          .public_key(ca_key.public_key()).serial_number(x509.random_serial_number())
+          .not_valid_before(now - dt.timedelta(days=1)).not_valid_after(now + dt.timedelta(days=30))
+          .add_extension(x509.BasicConstraints(ca=True, path_length=0), critical=True)
+          .add_extension(x509.KeyUsage(False, False, False, False, False, True, True, False, False),
+                         critical=True)
+          .sign(ca_key, hashes.SHA256()))
+    key = rsa.generate_private_key(public_exponent=65537, key_size=2048)
+    name = x509.Name([x509.NameAttribute(NameOID.COMMON_NAME, "Ravi Kestrel"),
+                      x509.NameAttribute(NameOID.ORGANIZATION_NAME, "Harrowgate Fabrication Ltd.")])
+    cert = (x509.CertificateBuilder().subject_name(name).issuer_name(ca_name)
+            .public_key(key.public_key()).serial_number(x509.random_serial_number())
+            .not_valid_before(now - dt.timedelta(days=1)).not_valid_after(now + dt.timedelta(days=30))
+            .add_extension(x509.KeyUsage(True, True, False, False, False, False, False, False, False),
+                           critical=True)
+            .sign(ca_key, hashes.SHA256()))
+    p12 = tmp_path / "ravi.p12"
+    p12.write_bytes(pkcs12.serialize_key_and_certificates(
+        b"ravi", key, cert, [ca], serialization.BestAvailableEncryption(PASS)))
+    ca_pem = tmp_path / "ca.pem"
+    ca_pem.write_bytes(ca.public_bytes(serialization.Encoding.PEM))
+    return p12, ca_pem
+
+
+def test_organisation_issued_identity_chains_to_its_ca(result, tmp_path, capsys):
+    p12, ca_pem = _org_identity(tmp_path)
+    pdf, res = sign_pdf_bytes(render_memo(result), p12, PASS, "approved")
+    assert res.signer == "Ravi Kestrel"
+    memo = tmp_path / "m.pdf"
+    memo.write_bytes(pdf)
+    assert main(["verify", str(memo), "--no-user-trust", "--require-trust",
+                 "--trust", str(ca_pem)]) == 0
+    out = capsys.readouterr().out
+    assert "trusted (chains to Harrowgate Signing CA, in your trust list)" in out
+    rep = verify_memo(memo, use_user_trust=False)
+    assert not rep.signatures[0].trusted and "self-signed" not in rep.signatures[0].trust_state
+
+
+def test_user_trust_folder(signed, ids, tmp_path, monkeypatch):
+    from core.memo import verify as verify_mod
+    from core.memo.identity import certificate_pem
+
+    folder = tmp_path / "trusted"
+    folder.mkdir()
+    (folder / "priya.pem").write_bytes(certificate_pem(ids["a"], PASS))
+    (folder / "junk.pem").write_text("not a certificate")  # skipped, not fatal
+    monkeypatch.setattr(verify_mod, "user_trust_dir", lambda: folder)
+    assert verify_memo_bytes(signed).all_trusted
+    assert not verify_memo_bytes(signed, use_user_trust=False).all_trusted

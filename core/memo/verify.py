@@ -366,7 +366,7 @@ def verify_memo_bytes(
             trust_state = "not vouched for (does not chain to a trusted certificate)"
         else:
             trust_state = "not vouched for (no trusted certificate given)"
-        if cert.self_signed and not st.trusted:
+        if cert.self_issued and not st.trusted:
             trust_state += "; self-signed"
         reports.append(SignatureReport(
             field=fname, role=_ROLE_OF_FIELD.get(fname), signer=name, organisation=org,
