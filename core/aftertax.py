@@ -324,6 +324,43 @@ def rates(study: Study) -> tuple[float, float, float]:
     return i, i_f, report
 
 
+def decision_annual_worth(study: Study, alt: Alternative, price: ArrayLike | None = None,
+                          market_values: ArrayLike | None = None,
+                          costs: ArrayLike | None = None) -> FloatArray:
+    """After-tax AW_k (..., n) on the decision basis (constant money at the real after-tax MARR).
+
+    For batch use (risk trials): ``price`` (...), ``market_values`` and
+    ``costs`` (C_j + X_j) (..., n) are in the money the study states and
+    default to the estimates.  A challenger without an explicit tax basis
+    depreciates its (sampled) first cost.  ESL = ``core.annual_worth.economic_life``.
+
+    >>> from core.estimates import Alternative, Depreciation, MarketValues, OperatingCosts, Tax
+    >>> c = Alternative("C", "challenger", 10000.0, 1, MarketValues(values=(6000.0,)),
+    ...                 OperatingCosts(values=(1000.0,)), depreciation=Depreciation(
+    ...                 "straight_line", years=2))
+    >>> s = Study("s", 0.1, c, (c,), tax=Tax(0.25, 0.10))
+    >>> decision_annual_worth(s, c, [10000.0, 12000.0]).round(2).tolist()
+    [[-4750.0], [-6450.0]]
+    """
+    decision, discount, _ = rates(study)
+    P = np.asarray(alt.price if price is None else price, dtype=float)
+    S = alt.market_value_array() if market_values is None else np.asarray(market_values, float)
+    C = alt.cost_array() if costs is None else np.asarray(costs, dtype=float)
+    if study.inflation is not None and study.inflation.estimates == "constant":
+        S, C = infl.to_then_current(S, study.inflation.rate), \
+            infl.to_then_current(C, study.inflation.rate)
+    dep_spec = alt.depreciation
+    if dep_spec is None:
+        raise ValueError(f"{alt.name} has no depreciation")
+    basis = dep_spec.basis if dep_spec.basis is not None else P
+    sched = dep.schedule(dep_spec, basis, alt.max_life)
+    t = float(study.tax.rate) if study.tax is not None else 0.0
+    s = after_tax_annual_worth(P, S, C, sched.allowance, sched.book_value_0, t, discount,
+                               disposal_fraction=sched.disposal_fraction,
+                               defender=alt.role == "defender")
+    return s.present_worth * ap(decision, np.arange(1, alt.max_life + 1))
+
+
 def _alternative(study: Study, alt: Alternative, t: float, discount: float, decision: float,
                  report: float) -> tuple[AfterTaxAlternative, dict[str, Any]]:
     price, S, C = infl.then_current_arrays(study, alt)

@@ -199,3 +199,16 @@ def test_text_and_json_blocks() -> None:
     assert [len(tab["rows"]) for tab in at["cash_flows"]] == [2, 3]
     assert js["recommendation"]["basis"] == "after-tax"
     assert js["before_tax_recommendation"]["basis"] == "before-tax"
+
+
+def test_decision_annual_worth_matches_analyse() -> None:
+    # common practice, no source: the batch helper reproduces the study's own after-tax AW
+    study = _rich_study()
+    study = dataclasses.replace(study, tax=Tax(0.3, 0.06))
+    r = run_study(study)
+    from core.aftertax import decision_annual_worth
+
+    for alt in study.alternatives:
+        aw = decision_annual_worth(study, alt, np.array([alt.price, alt.price]))
+        assert aw.shape == (2, alt.max_life)
+        assert aw[1] == pytest.approx(r.alternative(alt.name).after_tax.annual_worth_constant)
