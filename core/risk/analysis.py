@@ -477,7 +477,7 @@ def decision_rule(study: Study) -> str:
 
 def run_risk(study: Study, trials: int | None = None, seed: int | None = None,
              progress: Progress | None = None, cancelled: Cancelled | None = None,
-             best_challenger: str | None = None) -> RiskResult:
+             best_challenger: str | None = None, chunk: int | None = None) -> RiskResult:
     """Everything of the risk analysis.  ``progress`` runs 0..1 (the simulation takes the
     first 90%); ``cancelled()`` aborts with ``RiskCancelled``."""
     unc = study.uncertainty
@@ -489,7 +489,8 @@ def run_risk(study: Study, trials: int | None = None, seed: int | None = None,
     except NotImplementedError as exc:
         raise StudyError("$.uncertainty", str(exc)) from None
     sim = simulate(study, trials, seed, None if progress is None else
-                   (lambda f: progress(0.9 * f)), cancelled, model=model)
+                   (lambda f: progress(0.9 * f)), cancelled, chunk=chunk,
+                   model=model)
     if cancelled is not None and cancelled():
         raise RiskCancelled("cancelled during the sensitivity analysis")
     base = model.evaluate({}, 1)

@@ -115,8 +115,13 @@ class _Inflation:
                     "the inflation conversion is not a year-by-year scaling; the risk "
                     "analysis cannot vectorise it")
         self._base_rate = float(inflation.before_tax_rate(study))
+        probe = study.marr + 0.0123
+        self._identity = (self._base_rate == study.marr and float(
+            inflation.before_tax_rate(replace(study, marr=probe))) == probe)
 
     def rate(self, marr: np.ndarray | float) -> np.ndarray | float:
+        if self._identity:
+            return marr
         if np.ndim(marr) == 0 and float(marr) == self.study.marr:
             return self._base_rate
         from dataclasses import replace
