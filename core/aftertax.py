@@ -384,6 +384,19 @@ def _alternative(study: Study, alt: Alternative, t: float, discount: float, deci
     return out, {"price": price, "S": S, "C": C, "sched": sched}
 
 
+def _conventions(study: Study) -> str:
+    text = ("One effective tax rate on every flow (a loss is a credit against other income); "
+            "gain or loss on disposal taxed at that rate; MACRS half-year rule in the year of "
+            "disposal; straight line and declining balance use the full-year convention.")
+    if study.inflation is not None:
+        assert study.tax is not None
+        i, i_f, _ = rates(study)
+        text += (f" With inflation, depreciation is fixed in then-current money: after-tax flows "
+                 f"are built in then-current money and discounted at the after-tax market rate "
+                 f"{i_f:.2%} (real after-tax MARR {i:.2%}).")
+    return text
+
+
 def analyse(study: Study, result: StudyResult) -> StudyResult:
     """Add the after-tax study to ``result`` and make its recommendation the one given.
 
@@ -425,10 +438,7 @@ def analyse(study: Study, result: StudyResult) -> StudyResult:
             for name, b in built.items()}
     summary = AfterTaxResult(
         tax_rate=t, after_tax_marr=float(study.tax.after_tax_marr), rate=decision,
-        discount_rate=discount, money=infl.money_label(study), description=infl.describe(study)
-        if study.inflation is not None else
-        "Flows after tax at the effective rate; MACRS half-year rule in the year of disposal; "
-        "straight line and declining balance use the full-year convention.",
+        discount_rate=discount, money=infl.money_label(study), description=_conventions(study),
         alternatives=tuple(alts[a.name] for a in study.alternatives), recommendation=rec,
         before_tax_recommendation=result.before_tax_recommendation,
         study_period_options=tuple(options),
