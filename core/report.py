@@ -59,6 +59,10 @@ def format_study(result: StudyResult) -> str:
            f"MARR {study.marr:.2%} per year (rate used {result.rate:.4%}); end-of-year cash flows; "
            "AW is signed (costs negative), EAC = -AW.",
            f"Study period: {'none' if study.study_period is None else f'{study.study_period} years'}"]
+    if study.inflation is not None:
+        from core.inflation import describe
+
+        out.append(describe(study))
     for alt in result.alternatives:
         out += ["", _alternative_table(alt)]
     out += ["", "Ranking at each economic service life:",
