@@ -48,3 +48,29 @@ Studies are stored as the canonical study JSON (DESIGN.md §5, via
 the register, and the computed result (``StudyResult.to_json()``) alongside as a
 readable snapshot.
 """
+
+from core.workbook.files import WorkbookError, WorkbookInUse, check_file, lock_path
+from core.workbook.model import (
+    Asset,
+    Candidate,
+    HistoryRow,
+    MemoRecord,
+    Site,
+    StudyRecord,
+    Workbook,
+    record_memo,
+    studies_from_workbook,
+)
+from core.workbook.recovery import (
+    autosave,
+    discard_recovery,
+    find_recovery,
+    recovery_path,
+    restore_recovery,
+)
+from core.workbook.schema import APPLICATION_ID, SCHEMA_VERSION
+
+__all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "Asset", "Candidate", "HistoryRow", "MemoRecord",
+           "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse", "autosave",
+           "check_file", "discard_recovery", "find_recovery", "lock_path", "record_memo",
+           "recovery_path", "restore_recovery", "studies_from_workbook"]

@@ -1,0 +1,632 @@
+"""The plain-Python workbook model (no Qt): :class:`Workbook` and its records."""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as _dt
+import json
+import os
+import sqlite3
+import weakref
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from core.errors import StudyError
+from core.estimates import Alternative, Study
+from core.studyfile import alternative_to_dict, fingerprint, parse_study, study_to_dict
+from core.workbook.files import (
+    WorkbookError,
+    WriterLock,
+    _uri,
+    check_file,
+)
+from core.workbook.schema import SCHEMA_VERSION, create_v1, migrate
+
+HISTORY_KINDS = ("operating", "maintenance", "resale")
+
+#: Writable workbooks open in this process, by resolved path (for :func:`record_memo`).
+_OPEN_WRITERS: weakref.WeakValueDictionary[str, Workbook] = weakref.WeakValueDictionary()
+
+
+def _now() -> str:
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
+
+
+def _dumps(obj: Any) -> str:
+    return json.dumps(obj, ensure_ascii=False, allow_nan=False, sort_keys=True)
+
+
+@dataclass(frozen=True)
+class Site:
+    """A plant or yard of the company."""
+
+    name: str
+    location: str = ""
+
+
+@dataclass(frozen=True)
+class Asset:
+    """One machine in the register. ``original_cost`` is for tax only (sunk before tax)."""
+
+    tag: str
+    description: str
+    site: str
+    asset_class: str = ""
+    in_service: _dt.date | None = None
+    original_cost: float | None = None
+    notes: str = ""
+
+    def age_in(self, year: int) -> int | None:
+        """Whole years in service at the end of calendar ``year`` (None without a date).
+
+        >>> Asset("P-1", "pump", "Millbrook", in_service=_dt.date(2019, 7, 1)).age_in(2024)
+        5
+        """
+        return None if self.in_service is None else year - self.in_service.year
+
+
+@dataclass(frozen=True)
+class StudyRecord:
+    """The stored study of one asset-year with its result snapshot."""
+
+    tag: str
+    year: int
+    study: Study
+    result_json: dict | None
+    fingerprint: str
+    action: str | None
+    saved_at: str
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A challenger model that may serve several assets of a class."""
+
+    id: int
+    name: str
+    asset_class: str
+    alternative: Alternative
+    tags: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class HistoryRow:
+    """One imported cost-history amount: year of age ``age`` (1 = first year in service)."""
+
+    tag: str
+    age: int
+    amount: float
+    kind: str = "operating"
+    date: str | None = None
+    source: str = ""
+    source_row: int | None = None
+
+
+@dataclass(frozen=True)
+class MemoRecord:
+    """One issued decision memo in the register."""
+
+    id: int
+    tag: str | None
+    year: int | None
+    fingerprint: str
+    signer: str
+    signed_at: str
+    file_name: str
+    title: str = ""
+
+
+@dataclass
+class _State:
+    depth: int = 0
+
+
+def _parse_alternative(obj: dict, where: str) -> Alternative:
+    """Parse a §5 challenger object through the public study parser."""
+    holder = {"title": "candidate", "marr": 0.1,
+              "defender": {"name": " defender", "market_value": 1, "max_life": 1,
+                           "market_values": {"decline_rate": 0}, "operating_costs": {"first": 0}},
+              "challengers": [obj]}
+    try:
+        return parse_study(holder, where).challengers[0]
+    except StudyError as exc:
+        raise WorkbookError(where, exc.message) from None
+
+
+class Workbook:
+    """An open ``.tenure`` workbook. Use :meth:`open` or :meth:`create`, ideally in ``with``.
+
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "w.tenure"
+    >>> with Workbook.create(p, company="Harrowgate Fabrication Ltd.") as wb:
+    ...     wb.add_site(Site("Millbrook"))
+    ...     wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
+    >>> with Workbook.open(p) as wb:
+    ...     [a.tag for a in wb.assets(site="Millbrook")], wb.schema_version
+    (['P-7'], 2)
+    """
+
+    def __init__(self, path: Path, conn: sqlite3.Connection, write: bool,
+                 lock: WriterLock | None, version: int) -> None:
+        self.path = path
+        self._conn = conn
+        self.writable = write
+        self._lock = lock
+        self.schema_version = version
+        self._state = _State()
+        if write:
+            _OPEN_WRITERS[str(path.resolve())] = self
+
+    # ------------------------------------------------------------------ opening
+    @staticmethod
+    def _connect(path: Path, write: bool) -> sqlite3.Connection:
+        conn = sqlite3.connect(_uri(path, "rw" if write else "ro"), uri=True, timeout=5.0,
+                               isolation_level=None, check_same_thread=False)
+        conn.execute("PRAGMA foreign_keys = ON")
+        if write:
+            conn.execute("PRAGMA journal_mode = DELETE")
+            conn.execute("PRAGMA synchronous = FULL")
+        return conn
+
+    @classmethod
+    def open(cls, path: str | Path, write: bool = False) -> Workbook:
+        """Open an existing workbook, checked first; ``write=True`` takes the writer's lock.
+
+        An older schema is migrated forward (one transaction) when opened for
+        writing; read-only opening never changes the file.
+        """
+        path = Path(path)
+        version = check_file(path)
+        if not write:
+            return cls(path, cls._connect(path, False), False, None, version)
+        lock = WriterLock(path)
+        lock.acquire()
+        try:
+            conn = cls._connect(path, True)
+            try:
+                conn.execute("BEGIN IMMEDIATE")
+            except sqlite3.OperationalError as exc:
+                conn.close()
+                raise WorkbookError(path, f"in use: the database is locked ({exc})") from None
+            try:
+                version = int(conn.execute("PRAGMA user_version").fetchone()[0])
+                if version < SCHEMA_VERSION:
+                    version = migrate(conn, version)
+                conn.execute("COMMIT")
+            except BaseException:
+                conn.execute("ROLLBACK")
+                conn.close()
+                raise
+        except BaseException:
+            lock.release()
+            raise
+        return cls(path, conn, True, lock, version)
+
+    @classmethod
+    def create(cls, path: str | Path, company: str = "", *, schema: int | None = None) -> Workbook:
+        """Create a new workbook at ``path`` (refused if the file exists), open for writing.
+
+        ``schema`` (tests only) stops the migrations at that version.
+        """
+        path = Path(path)
+        if path.exists():
+            raise WorkbookError(path, "already exists; not overwritten")
+        lock = WriterLock(path)
+        lock.acquire()
+        try:
+            conn = sqlite3.connect(path, isolation_level=None)
+            try:
+                conn.execute("PRAGMA journal_mode = DELETE")
+                conn.execute("BEGIN IMMEDIATE")
+                create_v1(conn)
+                conn.execute("INSERT INTO meta VALUES ('company', ?), ('created', ?), "
+                             "('application', 'Tenure')", (company, _now()))
+                target = SCHEMA_VERSION if schema is None else schema
+                version = migrate(conn, 1) if target == SCHEMA_VERSION else _migrate_to(
+                    conn, target)
+                conn.execute("COMMIT")
+            finally:
+                conn.close()
+        except BaseException:
+            lock.release()
+            with contextlib.suppress(OSError):
+                path.unlink()
+            raise
+        lock.release()
+        return cls.open(path, write=True) if version == SCHEMA_VERSION else cls(
+            path, cls._connect(path, True), True, None, version)
+
+    def close(self) -> None:
+        """Close the database and release the writer's lock (idempotent)."""
+        if self._conn is not None:
+            self._conn.close()
+            self._conn = None  # type: ignore[assignment]
+        if self._lock is not None:
+            self._lock.release()
+            self._lock = None
+        _OPEN_WRITERS.pop(str(self.path.resolve()), None)
+
+    def __enter__(self) -> Workbook:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def __del__(self) -> None:  # pragma: no cover - best effort
+        with contextlib.suppress(Exception):
+            self.close()
+
+    # ------------------------------------------------------------------ transactions
+    @contextlib.contextmanager
+    def transaction(self) -> Iterator[sqlite3.Connection]:
+        """One all-or-nothing write (``BEGIN IMMEDIATE`` ... ``COMMIT``); nests.
+
+        A crash or exception inside leaves the previous committed state.
+        """
+        if not self.writable:
+            raise WorkbookError(self.path, "opened read-only")
+        if self._conn is None:
+            raise WorkbookError(self.path, "workbook is closed")
+        if self._state.depth:
+            self._state.depth += 1
+            try:
+                yield self._conn
+            finally:
+                self._state.depth -= 1
+            return
+        try:
+            self._conn.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as exc:
+            raise WorkbookError(self.path, f"in use: the database is locked ({exc})") from None
+        self._state.depth = 1
+        try:
+            yield self._conn
+        except BaseException:
+            self._state.depth = 0
+            self._conn.execute("ROLLBACK")
+            raise
+        self._state.depth = 0
+        self._conn.execute("COMMIT")
+
+    def _q(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
+        if self._conn is None:
+            raise WorkbookError(self.path, "workbook is closed")
+        cur = self._conn.execute(sql, params)
+        return cur.fetchall()
+
+    # ------------------------------------------------------------------ meta
+    @property
+    def company(self) -> str:
+        rows = self._q("SELECT value FROM meta WHERE key = 'company'")
+        return rows[0][0] if rows else ""
+
+    def meta(self) -> dict[str, str]:
+        return dict(self._q("SELECT key, value FROM meta"))
+
+    def set_meta(self, key: str, value: str) -> None:
+        with self.transaction() as c:
+            c.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, value))
+
+    def integrity_check(self) -> str:
+        """``PRAGMA integrity_check`` ("ok" when sound)."""
+        return "; ".join(r[0] for r in self._q("PRAGMA integrity_check"))
+
+    # ------------------------------------------------------------------ sites and assets
+    def sites(self) -> list[Site]:
+        return [Site(*r) for r in self._q("SELECT name, location FROM sites ORDER BY name")]
+
+    def add_site(self, site: Site) -> None:
+        with self.transaction() as c:
+            c.execute("INSERT OR REPLACE INTO sites VALUES (?, ?)", (site.name, site.location))
+
+    def _asset(self, row: Sequence[Any]) -> Asset:
+        date = _dt.date.fromisoformat(row[4]) if row[4] else None
+        notes = row[6] if len(row) > 6 else ""
+        return Asset(row[0], row[1], row[2], row[3], date, row[5], notes)
+
+    def _asset_cols(self) -> str:
+        base = "tag, description, site, asset_class, in_service, original_cost"
+        return base + (", notes" if self.schema_version >= 2 else "")
+
+    def assets(self, site: str | None = None) -> list[Asset]:
+        """Every asset, by site then tag; only one site's with ``site``."""
+        sql = f"SELECT {self._asset_cols()} FROM assets"
+        rows = (self._q(sql + " WHERE site = ? ORDER BY tag", (site,)) if site is not None
+                else self._q(sql + " ORDER BY site, tag"))
+        return [self._asset(r) for r in rows]
+
+    def asset(self, tag: str) -> Asset:
+        rows = self._q(f"SELECT {self._asset_cols()} FROM assets WHERE tag = ?", (tag,))
+        if not rows:
+            raise KeyError(tag)
+        return self._asset(rows[0])
+
+    def add_asset(self, asset: Asset) -> None:
+        """Add or update an asset (its site is added when new)."""
+        with self.transaction() as c:
+            c.execute("INSERT OR IGNORE INTO sites (name) VALUES (?)", (asset.site,))
+            values = [asset.tag, asset.description, asset.site, asset.asset_class,
+                      asset.in_service.isoformat() if asset.in_service else None,
+                      asset.original_cost]
+            if self.schema_version >= 2:
+                c.execute("INSERT INTO assets (tag, description, site, asset_class, in_service, "
+                          "original_cost, notes) VALUES (?, ?, ?, ?, ?, ?, ?) "
+                          "ON CONFLICT(tag) DO UPDATE SET description = excluded.description, "
+                          "site = excluded.site, asset_class = excluded.asset_class, "
+                          "in_service = excluded.in_service, "
+                          "original_cost = excluded.original_cost, notes = excluded.notes",
+                          [*values, asset.notes])
+            else:
+                c.execute("INSERT INTO assets (tag, description, site, asset_class, in_service, "
+                          "original_cost) VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT(tag) DO UPDATE "
+                          "SET description = excluded.description, site = excluded.site, "
+                          "asset_class = excluded.asset_class, in_service = excluded.in_service, "
+                          "original_cost = excluded.original_cost", values)
+
+    # ------------------------------------------------------------------ studies
+    def years(self, tag: str) -> list[int]:
+        """Every year with a study of ``tag``, ascending."""
+        return [r[0] for r in self._q("SELECT year FROM studies WHERE tag = ? ORDER BY year",
+                                      (tag,))]
+
+    def current_year(self, tag: str) -> int | None:
+        years = self.years(tag)
+        return years[-1] if years else None
+
+    def record(self, tag: str, year: int | None = None) -> StudyRecord:
+        """The stored study of ``tag`` in ``year`` (default: its latest year)."""
+        if year is None:
+            year = self.current_year(tag)
+            if year is None:
+                raise KeyError(tag)
+        rows = self._q("SELECT study_json, result_json, fingerprint, action, saved_at "
+                       "FROM studies WHERE tag = ? AND year = ?", (tag, year))
+        if not rows:
+            raise KeyError((tag, year))
+        study_json, result_json, fp, action, saved_at = rows[0]
+        where = f"{self.path}: {tag} {year}"
+        try:
+            study = parse_study(json.loads(study_json), where)
+            result = json.loads(result_json) if result_json else None
+        except (ValueError, StudyError) as exc:
+            raise WorkbookError(self.path, f"the stored study of {tag} {year} is damaged "
+                                           f"({exc})") from None
+        return StudyRecord(tag, year, study, result, fp, action, saved_at)
+
+    def study(self, tag: str, year: int | None = None) -> Study:
+        """The study of ``tag`` in ``year`` (default: its latest year)."""
+        return self.record(tag, year).study
+
+    def result_json(self, tag: str, year: int | None = None) -> dict | None:
+        return self.record(tag, year).result_json
+
+    def save_study(self, tag: str, year: int, study: Study,
+                   result_json: Mapping[str, Any] | None = None) -> str:
+        """Store the study of ``tag`` for ``year`` (replacing that year's); returns its fingerprint.
+
+        ``result_json`` is ``StudyResult.to_json()`` of this very study, kept
+        as a readable snapshot; a snapshot of another study is refused.
+        """
+        self.asset(tag)
+        fp = fingerprint(study)
+        action = None
+        if result_json is not None:
+            if result_json.get("fingerprint", fp) != fp:
+                raise WorkbookError(self.path, f"{tag} {year}: the result belongs to another "
+                                               "study (fingerprints differ)")
+            action = (result_json.get("recommendation") or {}).get("action")
+        with self.transaction() as c:
+            c.execute("INSERT OR REPLACE INTO studies VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                      (tag, int(year), study.title, _dumps(study_to_dict(study)),
+                       None if result_json is None else _dumps(dict(result_json)), fp, action,
+                       _now()))
+        return fp
+
+    def start_restudy(self, tag: str, new_year: int) -> Study:
+        """Start ``new_year``'s study of ``tag`` from the latest earlier year's estimates.
+
+        The earlier study, its result and its memos stay as they were. The new
+        year is stored without a result; edit it and :meth:`save_study` again.
+        """
+        earlier = [y for y in self.years(tag) if y < new_year]
+        if new_year in self.years(tag):
+            raise WorkbookError(self.path, f"{tag} already has a study for {new_year}")
+        if not earlier:
+            raise WorkbookError(self.path, f"{tag} has no study before {new_year} to start from")
+        study = self.study(tag, earlier[-1])
+        self.save_study(tag, new_year, study)
+        return study
+
+    def studies(self) -> list[StudyRecord]:
+        """The current (latest) study of every asset that has one, by site then tag."""
+        out = []
+        for asset in self.assets():
+            year = self.current_year(asset.tag)
+            if year is not None:
+                out.append(self.record(asset.tag, year))
+        return out
+
+    # ------------------------------------------------------------------ candidates
+    def add_candidate(self, alternative: Alternative, asset_class: str = "",
+                      tags: Iterable[str] = ()) -> int:
+        """Add (or update, by name) a challenger model and link it to ``tags``; returns its id."""
+        if alternative.role != "challenger":
+            raise WorkbookError(self.path, f"candidate '{alternative.name}' must be a challenger")
+        body = _dumps(alternative_to_dict(alternative))
+        with self.transaction() as c:
+            c.execute("INSERT INTO candidates (name, asset_class, alternative_json) VALUES "
+                      "(?, ?, ?) ON CONFLICT(name) DO UPDATE SET asset_class = "
+                      "excluded.asset_class, alternative_json = excluded.alternative_json",
+                      (alternative.name, asset_class, body))
+            cid = c.execute("SELECT id FROM candidates WHERE name = ?",
+                            (alternative.name,)).fetchone()[0]
+            for tag in tags:
+                c.execute("INSERT OR IGNORE INTO asset_candidates VALUES (?, ?)", (tag, cid))
+        return int(cid)
+
+    def link_candidate(self, candidate_id: int, tag: str) -> None:
+        with self.transaction() as c:
+            c.execute("INSERT OR IGNORE INTO asset_candidates VALUES (?, ?)", (tag, candidate_id))
+
+    def candidates(self, tag: str | None = None, asset_class: str | None = None) -> list[Candidate]:
+        """Challenger models: all, those linked to ``tag``, or those of ``asset_class``."""
+        sql = "SELECT id, name, asset_class, alternative_json FROM candidates"
+        params: list[Any] = []
+        if tag is not None:
+            sql += " WHERE id IN (SELECT candidate_id FROM asset_candidates WHERE tag = ?)"
+            params.append(tag)
+        elif asset_class is not None:
+            sql += " WHERE asset_class = ?"
+            params.append(asset_class)
+        out = []
+        for cid, name, cls, body in self._q(sql + " ORDER BY name", params):
+            tags = tuple(r[0] for r in self._q(
+                "SELECT tag FROM asset_candidates WHERE candidate_id = ? ORDER BY tag", (cid,)))
+            alt = _parse_alternative(json.loads(body), f"{self.path}: candidate '{name}'")
+            out.append(Candidate(cid, name, cls, alt, tags))
+        return out
+
+    # ------------------------------------------------------------------ history and fits
+    def add_history(self, rows: Iterable[HistoryRow], replace: bool = False) -> int:
+        """Store imported cost-history rows in one transaction; returns how many.
+
+        ``replace=True`` first removes the earlier rows of the same tags and kinds.
+        """
+        rows = list(rows)
+        for r in rows:
+            if r.kind not in HISTORY_KINDS:
+                raise WorkbookError(self.path, f"history kind '{r.kind}' is not one of "
+                                               f"{', '.join(HISTORY_KINDS)}")
+        with self.transaction() as c:
+            if replace:
+                for tag, kind in {(r.tag, r.kind) for r in rows}:
+                    c.execute("DELETE FROM history WHERE tag = ? AND kind = ?", (tag, kind))
+            c.executemany("INSERT INTO history (tag, age, amount, kind, date, source, source_row)"
+                          " VALUES (?, ?, ?, ?, ?, ?, ?)",
+                          [(r.tag, int(r.age), float(r.amount), r.kind, r.date, r.source,
+                            r.source_row) for r in rows])
+        return len(rows)
+
+    def history(self, tag: str, kind: str | None = None) -> list[HistoryRow]:
+        """Cost history of ``tag`` (optionally one kind), by age then import order."""
+        sql = ("SELECT tag, age, amount, kind, date, source, source_row FROM history "
+               "WHERE tag = ?")
+        params: list[Any] = [tag]
+        if kind is not None:
+            sql += " AND kind = ?"
+            params.append(kind)
+        return [HistoryRow(*r) for r in self._q(sql + " ORDER BY kind, age, id", params)]
+
+    def save_fit(self, tag: str, year: int, fit: Any) -> None:
+        """Keep a trend fit (``core.history`` fit object or its ``to_json()`` dict) with a study."""
+        if self.schema_version < 2:
+            raise WorkbookError(self.path, "fits need schema 2; open the workbook for writing")
+        data = fit.to_json() if hasattr(fit, "to_json") else dict(fit)
+        with self.transaction() as c:
+            c.execute("INSERT OR REPLACE INTO fits VALUES (?, ?, ?, ?, ?, ?)",
+                      (tag, int(year), data["quantity"], data["model"], _dumps(data), _now()))
+
+    def fits(self, tag: str, year: int | None = None) -> list[dict]:
+        """The fits kept with ``tag``'s study of ``year`` (default latest), as dicts."""
+        if self.schema_version < 2:
+            return []
+        year = self.current_year(tag) if year is None else year
+        return [json.loads(r[0]) for r in self._q(
+            "SELECT fit_json FROM fits WHERE tag = ? AND year = ? ORDER BY quantity", (tag, year))]
+
+    # ------------------------------------------------------------------ memos
+    def record_memo(self, tag: str | None, year: int | None, fingerprint: str, signer: str,
+                    path: str | Path, time: str | _dt.datetime | None = None,
+                    title: str = "") -> int:
+        """Add an issued memo to the register; returns its id."""
+        when = (time.isoformat(timespec="seconds") if isinstance(time, _dt.datetime)
+                else (time or _now()))
+        if not title and tag is not None:
+            rows = self._q("SELECT title FROM studies WHERE fingerprint = ? LIMIT 1",
+                           (fingerprint,))
+            title = rows[0][0] if rows else ""
+        with self.transaction() as c:
+            if self.schema_version >= 2:
+                cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
+                                "file_name, title) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                                (tag, year, fingerprint, signer or "", when,
+                                 os.fspath(path), title))
+            else:
+                cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
+                                "file_name) VALUES (?, ?, ?, ?, ?, ?)",
+                                (tag, year, fingerprint, signer or "", when, os.fspath(path)))
+        return int(cur.lastrowid)
+
+    def memos(self, tag: str | None = None) -> list[MemoRecord]:
+        cols = "id, tag, year, fingerprint, signer, signed_at, file_name"
+        cols += ", title" if self.schema_version >= 2 else ""
+        sql = f"SELECT {cols} FROM memos"
+        rows = (self._q(sql + " WHERE tag = ? ORDER BY id", (tag,)) if tag is not None
+                else self._q(sql + " ORDER BY id"))
+        return [MemoRecord(*r) for r in rows]
+
+    def find_study(self, fingerprint: str) -> tuple[str, int] | None:
+        """(tag, year) of the stored study with this fingerprint, if any."""
+        rows = self._q("SELECT tag, year FROM studies WHERE fingerprint = ? "
+                       "ORDER BY result_json IS NOT NULL DESC, year DESC",
+                       (fingerprint,))
+        return (rows[0][0], rows[0][1]) if rows else None
+
+
+def _migrate_to(conn: sqlite3.Connection, target: int) -> int:
+    from core.workbook.schema import MIGRATIONS
+
+    version = 1
+    while version < target:
+        MIGRATIONS[version](conn)
+        version += 1
+        conn.execute(f"PRAGMA user_version = {version}")
+    return version
+
+
+# --------------------------------------------------------------------------- module helpers
+def studies_from_workbook(path: str | Path) -> list[Study]:
+    """The current-year study of every asset of the workbook at ``path`` (read-only).
+
+    Raises :class:`WorkbookError` (``<file>: not a Tenure workbook (...)``) for
+    anything that is not an intact workbook, and when it holds no study.
+    """
+    with Workbook.open(path, write=False) as wb:
+        studies = [r.study for r in wb.studies()]
+    if not studies:
+        raise WorkbookError(path, "the workbook holds no study yet")
+    return studies
+
+
+@contextlib.contextmanager
+def _writer(path: str | Path) -> Iterator[Workbook]:
+    """The workbook at ``path`` for writing: this process's open one if any, else a new one."""
+    open_one = _OPEN_WRITERS.get(str(Path(path).resolve()))
+    if open_one is not None and open_one._conn is not None:
+        yield open_one
+        return
+    with Workbook.open(path, write=True) as wb:
+        yield wb
+
+
+def record_memo(workbook_path: str | Path, memo_path: str | Path, fingerprint: str,
+                signer: str | None = None, title: str | None = None, tag: str | None = None,
+                year: int | None = None, time: str | _dt.datetime | None = None) -> int:
+    """Record an issued memo in the workbook at ``workbook_path`` (hook for the memo dialog).
+
+    The asset and year are found from the study fingerprint when not given.
+    Uses the workbook this process already has open for writing, if any.
+    """
+    with _writer(workbook_path) as wb:
+        if tag is None:
+            found = wb.find_study(fingerprint)
+            if found is not None:
+                tag, year = found
+        return wb.record_memo(tag, year, fingerprint, signer or "", os.fspath(memo_path), time,
+                              title or "")
+
+
+__all__ = ["Asset", "Candidate", "HistoryRow", "MemoRecord", "Site", "StudyRecord", "Workbook",
+           "record_memo", "studies_from_workbook"]
