@@ -14,6 +14,8 @@ from collections.abc import Sequence
 from reportlab.graphics.shapes import Circle, Drawing, Line, Polygon, PolyLine, Rect, String
 from reportlab.lib import colors
 
+from core.memo.fonts import FB, FR
+
 __all__ = ["nice_ticks", "aw_chart", "SERIES_STYLES", "short_money"]
 
 SERIES_STYLES = (
@@ -99,12 +101,12 @@ def aw_chart(
         return bottom + (v - y0) / (y1 - y0) * ph
 
     if title:
-        d.add(String(left, height - 11, title, fontName="Helvetica-Bold", fontSize=9))
+        d.add(String(left, height - 11, title, fontName=FB(), fontSize=9))
     d.add(Rect(left, bottom, pw, ph, fillColor=None, strokeColor=colors.grey, strokeWidth=0.5))
     for t in ticks:
         y = Y(t)
         d.add(Line(left, y, left + pw, y, strokeColor=colors.HexColor("#dddddd"), strokeWidth=0.4))
-        d.add(String(left - 4, y - 3, short_money(t), fontName="Helvetica", fontSize=7,
+        d.add(String(left - 4, y - 3, short_money(t), fontName=FR(), fontSize=7,
                      textAnchor="end"))
     if y0 < 0 < y1:
         d.add(Line(left, Y(0), left + pw, Y(0), strokeColor=colors.black, strokeWidth=0.6))
@@ -113,12 +115,12 @@ def aw_chart(
         if k % step and k != 1:
             continue
         d.add(Line(X(k), bottom, X(k), bottom - 3, strokeColor=colors.grey, strokeWidth=0.5))
-        d.add(String(X(k), bottom - 11, str(k), fontName="Helvetica", fontSize=7,
+        d.add(String(X(k), bottom - 11, str(k), fontName=FR(), fontSize=7,
                      textAnchor="middle"))
-    d.add(String(left + pw / 2, bottom - 22, "years of retention k", fontName="Helvetica",
+    d.add(String(left + pw / 2, bottom - 22, "years of retention k", fontName=FR(),
                  fontSize=7.5, textAnchor="middle"))
     ylab = f"AW ({currency}/yr; costs negative)" if currency else "AW per year (costs negative)"
-    lab = String(0, 0, ylab, fontName="Helvetica", fontSize=7.5, textAnchor="middle")
+    lab = String(0, 0, ylab, fontName=FR(), fontSize=7.5, textAnchor="middle")
     from reportlab.graphics.shapes import Group
 
     g = Group(lab)
@@ -149,7 +151,7 @@ def aw_chart(
                 ly = ey - 2.5
                 lx, anchor = (ex - 7, "end") if ex > left + 40 else (ex + 7, "start")
             label_spots.append((lx, ly))
-            d.add(String(lx, ly, f"ESL {esl}", fontName="Helvetica-Bold", fontSize=7,
+            d.add(String(lx, ly, f"ESL {esl}", fontName=FB(), fontSize=7,
                          fillColor=color, textAnchor=anchor))
     # legend, two columns under the axis title
     col_w = pw / 2
@@ -164,5 +166,5 @@ def aw_chart(
         label = f"{name} (ESL {esl} yr{'s' if esl != 1 else ''})"
         if len(label) > 48:
             label = label[:45] + "..."
-        d.add(String(lx + 28, ly, label, fontName="Helvetica", fontSize=7.5))
+        d.add(String(lx + 28, ly, label, fontName=FR(), fontSize=7.5))
     return d

@@ -51,6 +51,7 @@ from reportlab.platypus import (
 
 from core.memo.cautions import caution_texts
 from core.memo.chart import aw_chart
+from core.memo.fonts import FB, FI, FR
 from core.memo.sign import ROLES, finish_pdf
 
 __all__ = ["MemoOptions", "render_memo", "render_memo_pages", "money", "PAGE_SIZES"]
@@ -151,22 +152,22 @@ class MemoOptions:
 # --------------------------------------------------------------------------- styles
 def _styles() -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
-    body = ParagraphStyle("body", parent=base["BodyText"], fontName="Helvetica", fontSize=9,
+    body = ParagraphStyle("body", parent=base["BodyText"], fontName=FR(), fontSize=9,
                           leading=11.5, spaceAfter=3, alignment=TA_LEFT)
     return {
-        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=16,
+        "title": ParagraphStyle("title", parent=body, fontName=FB(), fontSize=16,
                                 leading=19, spaceAfter=2),
         "sub": ParagraphStyle("sub", parent=body, fontSize=8.5, textColor=colors.HexColor("#444444")),
-        "h": ParagraphStyle("h", parent=body, fontName="Helvetica-Bold", fontSize=11, leading=14,
+        "h": ParagraphStyle("h", parent=body, fontName=FB(), fontSize=11, leading=14,
                             spaceBefore=8, spaceAfter=3, textColor=colors.HexColor("#1f4e79")),
-        "h3": ParagraphStyle("h3", parent=body, fontName="Helvetica-Bold", fontSize=9.5,
+        "h3": ParagraphStyle("h3", parent=body, fontName=FB(), fontSize=9.5,
                              leading=12, spaceBefore=5, spaceAfter=2),
         "body": body,
-        "rec": ParagraphStyle("rec", parent=body, fontName="Helvetica-Bold", fontSize=11,
+        "rec": ParagraphStyle("rec", parent=body, fontName=FB(), fontSize=11,
                               leading=14.5),
         "small": ParagraphStyle("small", parent=body, fontSize=7.5, leading=9.5),
         "cell": ParagraphStyle("cell", parent=body, fontSize=7.5, leading=9, spaceAfter=0),
-        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=7.5,
+        "head": ParagraphStyle("head", parent=body, fontName=FB(), fontSize=7.5,
                                leading=9, spaceAfter=0),
         "bullet": ParagraphStyle("bullet", parent=body, leftIndent=10, bulletIndent=0),
     }
@@ -176,30 +177,34 @@ def _p(text: str, style: ParagraphStyle) -> Paragraph:
     return Paragraph(escape(str(text)), style)
 
 
-_GRID = TableStyle([
-    ("FONT", (0, 0), (-1, -1), "Helvetica", 7.5),
-    ("FONT", (0, 0), (-1, 0), "Helvetica-Bold", 7.5),
-    ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8eef5")),
-    ("LINEBELOW", (0, 0), (-1, 0), 0.6, colors.HexColor("#1f4e79")),
-    ("LINEBELOW", (0, 1), (-1, -1), 0.25, colors.HexColor("#cccccc")),
-    ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
-    ("TOPPADDING", (0, 0), (-1, -1), 2),
-    ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
-    ("LEFTPADDING", (0, 0), (-1, -1), 3),
-    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
-])
+def _grid(header: bool = True) -> TableStyle:
+    cmds = [
+        ("FONT", (0, 0), (-1, -1), FR(), 7.5),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#cccccc")),
+        ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ("TOPPADDING", (0, 0), (-1, -1), 2),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+        ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+    ]
+    if header:
+        cmds += [("FONT", (0, 0), (-1, 0), FB(), 7.5),
+                 ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8eef5")),
+                 ("LINEBELOW", (0, 0), (-1, 0), 0.6, colors.HexColor("#1f4e79"))]
+    return TableStyle(cmds)
 
 
 def _table(rows: list[list[Any]], widths: Sequence[float] | None = None,
-           numeric_from: int | None = 1, extra: Iterable[tuple] = ()) -> Table:
-    if rows and widths is not None:
+           numeric_from: int | None = 1, extra: Iterable[tuple] = (),
+           header: bool = True) -> Table:
+    if rows and widths is not None and header:
         hs = _styles()["head"]
         hr = ParagraphStyle("headr", parent=hs, alignment=2)
         rows = [[Paragraph(escape(c), hr if numeric_from is not None and i >= numeric_from
                            else hs) if isinstance(c, str) else c
                  for i, c in enumerate(rows[0])]] + rows[1:]
-    t = Table(rows, colWidths=widths, repeatRows=1, hAlign="LEFT")
-    style = TableStyle(list(_GRID.getCommands()) + list(extra))
+    t = Table(rows, colWidths=widths, repeatRows=1 if header else 0, hAlign="LEFT")
+    style = TableStyle(list(_grid(header).getCommands()) + list(extra))
     if numeric_from is not None:
         style.add("ALIGN", (numeric_from, 0), (-1, -1), "RIGHT")
     t.setStyle(style)
@@ -234,7 +239,7 @@ class SignOffBlock(Flowable):
         col_role, col_name = 0.0, 70.0
         col_date = 70.0 + (self.width - sig_w - 70.0) * 0.62
         sig_x = self.width - sig_w
-        c.setFont("Helvetica-Bold", 7.5)
+        c.setFont(FB(), 7.5)
         top = self.height
         c.setFillColor(colors.HexColor("#444444"))
         c.drawString(col_role, top - 9, "Role")
@@ -250,9 +255,9 @@ class SignOffBlock(Flowable):
             c.setLineWidth(0.4)
             c.line(0, y_bot, self.width, y_bot)
             mid = y_bot + self.ROW_H / 2
-            c.setFont("Helvetica-Bold", 9)
+            c.setFont(FB(), 9)
             c.drawString(col_role, mid - 3, role.capitalize())
-            c.setFont("Helvetica", 9)
+            c.setFont(FR(), 9)
             name = self.names.get(role)
             if name:
                 c.drawString(col_name, mid - 3, _fit(name, col_date - col_name - 6, c, 9))
@@ -272,7 +277,7 @@ class SignOffBlock(Flowable):
             c.rect(bx1, by1, bx2 - bx1, by2 - by1, stroke=1, fill=0)
             c.setDash()
             c.setFillColor(colors.HexColor("#8a8a8a"))
-            c.setFont("Helvetica-Oblique", 6.5)
+            c.setFont(FI(), 6.5)
             c.drawString(bx1 + 4, by1 + 3, f"{role.capitalize()}: digital signature field")
             c.setFillColor(colors.black)
             c.setStrokeColor(colors.HexColor("#cccccc"))
@@ -284,9 +289,9 @@ class SignOffBlock(Flowable):
 
 
 def _fit(text: str, width: float, c, size: float) -> str:
-    if c.stringWidth(text, "Helvetica", size) <= width:
+    if c.stringWidth(text, FR(), size) <= width:
         return text
-    while text and c.stringWidth(text + "...", "Helvetica", size) > width:
+    while text and c.stringWidth(text + "...", FR(), size) > width:
         text = text[:-1]
     return text + "..."
 
@@ -440,9 +445,7 @@ class _Builder:
             facts.append(["Study period", yrs(r.study.study_period)])
         facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
         self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
-                                      extra=[("BACKGROUND", (0, 0), (-1, 0), colors.white),
-                                             ("LINEBELOW", (0, 0), (-1, 0), 0.25,
-                                              colors.HexColor("#cccccc"))]))
+                                      header=False))
 
     def chart(self):
         r = self.r
@@ -492,7 +495,7 @@ class _Builder:
                 _p(f"{a.name} ({a.role}, price {money(a.price)} {cur})", s["h3"]),
                 _table(rows, [w] * 9, numeric_from=1, extra=[
                     ("BACKGROUND", (0, esl_row), (-1, esl_row), colors.HexColor("#fff2cc")),
-                    ("FONT", (0, esl_row), (-1, esl_row), "Helvetica-Bold", 7.5)]),
+                    ("FONT", (0, esl_row), (-1, esl_row), FB(), 7.5)]),
             ]) if n <= 25 else _table(rows, [w] * 9))
 
     def study_period(self):
@@ -588,7 +591,7 @@ class _Builder:
                 extra = []
                 if esl:
                     extra = [("BACKGROUND", (0, esl), (-1, esl), colors.HexColor("#fff2cc")),
-                             ("FONT", (0, esl), (-1, esl), "Helvetica-Bold", 7.5)]
+                             ("FONT", (0, esl), (-1, esl), FB(), 7.5)]
                 tbl = _table(rows, [self.w / 6] * 6, numeric_from=1, extra=extra)
                 head = _p(f"{a.name}, after tax", s["h3"])
                 self.add(KeepTogether([head, tbl]) if len(aw) <= 25 else head, )
@@ -802,7 +805,7 @@ def _footer_factory(fingerprint: str, title: str, total: list[int], size):
         canvas.setStrokeColor(colors.HexColor("#999999"))
         canvas.setLineWidth(0.4)
         canvas.line(MARGIN, MARGIN - 6, w - MARGIN, MARGIN - 6)
-        canvas.setFont("Helvetica", 6.5)
+        canvas.setFont(FR(), 6.5)
         canvas.setFillColor(colors.HexColor("#444444"))
         canvas.drawString(MARGIN, MARGIN - 15, f"Study fingerprint (SHA-256): {fingerprint}")
         page = f"page {doc.page} of {total[0] if total[0] else doc.page}"
