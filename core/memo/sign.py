@@ -115,6 +115,27 @@ def signature_fields(pdf: bytes) -> dict[str, bool]:
     return {name: value is not None for name, value, _ in enumerate_sig_fields(r)}
 
 
+_FOLD = str.maketrans({"Ł": "L", "ł": "l", "Ø": "O", "ø": "o", "Đ": "D", "đ": "d", "ß": "ss",
+                       "Æ": "AE", "æ": "ae", "Œ": "OE", "œ": "oe", "Þ": "Th", "þ": "th",
+                       "ı": "i", "Ħ": "H", "ħ": "h"})
+
+
+def stamp_text(text: str) -> str:
+    """ASCII form of a name for the signature appearance (its built-in font is ASCII-only).
+
+    The full name stays in the certificate, the sign-off block and ``verify``'s report.
+
+    >>> stamp_text("Łukasz Żak"), stamp_text("Zoë Brontë")
+    ('Lukasz Zak', 'Zoe Bronte')
+    """
+    import unicodedata
+
+    folded = unicodedata.normalize("NFKD", text.translate(_FOLD))
+    out = "".join(ch for ch in folded if not unicodedata.combining(ch))
+    out = out.encode("ascii", "replace").decode("ascii")
+    return out.replace("%", "%%")
+
+
 def _signer_name(cert) -> str:
     try:
         return cert.subject.native.get("common_name") or cert.subject.human_friendly
@@ -170,7 +191,7 @@ def sign_pdf_bytes(
     )
     style = TextStampStyle(
         stamp_text=f"{role.capitalize()}: %(signer)s\nDigitally signed %(ts)s",
-        text_box_style=TextBoxStyle(font_size=7),
+        text_box_style=TextBoxStyle(font_size=8),
         border_width=1,
         timestamp_format="%Y-%m-%d %H:%M UTC",
     )
@@ -178,7 +199,7 @@ def sign_pdf_bytes(
         w = IncrementalPdfFileWriter(io.BytesIO(pdf))
         out = io.BytesIO()
         signers.PdfSigner(meta, signer, stamp_style=style).sign_pdf(
-            w, output=out, appearance_text_params={"signer": who}
+            w, output=out, appearance_text_params={"signer": stamp_text(who)}
         )
     except PdfError as e:
         raise MemoError("MEMO", f"cannot sign: {e}") from None
