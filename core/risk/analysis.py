@@ -458,12 +458,15 @@ def _fmt(x: float) -> str:
 
 
 # --------------------------------------------------------------------------- assembly
-def _basis(study: Study) -> tuple[str, list[str]]:
-    if study.tax is None:
-        return "before-tax", []
-    return "before-tax", [
-        "The study has tax, but the risk analysis uses before-tax annual worth: no vectorised "
-        "after-tax AW is available to it; the after-tax recommendation is not simulated."]
+def _basis(model: Model) -> tuple[str, list[str]]:
+    notes = []
+    if model.after_tax is not None and any(a == "marr" for a, _ in model.study.uncertainty.inputs):
+        notes.append("After tax, a 'marr' input moves the after-tax MARR in proportion "
+                     "(after-tax MARR x sampled MARR / MARR).")
+    if model.study.inflation is not None:
+        notes.append("With inflation, AW differences are in constant (today's) money, the "
+                     "basis of every decision.")
+    return model.basis, notes
 
 
 def decision_rule(study: Study) -> str:
@@ -494,7 +497,7 @@ def run_risk(study: Study, trials: int | None = None, seed: int | None = None,
     if cancelled is not None and cancelled():
         raise RiskCancelled("cancelled during the sensitivity analysis")
     base = model.evaluate({}, 1)
-    basis, notes = _basis(study)
+    basis, notes = _basis(model)
     inputs = []
     for address, dist in unc.inputs:
         bounds = dists.bounds_for(address)

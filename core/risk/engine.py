@@ -15,7 +15,12 @@ How an input moves the cash flows:
 - ``<name>.operating_costs.first`` / ``.gradient`` / ``.growth`` set C_1, G or g
   in C_j = C_1 + (j-1)G or C_j = C_1(1+g)^(j-1); extra costs stay as estimated.
 - ``marr`` sets the interest rate (through ``core.inflation`` when the study has
-  inflation).
+  inflation; see ``_AfterTax`` for the after-tax MARR).
+
+When the study has ``tax`` the decision rests on after-tax AW (in constant money
+at the after-tax MARR), computed for the whole batch by
+``core.aftertax.after_tax_annual_worth``, as the engine's after-tax study does;
+otherwise on before-tax AW.  ``Model.basis`` says which.
 
 The decision is that of ``core.study.decide``: without a study period, replace
 when the best challenger's AW at its ESL beats the defender's AW at its ESL by
@@ -84,13 +89,14 @@ class Outcome:
 class _Inflation:
     """The study's inflation conversion, applied to batches.
 
-    ``core.inflation.before_tax_arrays`` is probed with unit cash flows to get the
-    year-by-year factors it applies to P, S_k and C_j + X_j (it is linear in them),
-    and checked against the real estimates; the rate comes from
+    ``core.inflation.before_tax_arrays`` (before tax) or ``then_current_arrays``
+    (after tax) is probed with unit cash flows to get the year-by-year factors
+    it applies to P, S_k and C_j + X_j (it is linear in them), and checked
+    against the real estimates; the before-tax rate comes from
     ``core.inflation.before_tax_rate`` for each MARR value.
     """
 
-    def __init__(self, study: Study) -> None:
+    def __init__(self, study: Study, after_tax: bool) -> None:
         from dataclasses import replace
 
         from core import inflation
@@ -98,15 +104,16 @@ class _Inflation:
 
         self.study = study
         self.module = inflation
+        convert = inflation.then_current_arrays if after_tax else inflation.before_tax_arrays
         self.factors: dict[str, tuple[float, np.ndarray, np.ndarray]] = {}
         for alt in study.alternatives:
             n = alt.max_life
             probe = replace(alt, price=1.0, market_values=MarketValues(values=(1.0,) * n),
                             operating_costs=OperatingCosts(values=(1.0,) * n), extra_costs=(),
                             depreciation=None)
-            fp_, fs, fc = inflation.before_tax_arrays(study, probe)
+            fp_, fs, fc = convert(study, probe)
             self.factors[alt.name] = (float(fp_), np.asarray(fs, float), np.asarray(fc, float))
-            price, s, c = inflation.before_tax_arrays(study, alt)
+            price, s, c = convert(study, alt)
             ok = (np.isclose(price, alt.price * float(fp_))
                   and np.allclose(s, alt.market_value_array() * fs, rtol=1e-9, atol=1e-6)
                   and np.allclose(c, alt.cost_array() * fc, rtol=1e-9, atol=1e-6))
@@ -134,13 +141,67 @@ class _Inflation:
         return out.reshape(np.shape(marr)) if np.ndim(marr) else float(out[0])
 
 
+class _AfterTax:
+    """After-tax AW of a batch through ``core.aftertax.after_tax_annual_worth``.
+
+    Flows in then-current money discounted at the after-tax (market) rate, AW for
+    the decision in constant money at the after-tax MARR, exactly as
+    ``core.aftertax.analyse``.  A challenger whose depreciation has no explicit
+    basis is depreciated on its (sampled) first cost.  A ``marr`` input moves the
+    after-tax MARR in proportion (after-tax MARR x sampled MARR / MARR; by the same
+    difference when MARR is 0), since the study states both.
+    """
+
+    def __init__(self, study: Study) -> None:
+        from core import aftertax, depreciation
+
+        assert study.tax is not None
+        self.study = study
+        self.module = aftertax
+        self.depreciation = depreciation
+        self.tax_rate = float(study.tax.rate)
+        self.after_tax_marr = float(study.tax.after_tax_marr)
+        self.fixed = {a.name: depreciation.alternative_schedule(a) for a in study.alternatives}
+
+    def rates(self, marr: np.ndarray | float) -> tuple[np.ndarray | float, np.ndarray | float]:
+        """(decision rate, discount rate of the then-current flows)."""
+        m0 = self.study.marr
+        m = np.asarray(marr, dtype=float)
+        i = (self.after_tax_marr * m / m0) if m0 != 0 else self.after_tax_marr + (m - m0)
+        if np.ndim(marr) == 0 and float(marr) == m0:
+            i = self.after_tax_marr
+        if self.study.inflation is None:
+            return i, i
+        from core.inflation import market_rate
+
+        return i, market_rate(i, self.study.inflation.rate)
+
+    def annual_worth(self, alt: Alternative, price: np.ndarray | float, s: np.ndarray,
+                     c: np.ndarray, marr: np.ndarray | float) -> np.ndarray:
+        dep = alt.depreciation
+        if alt.role == "challenger" and dep is not None and dep.basis is None \
+                and np.ndim(price) > 0:
+            sched = self.depreciation.schedule(dep, np.asarray(price, float), alt.max_life)
+        else:
+            sched = self.fixed[alt.name]
+        decision, discount = self.rates(marr)
+        out = self.module.after_tax_annual_worth(
+            price, s, c, sched.allowance, sched.book_value_0, self.tax_rate, discount,
+            disposal_fraction=sched.disposal_fraction, defender=alt.role == "defender")
+        years = np.arange(1, alt.max_life + 1, dtype=float)
+        return out.present_worth * ap(np.asarray(decision, float)[..., None], years)
+
+
 class Model:
     """A study prepared for batch evaluation (see the module docstring)."""
 
     def __init__(self, study: Study) -> None:
         self.study = study
         self.names = [a.name for a in study.alternatives]
-        self.inflation = _Inflation(study) if study.inflation is not None else None
+        self.after_tax = _AfterTax(study) if study.tax is not None else None
+        self.basis = "after-tax" if self.after_tax is not None else "before-tax"
+        self.inflation = (_Inflation(study, self.after_tax is not None)
+                          if study.inflation is not None else None)
         self._extras = {a.name: a.extra_cost_array() for a in study.alternatives}
         self._years = {a.name: np.arange(1, a.max_life + 1, dtype=float)
                        for a in study.alternatives}
@@ -192,14 +253,20 @@ class Model:
         """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed)."""
         values = {k: np.asarray(v, dtype=float) for k, v in values.items()}
         marr = values.get("marr", self.study.marr)
-        rate = self.inflation.rate(marr) if self.inflation is not None else marr
+        if self.after_tax is not None:
+            rate = self.after_tax.rates(marr)[0]
+        else:
+            rate = self.inflation.rate(marr) if self.inflation is not None else marr
         aw: dict[str, np.ndarray] = {}
         esl: dict[str, np.ndarray] = {}
         at_esl: dict[str, np.ndarray] = {}
         for alt in self.study.alternatives:
             price, s, c = self._arrays(alt, values)
-            schedule = np.broadcast_to(annual_worth_batch(price, s, c, rate),
-                                       (size, alt.max_life))
+            if self.after_tax is not None:
+                raw = self.after_tax.annual_worth(alt, price, s, c, marr)
+            else:
+                raw = annual_worth_batch(price, s, c, rate)
+            schedule = np.broadcast_to(raw, (size, alt.max_life))
             idx = np.argmax(np.round(schedule, 2), axis=-1)
             aw[alt.name] = schedule
             esl[alt.name] = idx + 1
@@ -268,7 +335,8 @@ def _get(alt: Alternative, suffix: str) -> float:
 
 def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
     """A copy of ``study`` with some inputs set (addresses as in DESIGN.md §5), without its
-    uncertainty block.  The scalar, one-study counterpart of ``Model.evaluate``, used by the
+    uncertainty block (with ``tax``, a new MARR moves the after-tax MARR as in
+    ``_AfterTax``).  The scalar, one-study counterpart of ``Model.evaluate``, used by the
     tests' naive reference loop and to check breakevens with ``core.study.run_study``.
     """
     from dataclasses import replace
@@ -292,5 +360,10 @@ def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
             current = replace(current, operating_costs=replace(current.operating_costs,
                                                                **{field: value}))
         alts[alt.name] = current
-    return replace(study, marr=marr, defender=alts[study.defender.name],
+    tax = study.tax
+    if tax is not None and marr != study.marr:  # the after-tax MARR follows (see _AfterTax)
+        at = (tax.after_tax_marr * marr / study.marr if study.marr != 0
+              else tax.after_tax_marr + marr - study.marr)
+        tax = replace(tax, after_tax_marr=at)
+    return replace(study, marr=marr, tax=tax, defender=alts[study.defender.name],
                    challengers=tuple(alts[c.name] for c in study.challengers), uncertainty=None)
