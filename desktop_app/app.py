@@ -1,0 +1,86 @@
+"""Start the Tenure window: ``main(path)`` opens a file, else the last one, else the demo.
+
+Software rendering only (no OpenGL); ``QT_QPA_PLATFORM=offscreen`` is respected
+(the platform plugin is Qt's choice from the environment).
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+
+
+def _configure_rendering() -> None:
+    os.environ.setdefault("QT_OPENGL", "software")
+    os.environ.setdefault("QSG_RHI_BACKEND", "software")
+    from PySide6.QtCore import QCoreApplication, Qt
+
+    QCoreApplication.setAttribute(Qt.ApplicationAttribute.AA_UseSoftwareOpenGL, True)
+    try:
+        import pyqtgraph as pg
+
+        pg.setConfigOptions(useOpenGL=False, antialias=True, background="w", foreground="k")
+    except ImportError:
+        pass
+
+
+def create_app(argv: list[str] | None = None):
+    """The QApplication (created once), configured for Tenure."""
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
+    if app is None:
+        _configure_rendering()
+        app = QApplication(list(argv if argv is not None else sys.argv[:1]))
+    app.setOrganizationName("Tenure")
+    app.setApplicationName("Tenure")
+    app.setApplicationDisplayName("Tenure")
+    icon = Path(__file__).resolve().parents[1] / "resources" / "icons" / "tenure.png"
+    if icon.exists():
+        from PySide6.QtGui import QIcon
+
+        app.setWindowIcon(QIcon(str(icon)))
+    return app
+
+
+def initial_path(path: str | None, prefs) -> str | None:
+    """The file to open: the one asked for, else the last one (if it still exists), else the demo."""
+    from desktop_app.sources import demo_path
+
+    if path:
+        return path
+    last = prefs.last_file
+    if last and Path(last).exists():
+        return last
+    return demo_path()
+
+
+def build_window(path: str | None):
+    from desktop_app.main_window import MainWindow
+    from desktop_app.prefs import Preferences
+
+    prefs = Preferences()
+    window = MainWindow(prefs)
+    target = initial_path(path, prefs)
+    if target is not None:
+        if not window.open_path(target) and target != path:
+            pass
+    return window
+
+
+def main(path: str | None = None) -> int:
+    from core.errors import StudyError
+    from desktop_app import recovery
+
+    if path is not None and not Path(path).exists():
+        raise StudyError(path, "no such file")
+    app = create_app()
+    window = build_window(path)
+    recovery.install_excepthook(window.handle_unexpected)
+    window.show()
+    return int(app.exec())
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1] if len(sys.argv) > 1 else None))

@@ -1,0 +1,688 @@
+"""The Tenure main window: register, editor, results; files, undo, autosave, errors.
+
+Thin views over :class:`desktop_app.document.Document`.  Every edit is a
+QUndoCommand that swaps one frozen Study for the next; the document tells the
+views, the current asset is recomputed through ``core.study.run_study`` and the
+result panels get the new :class:`core.results.StudyResult`.  The fleet
+recompute across the register runs on a QThreadPool worker with progress and
+cancel.
+"""
+
+from __future__ import annotations
+
+import csv
+import importlib
+import json
+from pathlib import Path
+from typing import Any
+
+import shiboken6
+from PySide6.QtCore import QSignalBlocker, Qt, QThreadPool, QTimer
+from PySide6.QtGui import QAction, QKeySequence, QUndoStack
+from PySide6.QtWidgets import (
+    QFileDialog,
+    QInputDialog,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QScrollArea,
+    QSplitter,
+    QTabWidget,
+    QVBoxLayout,
+    QWidget,
+)
+
+from core.errors import StudyError
+from core.estimates import Study
+from core.results import StudyResult
+from desktop_app import recovery
+from desktop_app.commands import (
+    AddAssetCommand,
+    RemoveAssetCommand,
+    SetStudyCommand,
+    SetYearCommand,
+)
+from desktop_app.document import (
+    AssetEntry,
+    Document,
+    check_study,
+    default_study,
+    from_studies,
+    join_title,
+    new_key,
+    this_year,
+)
+from desktop_app.editor import StudyEditor
+from desktop_app.panels import (
+    CautionsLabel,
+    make_chart_panel,
+    make_results_panel,
+    make_risk_view,
+    results_panel_shows_cautions,
+)
+from desktop_app.prefs import Preferences, PreferencesDialog
+from desktop_app.register import RegisterPane
+from desktop_app.sources import FILE_FILTER, open_document, save_document
+from desktop_app.validation import friendly
+from desktop_app.worker import FleetJob
+
+APP_NAME = "Tenure"
+
+
+class MainWindow(QMainWindow):
+    def __init__(self, prefs: Preferences | None = None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.prefs = prefs or Preferences()
+        self.doc = Document([], None, "new")
+        self.current_key: str | None = None
+        self.current_result: StudyResult | None = None
+        self.last_message = ""
+        self._forced_dirty = False
+        self._job: FleetJob | None = None
+        self._jobs: list[FleetJob] = []
+        self.pool = QThreadPool.globalInstance()
+        self.undo_stack = QUndoStack(self)
+        self.undo_stack.cleanChanged.connect(lambda _c: self._update_modified())
+        self.undo_stack.indexChanged.connect(lambda _i: self._update_modified())
+        self.setWindowTitle(f"[*]{APP_NAME}")
+        self.resize(1480, 900)
+        self._build()
+        self._build_menus()
+        self.autosave_timer = QTimer(self)
+        self.autosave_timer.timeout.connect(self.autosave)
+        self.autosave_timer.start(max(self.prefs.autosave_seconds, 10) * 1000)
+        self.apply_preferences()
+
+    # ------------------------------------------------------------------ layout
+    def _build(self) -> None:
+        self.register = RegisterPane()
+        self.register.asset_selected.connect(self.select_asset)
+        self.editor = StudyEditor(self.commit, self.report, self.set_year)
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setWidget(self.editor)
+        scroll.setMinimumWidth(480)
+
+        self.chart_panel = make_chart_panel()
+        self.results_panel = make_results_panel()
+        self.risk_view = make_risk_view()
+        results_page = QWidget()
+        rl = QVBoxLayout(results_page)
+        rl.setContentsMargins(0, 0, 0, 0)
+        right_split = QSplitter(Qt.Orientation.Vertical)
+        right_split.addWidget(self.chart_panel)
+        right_split.addWidget(self.results_panel)
+        right_split.setStretchFactor(0, 3)
+        right_split.setStretchFactor(1, 2)
+        rl.addWidget(right_split)
+        if not results_panel_shows_cautions():
+            rl.addWidget(CautionsLabel())
+        self.right_tabs = QTabWidget()
+        self.right_tabs.addTab(results_page, "Results")
+        if self.risk_view is not None:
+            self.right_tabs.addTab(self.risk_view, "Risk")
+
+        left = QWidget()
+        ll = QVBoxLayout(left)
+        ll.setContentsMargins(0, 0, 0, 0)
+        title = QLabel("Asset register")
+        title.setStyleSheet("font-weight: bold; padding: 4px;")
+        ll.addWidget(title)
+        ll.addWidget(self.register)
+
+        self.splitter = QSplitter(Qt.Orientation.Horizontal)
+        self.splitter.addWidget(left)
+        self.splitter.addWidget(scroll)
+        self.splitter.addWidget(self.right_tabs)
+        self.splitter.setStretchFactor(0, 0)
+        self.splitter.setStretchFactor(1, 3)
+        self.splitter.setStretchFactor(2, 4)
+        self.splitter.setSizes([370, 600, 630])
+        self.setCentralWidget(self.splitter)
+
+        bar = self.statusBar()
+        self.message_label = QLabel("")
+        self.message_label.setObjectName("status_message")
+        bar.addWidget(self.message_label, 1)
+        self.progress = QProgressBar()
+        self.progress.setMaximumWidth(180)
+        self.progress.setFormat("Register %v/%m")
+        self.cancel_button = QPushButton("Cancel")
+        self.cancel_button.clicked.connect(self.cancel_fleet)
+        bar.addPermanentWidget(self.progress)
+        bar.addPermanentWidget(self.cancel_button)
+        self.progress.hide()
+        self.cancel_button.hide()
+
+    def _action(self, text: str, slot, shortcut=None, tip: str = "") -> QAction:
+        action = QAction(text, self)
+        if shortcut is not None:
+            action.setShortcut(QKeySequence(shortcut))
+        if tip:
+            action.setStatusTip(tip)
+        action.triggered.connect(lambda _checked=False: slot())
+        return action
+
+    def _build_menus(self) -> None:
+        sk = QKeySequence.StandardKey
+        m = self.menuBar().addMenu("&File")
+        self.new_action = self._action("&New", self.new_document, sk.New)
+        self.open_action = self._action("&Open…", self.open_dialog, sk.Open)
+        self.save_action = self._action("&Save", self.save, sk.Save)
+        self.save_as_action = self._action("Save &As…", self.save_as, sk.SaveAs)
+        self.recent_menu = m.addMenu("Open &Recent")
+        m.insertAction(self.recent_menu.menuAction(), self.new_action)
+        m.insertAction(self.recent_menu.menuAction(), self.open_action)
+        m.addSeparator()
+        m.addAction(self.save_action)
+        m.addAction(self.save_as_action)
+        m.addSeparator()
+        self.export_action = self._action("&Export tables…", self.export_tables,
+                                          tip="Write this study's tables to CSV or XLSX")
+        m.addAction(self.export_action)
+        self.memo_action = self._action("Issue &memo…", self.issue_memo,
+                                        tip="Write and sign the decision memo (PDF)")
+        m.addAction(self.memo_action)
+        m.addSeparator()
+        m.addAction(self._action("&Preferences…", self.edit_preferences, sk.Preferences))
+        m.addSeparator()
+        m.addAction(self._action("&Quit", self.close, sk.Quit))
+        self._update_recent_menu()
+
+        e = self.menuBar().addMenu("&Edit")
+        undo = self.undo_stack.createUndoAction(self, "&Undo")
+        undo.setShortcut(QKeySequence(sk.Undo))
+        redo = self.undo_stack.createRedoAction(self, "&Redo")
+        redo.setShortcut(QKeySequence(sk.Redo))
+        self.undo_action, self.redo_action = undo, redo
+        e.addAction(undo)
+        e.addAction(redo)
+        e.addSeparator()
+        e.addAction(self._action("&Find asset", self.register.filter_edit.setFocus, sk.Find))
+
+        a = self.menuBar().addMenu("&Asset")
+        self.add_asset_action = self._action("&Add asset…", self.add_asset)
+        a.addAction(self.add_asset_action)
+        self.remove_asset_action = self._action("&Remove asset", self.remove_asset)
+        a.addAction(self.remove_asset_action)
+        a.addSeparator()
+        self.start_study_action = self._action("&Start or restudy this year", self.start_study)
+        a.addAction(self.start_study_action)
+        a.addAction(self._action("Add &challenger", self.editor.add_challenger))
+        a.addAction(self._action("Re&move challenger", self.editor.remove_challenger))
+        a.addSeparator()
+        a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
+
+        h = self.menuBar().addMenu("&Help")
+        h.addAction(self._action("&About Tenure", self.about))
+
+    # ------------------------------------------------------------------ messages
+    def report(self, message: str) -> None:
+        """Tell the user about a refused entry or a note (status bar; never a dialog)."""
+        self.last_message = message
+        self.message_label.setText(message)
+        self.message_label.setToolTip(message)
+
+    def _update_modified(self) -> None:
+        if not (shiboken6.isValid(self) and shiboken6.isValid(self.undo_stack)):
+            return  # the window is being torn down
+        self.setWindowModified(self.is_dirty())
+        self.save_action.setEnabled(True)
+
+    def discard_changes(self) -> None:
+        """Treat the current state as saved (tests, scripted shutdown): no question on close."""
+        self.undo_stack.setClean()
+        self._forced_dirty = False
+        self._update_modified()
+
+    def is_dirty(self) -> bool:
+        return self._forced_dirty or not self.undo_stack.isClean()
+
+    def _update_title(self) -> None:
+        name = Path(self.doc.path).name if self.doc.path else "Untitled"
+        self.setWindowTitle(f"{name}[*] — {APP_NAME}")
+        self._update_modified()
+
+    def apply_preferences(self) -> None:
+        currency = self.prefs.currency
+        self.editor.set_currency(currency)
+        for panel in (self.chart_panel, self.results_panel, self.risk_view):
+            if panel is not None and hasattr(panel, "set_currency"):
+                panel.set_currency(currency)
+        self.autosave_timer.setInterval(max(self.prefs.autosave_seconds, 10) * 1000)
+
+    # ------------------------------------------------------------------ documents
+    def set_document(self, doc: Document, dirty: bool = False) -> None:
+        self.cancel_fleet()
+        self.doc.unsubscribe(self._on_doc_event)
+        self.doc = doc
+        doc.subscribe(self._on_doc_event)
+        self.undo_stack.clear()
+        self._forced_dirty = dirty
+        self.current_key = None
+        self.register.set_document(doc)
+        workbook = doc.kind == "workbook"
+        self.add_asset_action.setEnabled(not workbook)
+        self.remove_asset_action.setEnabled(not workbook)
+        if self.current_key is None:
+            self.select_asset(doc.entries[0].key if doc.entries else None)
+        self._update_title()
+        self.recompute_fleet()
+
+    def open_path(self, path: str, *, offer_recovery: bool = True) -> bool:
+        try:
+            doc = open_document(path)
+        except StudyError as exc:
+            self.report(f"Could not open {path}: {exc.message}")
+            QMessageBox.warning(self, APP_NAME, f"Could not open the file.\n\n{exc}")
+            return False
+        dirty = False
+        if offer_recovery:
+            data = recovery.read_recovery(doc.path)
+            if data is not None:
+                answer = QMessageBox.question(
+                    self, APP_NAME,
+                    f"Unsaved work on {Path(path).name} from {data.get('saved_at', 'earlier')} "
+                    "was recovered after the window closed unexpectedly.\n\nRestore it?",
+                    QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No)
+                if answer == QMessageBox.StandardButton.Yes:
+                    try:
+                        doc = Document.from_recovery(data)
+                        doc.path = str(path)
+                        dirty = True
+                    except (StudyError, KeyError, TypeError) as exc:
+                        self.report(f"The recovered work could not be read ({exc}); "
+                                    "the saved file is open instead")
+                else:
+                    recovery.discard_recovery(doc.path)
+        self.set_document(doc, dirty=dirty)
+        self.prefs.add_recent(str(path))
+        self._update_recent_menu()
+        self.report(f"Opened {path}")
+        return True
+
+    def new_document(self) -> None:
+        if not self.maybe_save():
+            return
+        study = default_study("Unassigned site — New asset".replace("Unassigned site — ", ""),
+                              self.prefs.default_marr)
+        doc = from_studies([study], None, "json", year=this_year())
+        self.set_document(doc)
+        self.report("New study file: edit the estimates, then Save")
+
+    def open_dialog(self) -> None:
+        if not self.maybe_save():
+            return
+        path, _ = QFileDialog.getOpenFileName(self, "Open workbook or study file",
+                                              str(Path.home()), FILE_FILTER)
+        if path:
+            self.open_path(path)
+
+    def _update_recent_menu(self) -> None:
+        self.recent_menu.clear()
+        items = self.prefs.recent()
+        for path in items:
+            action = self.recent_menu.addAction(path)
+            action.triggered.connect(lambda _c=False, p=path: self._open_recent(p))
+        if not items:
+            self.recent_menu.addAction("(none)").setEnabled(False)
+        else:
+            self.recent_menu.addSeparator()
+            self.recent_menu.addAction("Clear list").triggered.connect(self._clear_recent)
+
+    def _clear_recent(self) -> None:
+        self.prefs.clear_recent()
+        self._update_recent_menu()
+
+    def _open_recent(self, path: str) -> None:
+        if self.maybe_save():
+            self.open_path(path)
+
+    def save(self) -> bool:
+        if self.doc.path is None:
+            return self.save_as()
+        return self._save_to(self.doc.path)
+
+    def save_as(self) -> bool:
+        start = self.doc.path or str(Path.home() / "study.json")
+        path, _ = QFileDialog.getSaveFileName(self, "Save as", start,
+                                              "Study files (*.json);;Workbooks (*.tenure)")
+        if not path:
+            return False
+        if Path(path).suffix == "" and self.doc.kind != "workbook":
+            path += ".json"
+        return self._save_to(path)
+
+    def _save_to(self, path: str) -> bool:
+        old_path = self.doc.path
+        try:
+            save_document(self.doc, path)
+        except StudyError as exc:
+            self.report(f"Not saved: {friendly(exc)}")
+            QMessageBox.warning(self, APP_NAME, f"The file was not saved.\n\n{friendly(exc)}")
+            return False
+        except OSError as exc:
+            self.report(f"Not saved: {path}: {exc.strerror or exc}")
+            QMessageBox.warning(self, APP_NAME, f"The file was not saved.\n\n{path}: "
+                                f"{exc.strerror or exc}")
+            return False
+        self.undo_stack.setClean()
+        self._forced_dirty = False
+        recovery.discard_recovery(old_path)
+        recovery.discard_recovery(path)
+        self.prefs.add_recent(path)
+        self._update_recent_menu()
+        self._update_title()
+        self.report(f"Saved {path}")
+        return True
+
+    def maybe_save(self) -> bool:
+        """Ask before unsaved work would be dropped; True when it is fine to go on."""
+        if not self.is_dirty():
+            return True
+        answer = QMessageBox.question(
+            self, APP_NAME, "This file has unsaved changes. Save them first?",
+            QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
+            | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
+        if answer == QMessageBox.StandardButton.Save:
+            return self.save()
+        if answer == QMessageBox.StandardButton.Discard:
+            recovery.discard_recovery(self.doc.path)
+            return True
+        return False
+
+    def closeEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        if self.maybe_save():
+            self.cancel_fleet()
+            self.autosave_timer.stop()
+            event.accept()
+        else:
+            event.ignore()
+
+    def autosave(self) -> Path | None:
+        """Write the recovery sidecar when there is unsaved work."""
+        if not self.is_dirty():
+            return None
+        try:
+            return recovery.write_recovery(self.doc.to_recovery(), self.doc.path)
+        except (OSError, TypeError, ValueError) as exc:
+            self.report(f"Autosave failed: {exc}")
+            return None
+
+    def handle_unexpected(self, summary: str, log: Path) -> None:
+        saved = self.autosave()
+        kept = ("Your unsaved work was kept in a recovery file and will be offered the next "
+                "time you open this file." if saved else "Nothing was left unsaved.")
+        self.report(f"Unexpected error: {summary}")
+        box = QMessageBox(QMessageBox.Icon.Critical, APP_NAME,
+                          "Something went wrong inside Tenure. " + kept, parent=self)
+        box.setInformativeText(f"{summary}\n\nDetails are in {log}.")
+        box.exec()
+
+    # ------------------------------------------------------------------ assets
+    def select_asset(self, key: str | None) -> None:
+        self.current_key = key
+        if key is not None:
+            self.register.select(key)
+        self.refresh_current()
+
+    def current_entry(self) -> AssetEntry | None:
+        if self.current_key is None:
+            return None
+        try:
+            return self.doc.entry(self.current_key)
+        except KeyError:
+            return None
+
+    def refresh_current(self) -> None:
+        entry = self.current_entry()
+        study = entry.study if entry else None
+        self.editor.set_study(study, entry.study_year if entry else None)
+        self.start_study_action.setEnabled(entry is not None)
+        self.show_result()
+
+    def show_result(self) -> None:
+        entry = self.current_entry()
+        result = None
+        if entry is not None and entry.study is not None:
+            result = self.doc.cached_result(entry.key)
+            if result is None and entry.study.uncertainty is not None:
+                self._compute_async([(entry.key, entry.study)])
+            elif result is None:
+                try:
+                    result = self.doc.result(entry.key)
+                except StudyError as exc:
+                    self.report(friendly(exc))
+        self.current_result = result
+        for panel in (self.results_panel, self.chart_panel, self.risk_view):
+            if panel is not None:
+                panel.set_result(result)
+        self.memo_action.setEnabled(result is not None)
+        self.export_action.setEnabled(result is not None)
+        if entry is not None:
+            self.register.update_row(entry.key)
+
+    def _on_doc_event(self, event: str, key: str | None) -> None:
+        if event == "assets":
+            self.register.rebuild()
+            if self.current_entry() is None:
+                self.select_asset(self.doc.entries[0].key if self.doc.entries else None)
+            elif key is not None:
+                self.select_asset(key)
+            return
+        if event in ("study", "year"):
+            self.register.update_row(key)
+            if key == self.current_key:
+                self.refresh_current()
+            else:
+                self.select_asset(key)
+        elif event == "result":
+            self.register.update_row(key)
+            if key == self.current_key and self.current_result is None:
+                self.show_result()
+
+    def commit(self, new: Study, text: str, merge_key: object = None) -> bool:
+        """Check a proposed study with core and push it as one undoable edit."""
+        entry = self.current_entry()
+        if entry is None:
+            return False
+        try:
+            check_study(new)
+        except StudyError as exc:
+            self.report(friendly(exc))
+            return False
+        self.undo_stack.push(SetStudyCommand(self.doc, entry.key, entry.study, new, text,
+                                             merge_key))
+        if not self.last_message.startswith("Max life"):
+            self.report("")
+        return True
+
+    def set_year(self, year: int | None) -> None:
+        entry = self.current_entry()
+        if entry is not None and year != entry.study_year:
+            self.undo_stack.push(SetYearCommand(self.doc, entry.key, entry.study_year, year))
+
+    def start_study(self) -> None:
+        entry = self.current_entry()
+        if entry is None:
+            return
+        year = this_year()
+        if entry.study is None:
+            study = default_study(join_title(entry.site, entry.name) if self.doc.kind != "workbook"
+                                  else entry.name, self.prefs.default_marr)
+            self.undo_stack.beginMacro("Start study")
+            self.undo_stack.push(SetStudyCommand(self.doc, entry.key, None, study, "Start study"))
+            self.undo_stack.push(SetYearCommand(self.doc, entry.key, entry.study_year, year))
+            self.undo_stack.endMacro()
+            self.report(f"Study started for {year} from default estimates: replace them with "
+                        "this asset's own")
+        elif entry.study_year != year:
+            self.undo_stack.push(SetYearCommand(self.doc, entry.key, entry.study_year, year))
+            self.report(f"Restudy for {year}: last study's estimates copied; review each one")
+        else:
+            self.report(f"This asset already has a {year} study")
+
+    def add_asset(self) -> None:
+        if self.doc.kind == "workbook":
+            self.report("Add asset: assets of a workbook are added with the workbook tools")
+            return
+        name, ok = QInputDialog.getText(self, "Add asset", "Site — asset name:",
+                                        text="Kestrel Road — New asset")
+        if not ok or not name.strip():
+            return
+        titles = {e.title for e in self.doc.entries}
+        if name.strip() in titles:
+            self.report(f"Add asset: '{name.strip()}' already exists")
+            return
+        study = default_study(name.strip(), self.prefs.default_marr)
+        from desktop_app.document import split_title
+
+        site, asset = split_title(study.title)
+        entry = AssetEntry(new_key(), site, asset, study, this_year())
+        self.undo_stack.push(AddAssetCommand(self.doc, entry))
+
+    def remove_asset(self) -> None:
+        entry = self.current_entry()
+        if entry is None or self.doc.kind == "workbook":
+            return
+        if len(self.doc.entries) <= 1:
+            self.report("Remove asset: a study file keeps at least one asset")
+            return
+        self.undo_stack.push(RemoveAssetCommand(self.doc, entry.key))
+
+    # ------------------------------------------------------------------ fleet worker
+    def recompute_fleet(self) -> None:
+        """Recompute every asset's study on the thread pool (progress and cancel in the status bar)."""
+        items = [(e.key, e.study) for e in self.doc.entries
+                 if e.study is not None and self.doc.cached_result(e.key) is None]
+        if items:
+            self._compute_async(items, show=True)
+
+    def _compute_async(self, items: list[tuple[str, Study]], show: bool = False) -> FleetJob:
+        self.cancel_fleet()
+        job = FleetJob(items)
+        doc = self.doc
+        job.signals.result.connect(lambda key, result: doc.store_result(key, result))
+        job.signals.failed.connect(lambda key, msg: self.report(f"{key}: {msg}"))
+        job.signals.progress.connect(self._fleet_progress)
+        job.signals.finished.connect(lambda _c, j=job: self._fleet_finished(j))
+        self._job = job
+        self._jobs.append(job)
+        self.progress.setRange(0, len(items))
+        self.progress.setValue(0)
+        self.progress.setVisible(show or len(items) > 1)
+        self.cancel_button.setVisible(show or len(items) > 1)
+        self.pool.start(job)
+        return job
+
+    def _fleet_progress(self, done: int, total: int) -> None:
+        self.progress.setRange(0, total)
+        self.progress.setValue(done)
+
+    def _fleet_finished(self, job: FleetJob) -> None:
+        if job is self._job:
+            self._job = None
+            self.progress.hide()
+            self.cancel_button.hide()
+            if job.cancelled:
+                self.report("Register recompute cancelled")
+        if job in self._jobs:
+            self._jobs.remove(job)
+        self.register.update_all()
+        if self.current_result is None:
+            self.show_result()
+
+    def cancel_fleet(self) -> None:
+        if self._job is not None:
+            self._job.cancel()
+
+    def wait_for_jobs(self, msecs: int = 10000) -> bool:
+        """Wait for the worker pool (tests, benchmarks, shutdown)."""
+        ok = self.pool.waitForDone(msecs)
+        from PySide6.QtCore import QCoreApplication
+
+        QCoreApplication.processEvents()
+        return ok
+
+    # ------------------------------------------------------------------ other actions
+    def issue_memo(self) -> None:
+        if self.current_result is None:
+            self.report("Issue memo: select a studied asset first")
+            return
+        try:
+            from desktop_app.memo_dialog import IssueMemoDialog
+        except ImportError:
+            self.report("Issue memo: the memo module is not available in this build")
+            return
+        workbook = self.doc.path if self.doc.kind == "workbook" else None
+        dialog = IssueMemoDialog(self.current_result, self, workbook_path=workbook)
+        if hasattr(dialog, "page_size"):
+            dialog.page_size.setCurrentText(self.prefs.page_size)
+        dialog.exec()
+
+    def export_tables(self) -> None:
+        result = self.current_result
+        if result is None:
+            self.report("Export: select a studied asset first")
+            return
+        path, _ = QFileDialog.getSaveFileName(self, "Export tables",
+                                              str(Path.home() / "study tables.csv"),
+                                              "CSV (*.csv);;Excel workbook (*.xlsx)")
+        if not path:
+            return
+        try:
+            export = importlib.import_module("core.export")
+        except ImportError:
+            export = None
+        try:
+            if export is not None and hasattr(export, "export_result"):
+                export.export_result(result, path)
+            elif path.lower().endswith(".xlsx"):
+                raise StudyError(path, "XLSX export is not available in this build; use .csv")
+            else:
+                write_tables_csv(result, path)
+        except StudyError as exc:
+            self.report(f"Not exported: {exc}")
+            return
+        except OSError as exc:
+            self.report(f"Not exported: {path}: {exc.strerror or exc}")
+            return
+        self.report(f"Exported {path}")
+
+    def edit_preferences(self) -> None:
+        dialog = PreferencesDialog(self.prefs, self)
+        if dialog.exec():
+            dialog.apply()
+            self.apply_preferences()
+            self.refresh_current()
+
+    def about(self) -> None:
+        QMessageBox.about(self, "About Tenure",
+                          "Tenure: keep-or-replace decisions for production equipment.\n"
+                          "Annual worth, economic service life and replacement studies, "
+                          "computed offline.")
+
+
+def write_tables_csv(result: StudyResult, path: str) -> None:
+    """The AW-by-retention table of every alternative (plain CSV, no economics added)."""
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        out = csv.writer(fh)
+        out.writerow(["alternative", "role", "retention_years", "annual_worth",
+                      "capital_recovery", "operating", "marginal_cost", "market_value",
+                      "operating_cost", "extra_cost"])
+        for alt in result.alternatives:
+            for k in range(alt.max_life):
+                out.writerow([alt.name, alt.role, k + 1] + [
+                    round(float(a[k]), 2) for a in (alt.annual_worth, alt.capital_recovery,
+                                                    alt.operating, alt.marginal_cost,
+                                                    alt.market_values, alt.operating_costs,
+                                                    alt.extra_costs)])
+
+
+def dump(obj: Any) -> str:
+    return json.dumps(obj, indent=2, default=str)
+
+
+__all__ = ["MainWindow", "QSignalBlocker"]

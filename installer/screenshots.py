@@ -1,0 +1,97 @@
+"""Render docs-ready screenshots of the main views from the demo, offscreen.
+
+    QT_QPA_PLATFORM=offscreen python installer/screenshots.py [OUT_DIR]
+
+Writes PNGs (default ``resources/screenshots/``) with QWidget.grab(); settings,
+recovery files and logs go to a temporary folder, never the user's own.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _setup() -> Path:
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    state = Path(tempfile.mkdtemp(prefix="tenure-shots-"))
+    os.environ["TENURE_STATE_DIR"] = str(state)
+    sys.path.insert(0, str(ROOT))
+    from PySide6.QtCore import QSettings
+
+    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(state))
+    return state
+
+
+def _settle(app, window=None) -> None:
+    for _ in range(5):
+        app.processEvents()
+    if window is not None:
+        window.wait_for_jobs()
+        for _ in range(5):
+            app.processEvents()
+
+
+def _save(widget, path: Path, scale_to: int | None = None) -> Path:
+    from PySide6.QtCore import Qt
+
+    pixmap = widget.grab()
+    if scale_to and pixmap.width() > scale_to:
+        pixmap = pixmap.scaledToWidth(scale_to, Qt.TransformationMode.SmoothTransformation)
+    pixmap.save(str(path), "PNG")
+    return path
+
+
+def render(out_dir: Path) -> list[Path]:
+    _setup()
+    from desktop_app.app import build_window, create_app
+
+    app = create_app(["tenure-screenshots"])
+    app.setStyle("Fusion")
+    window = build_window(None)
+    window.resize(1600, 940)
+    window.show()
+    _settle(app, window)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    shots = []
+    keys = window.doc.keys()
+    # 1. the whole window on the first asset
+    window.select_asset(keys[0])
+    _settle(app, window)
+    shots.append(_save(window, out_dir / "window.png", 1600))
+    # 2. the register alone
+    shots.append(_save(window.register, out_dir / "register.png"))
+    # 3. the editor of a challenger (year table)
+    ed = window.editor
+    ed.tabs.setCurrentIndex(1)
+    _settle(app)
+    shots.append(_save(ed, out_dir / "editor.png"))
+    ed.tabs.setCurrentIndex(0)
+    # 4. results and chart of an asset with a study period
+    with_period = next((k for k in keys if window.doc.entry(k).study is not None
+                        and window.doc.entry(k).study.study_period), keys[-1])
+    window.select_asset(with_period)
+    _settle(app, window)
+    shots.append(_save(window.right_tabs, out_dir / "results.png"))
+    # 5. a refused entry: the message names the field and the old value stays
+    window.select_asset(keys[0])
+    _settle(app)
+    life = ed.editors()[0].life_edit
+    life.setText("2.5")
+    life.editingFinished.emit()
+    _settle(app)
+    shots.append(_save(window, out_dir / "validation.png", 1600))
+    window.undo_stack.clear()
+    window._forced_dirty = False
+    window.close()
+    return shots
+
+
+if __name__ == "__main__":
+    target = Path(sys.argv[1]) if len(sys.argv) > 1 else ROOT / "resources" / "screenshots"
+    for shot in render(target):
+        print(shot)
