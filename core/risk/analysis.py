@@ -251,16 +251,21 @@ class TwoWayMap:
     y_values: np.ndarray
     difference: np.ndarray   # (len(y), len(x))
     replace: np.ndarray      # (len(y), len(x)) bool
+    x_estimate: float = math.nan
+    y_estimate: float = math.nan
 
 
 def two_way_map(model: Model, x_input: str, y_input: str = "marr",
                 inputs: Mapping[str, Distribution] | None = None,
-                points: int = MAP_POINTS) -> TwoWayMap:
+                points: int = MAP_POINTS,
+                include: Mapping[str, float | None] | None = None) -> TwoWayMap:
     """The decision over a grid: by default the best challenger's first cost from 50% to
     150% of its estimate against MARR from 50% to 150% of its estimate (MARR 0: 0 to
-    20%), each widened to its distribution's 5th-95th percentiles when it is uncertain.
+    20%), each widened to its distribution's 5th-95th percentiles when it is uncertain
+    and to 110% of the distance to any value in ``include`` (e.g. its breakeven).
     """
     inputs = inputs or {}
+    include = include or {}
 
     def axis(address: str) -> np.ndarray:
         x = model.estimate(address)
@@ -273,13 +278,20 @@ def two_way_map(model: Model, x_input: str, y_input: str = "marr",
         if address in inputs:
             p5, p95 = dists.ppf(inputs[address], [0.05, 0.95], dists.bounds_for(address))
             lo, hi = min(lo, float(p5)), max(hi, float(p95))
+        extra = include.get(address)
+        if extra is not None and math.isfinite(extra):
+            lo, hi = min(lo, x + 1.1 * (extra - x)), max(hi, x + 1.1 * (extra - x))
+        bounds = dists.bounds_for(address)
+        if bounds.low > -math.inf:
+            lo = max(lo, bounds.low + (1e-6 if bounds.low_open else 0.0))
         return np.linspace(lo, hi, points)
 
     xs, ys = axis(x_input), axis(y_input)
     gx, gy = np.meshgrid(xs, ys)
     out = model.evaluate({x_input: gx.ravel(), y_input: gy.ravel()}, gx.size)
     return TwoWayMap(x_input, xs, y_input, ys, out.difference.reshape(gx.shape),
-                     out.replace.reshape(gx.shape))
+                     out.replace.reshape(gx.shape), model.estimate(x_input),
+                     model.estimate(y_input))
 
 
 # --------------------------------------------------------------------------- the result
@@ -392,8 +404,10 @@ class RiskResult:
         if self.two_way is not None:
             m = self.two_way
             out["two_way"] = {
-                "x_input": m.x_input, "x_values": [_r(v, 6) for v in m.x_values],
-                "y_input": m.y_input, "y_values": [_r(v, 6) for v in m.y_values],
+                "x_input": m.x_input, "x_estimate": _r(m.x_estimate, 6),
+                "x_values": [_r(v, 6) for v in m.x_values],
+                "y_input": m.y_input, "y_estimate": _r(m.y_estimate, 6),
+                "y_values": [_r(v, 6) for v in m.y_values],
                 "annual_worth_difference": [[_r(v, 2) for v in row] for row in m.difference],
                 "replace": [[bool(v) for v in row] for row in m.replace]}
         return out
@@ -511,7 +525,8 @@ def run_risk(study: Study, trials: int | None = None, seed: int | None = None,
     if best_challenger is None:
         best_challenger = study.challengers[int(base.best_challenger[0])].name
     x_input = f"{best_challenger}.first_cost"
-    two_way = two_way_map(model, x_input, "marr", dict(unc.inputs))
+    two_way = two_way_map(model, x_input, "marr", dict(unc.inputs),
+                          include={x_input: be.get(x_input), "marr": be.get("marr")})
     if study.study_period is not None and not np.isfinite(base.difference[0]):
         notes.append("With this study period there is no feasible 'replace now' option or no "
                      "feasible 'keep' option, so the AW difference is undefined.")

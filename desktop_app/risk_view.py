@@ -1,0 +1,409 @@
+"""The "Risk" view: Monte Carlo, tornado, breakevens and two-way map of one study.
+
+``RiskView(parent=None)``; ``set_result(StudyResult)`` shows the result's risk
+analysis (when the engine ran one) and arms the Run button when the study has
+an ``uncertainty`` block.  Run starts ``core.risk.run_risk`` on a
+``QThreadPool`` worker with a progress bar and a Cancel button; the trial count
+and seed default to the study's and can be changed before a run.
+
+Panels (pyqtgraph, software rendering):
+
+- tornado: each uncertain input swept from its 10th to its 90th percentile, the
+  AW difference (best challenger minus defender; positive favours replacing) at
+  the low and high ends as horizontal bars around the base case;
+- histogram (or, ticked, the cumulative distribution) of the AW difference
+  across trials, zero marked;
+- the breakeven table (the value of each input at which the recommendation
+  flips, the rest at their estimates);
+- the two-way map: where replacing wins over the best challenger's first cost
+  (x) against MARR (y), the estimates marked.
+
+The view only draws what ``RiskResult`` holds; it computes no economics.
+"""
+
+from __future__ import annotations
+
+import threading
+from typing import Any
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QObject, QRectF, QRunnable, Qt, QThreadPool, Signal
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QGridLayout,
+    QGroupBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QProgressBar,
+    QPushButton,
+    QSpinBox,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
+
+from core.results import StudyResult
+
+LOW_COLOUR = (70, 120, 190)
+HIGH_COLOUR = (225, 135, 40)
+REPLACE_COLOUR = (95, 170, 110)
+KEEP_COLOUR = (205, 205, 205)
+
+
+class RiskSignals(QObject):
+    progress = Signal(int)        # percent 0..100
+    done = Signal(object)         # RiskResult
+    failed = Signal(str)
+    cancelled = Signal()
+
+
+class RiskJob(QRunnable):
+    """``core.risk.run_risk`` off the GUI thread; ``cancel()`` stops it between chunks."""
+
+    def __init__(self, study: Any, trials: int, seed: int, best_challenger: str | None) -> None:
+        super().__init__()
+        self.study = study
+        self.trials = trials
+        self.seed = seed
+        self.best_challenger = best_challenger
+        self.signals = RiskSignals()
+        self._cancel = threading.Event()
+        self.finished = threading.Event()
+        self.setAutoDelete(False)
+
+    def cancel(self) -> None:
+        self._cancel.set()
+
+    def run(self) -> None:
+        from core import risk
+
+        try:
+            result = risk.run_risk(self.study, self.trials, self.seed,
+                                   progress=lambda f: self.signals.progress.emit(int(100 * f)),
+                                   cancelled=self._cancel.is_set,
+                                   best_challenger=self.best_challenger)
+        except risk.RiskCancelled:
+            self.signals.cancelled.emit()
+        except Exception as exc:  # shown in the view, never a crash
+            self.signals.failed.emit(str(exc) or type(exc).__name__)
+        else:
+            self.signals.done.emit(result)
+        finally:
+            self.finished.set()
+
+
+def _plot(title: str, left: str, bottom: str) -> pg.PlotWidget:
+    plot = pg.PlotWidget(background="w")
+    plot.setTitle(title, color="k", size="10pt")
+    plot.setLabel("left", left)
+    plot.setLabel("bottom", bottom)
+    plot.showGrid(x=True, y=True, alpha=0.2)
+    plot.setMenuEnabled(False)
+    return plot
+
+
+def _money(x: float | None) -> str:
+    if x is None:
+        return "-"
+    from core.study import money
+
+    return money(x)
+
+
+def _value(x: float | None, address: str) -> str:
+    if x is None:
+        return "no flip"
+    rate = address == "marr" or address.endswith(("decline_rate", "growth"))
+    return f"{x:.2%}" if rate else _money(x)
+
+
+class RiskView(QWidget):
+    """The Risk tab (see the module docstring)."""
+
+    risk_ready = Signal(object)   # RiskResult, after a run in the view
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self._result: StudyResult | None = None
+        self._risk: Any = None
+        self._job: RiskJob | None = None
+        self.pool = QThreadPool(self)
+        self.pool.setMaxThreadCount(1)
+
+        self.trials = QSpinBox()
+        self.trials.setRange(100, 5_000_000)
+        self.trials.setSingleStep(10_000)
+        self.trials.setGroupSeparatorShown(True)
+        self.trials.setValue(20_000)
+        self.trials.setToolTip("Monte Carlo trials (each redraws every uncertain input)")
+        self.seed = QSpinBox()
+        self.seed.setRange(0, 2_147_483_647)
+        self.seed.setToolTip("Random seed: the same seed gives the same trials")
+        self.run_button = QPushButton("Run")
+        self.run_button.clicked.connect(self.run)
+        self.cancel_button = QPushButton("Cancel")
+        self.cancel_button.clicked.connect(self.cancel)
+        self.cancel_button.setEnabled(False)
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 100)
+        self.status = QLabel("No study.")
+        self.status.setWordWrap(True)
+        self.summary = QLabel("")
+        self.summary.setWordWrap(True)
+        self.summary.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+
+        bar = QHBoxLayout()
+        bar.addWidget(QLabel("Trials"))
+        bar.addWidget(self.trials)
+        bar.addWidget(QLabel("Seed"))
+        bar.addWidget(self.seed)
+        bar.addWidget(self.run_button)
+        bar.addWidget(self.cancel_button)
+        bar.addWidget(self.progress, 1)
+
+        self.tornado_plot = _plot("Tornado: AW difference, 10th to 90th percentile", "",
+                                  "AW difference (best challenger - defender)")
+        self.histogram_plot = _plot("AW difference across trials", "trials",
+                                    "AW difference (best challenger - defender)")
+        self.cumulative = QCheckBox("Cumulative")
+        self.cumulative.toggled.connect(self._draw_histogram)
+        self.map_plot = _plot("Where replacing wins (green) ", "MARR", "first cost")
+        for name in ("left", "bottom"):
+            self.map_plot.getAxis(name).enableAutoSIPrefix(False)
+        self.map_image = pg.ImageItem()
+        self.map_plot.addItem(self.map_image)
+        self.map_marker = pg.ScatterPlotItem(size=10, symbol="x", pen=pg.mkPen("k", width=2),
+                                             brush=pg.mkBrush("k"))
+        self.map_plot.addItem(self.map_marker)
+        self.breakeven_table = QTableWidget(0, 4)
+        self.breakeven_table.setHorizontalHeaderLabels(["input", "estimate", "breakeven",
+                                                        "searched"])
+        self.breakeven_table.horizontalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.ResizeToContents)
+        self.breakeven_table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        self.breakeven_table.verticalHeader().setVisible(False)
+
+        hist_box = QWidget()
+        hist_layout = QVBoxLayout(hist_box)
+        hist_layout.setContentsMargins(0, 0, 0, 0)
+        hist_layout.addWidget(self.histogram_plot, 1)
+        hist_layout.addWidget(self.cumulative)
+        be_box = QGroupBox("Breakeven: the value at which the recommendation flips "
+                           "(the rest at their estimates)")
+        be_layout = QVBoxLayout(be_box)
+        be_layout.addWidget(self.breakeven_table)
+
+        grid = QGridLayout()
+        grid.addWidget(self.tornado_plot, 0, 0)
+        grid.addWidget(hist_box, 0, 1)
+        grid.addWidget(be_box, 1, 0)
+        grid.addWidget(self.map_plot, 1, 1)
+
+        layout = QVBoxLayout(self)
+        layout.addLayout(bar)
+        layout.addWidget(self.status)
+        layout.addWidget(self.summary)
+        layout.addLayout(grid, 1)
+        self._arm()
+
+    # ------------------------------------------------------------------ state
+    def set_result(self, result: StudyResult | None) -> None:
+        """Show ``result`` (its risk analysis when it has one); a running job is cancelled."""
+        self.cancel()
+        self._result = result
+        study = None if result is None else result.study
+        unc = None if study is None else study.uncertainty
+        if unc is not None:
+            self.trials.setValue(min(max(unc.trials, self.trials.minimum()),
+                                     self.trials.maximum()))
+            if unc.seed is not None:
+                self.seed.setValue(min(unc.seed, self.seed.maximum()))
+        self.show_risk(None if result is None else result.risk)
+        self._arm()
+
+    def risk(self) -> Any:
+        """The RiskResult on show (None when there is none)."""
+        return self._risk
+
+    def is_running(self) -> bool:
+        return self._job is not None
+
+    def _arm(self) -> None:
+        study = None if self._result is None else self._result.study
+        can_run = study is not None and study.uncertainty is not None
+        self.run_button.setEnabled(can_run and self._job is None)
+        self.cancel_button.setEnabled(self._job is not None)
+        if self._job is not None:
+            return
+        if study is None:
+            self.status.setText("No study.")
+        elif study.uncertainty is None:
+            self.status.setText("This study has no uncertainty block: give distributions for "
+                                "its uncertain inputs to run a risk analysis.")
+        elif self._risk is None:
+            self.status.setText("Press Run to simulate.")
+
+    # ------------------------------------------------------------------ running
+    def run(self) -> None:
+        """Start the simulation on the worker pool (no-op while one runs)."""
+        if self._job is not None or self._result is None or self._result.study.uncertainty is None:
+            return
+        job = RiskJob(self._result.study, int(self.trials.value()), int(self.seed.value()),
+                      self._result.recommendation.best_challenger)
+        job.signals.progress.connect(self.progress.setValue)
+        job.signals.done.connect(self._done)
+        job.signals.failed.connect(self._failed)
+        job.signals.cancelled.connect(self._cancelled)
+        self._job = job
+        self.progress.setValue(0)
+        self.status.setText(f"Simulating {self.trials.value():,} trials...")
+        self._arm()
+        self.pool.start(job)
+
+    def cancel(self) -> None:
+        """Ask a running simulation to stop (it stops before its next chunk of trials)."""
+        if self._job is not None:
+            self._job.cancel()
+            self.status.setText("Cancelling...")
+
+    def shutdown(self, timeout_ms: int = 10_000) -> None:
+        """Cancel and wait for the worker (call before the window closes)."""
+        self.cancel()
+        self.pool.waitForDone(timeout_ms)
+
+    def _finish(self) -> None:
+        self._job = None
+        self._arm()
+
+    def _done(self, risk: Any) -> None:
+        self._finish()
+        self.progress.setValue(100)
+        self.show_risk(risk)
+        self.risk_ready.emit(risk)
+
+    def _failed(self, message: str) -> None:
+        self._finish()
+        self.status.setText(f"The risk analysis failed: {message}")
+
+    def _cancelled(self) -> None:
+        self._finish()
+        self.progress.setValue(0)
+        self.status.setText("Cancelled; the previous results (if any) stay on show.")
+
+    # ------------------------------------------------------------------ drawing
+    def show_risk(self, risk: Any) -> None:
+        """Draw a RiskResult (None clears the panels)."""
+        self._risk = risk
+        for plot in (self.tornado_plot, self.histogram_plot):
+            plot.clear()
+        self.map_image.clear()
+        self.map_marker.clear()
+        self.breakeven_table.setRowCount(0)
+        if risk is None:
+            self.summary.setText("")
+            return
+        data = risk.to_json()
+        s = data["annual_worth_difference"]
+        se = data["probability_replace_standard_error"]
+        self.summary.setText(
+            f"<b>Replace wins in {data['probability_replace']:.1%} of {data['trials']:,} "
+            f"trials</b> (standard error {se:.2%}; {data['basis']}; seed {data['seed']}). "
+            f"AW difference (best challenger minus defender, positive favours replacing): "
+            f"p10 {_money(s['p10'])}, median {_money(s['p50'])}, p90 {_money(s['p90'])}; "
+            f"mean {_money(s['mean'])} (standard error {_money(s['mean_standard_error'])}).")
+        self.status.setText(f"Base case: {data['base_case']['action']} "
+                            f"(AW difference {_money(data['base_case']['annual_worth_difference'])}).")
+        self._draw_tornado(risk)
+        self._draw_histogram()
+        self._draw_breakevens(risk)
+        self._draw_map(risk)
+
+    def _draw_tornado(self, risk: Any) -> None:
+        plot = self.tornado_plot
+        if plot.plotItem.legend is None:
+            plot.addLegend(offset=(-10, -10), labelTextColor="k")
+        plot.plotItem.legend.clear()
+        bars = list(risk.tornado)[::-1]   # widest on top
+        base = float(risk.base_difference)
+        ys = np.arange(len(bars), dtype=float)
+        if not bars:
+            return
+        lows = np.array([b.difference_at_low for b in bars])
+        highs = np.array([b.difference_at_high for b in bars])
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.6,
+                                     width=np.abs(lows - base), brush=LOW_COLOUR,
+                                     name="input at its 10th percentile"))
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, highs), y=ys, height=0.6,
+                                     width=np.abs(highs - base), brush=HIGH_COLOUR,
+                                     name="input at its 90th percentile"))
+        plot.addItem(pg.InfiniteLine(pos=base, angle=90, pen=pg.mkPen("k", width=1)))
+        plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
+                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                                  style=Qt.PenStyle.DashLine)))
+        axis = plot.getAxis("left")
+        axis.setTicks([[(float(y), b.address) for y, b in zip(ys, bars, strict=True)]])
+        width = max(len(b.address) for b in bars)
+        axis.setWidth(int(min(7 * width + 12, 320)))
+
+    def _draw_histogram(self, *_: Any) -> None:
+        plot = self.histogram_plot
+        plot.clear()
+        risk = self._risk
+        if risk is None:
+            return
+        if self.cumulative.isChecked():
+            d = np.sort(risk.simulation.difference[np.isfinite(risk.simulation.difference)])
+            if d.size:
+                step = max(1, d.size // 2000)
+                share = np.arange(1, d.size + 1) / d.size
+                plot.plot(d[::step], share[::step], pen=pg.mkPen(LOW_COLOUR, width=2))
+            plot.setLabel("left", "share of trials at or below")
+        else:
+            counts, edges = risk.histogram()
+            if counts.size:
+                plot.addItem(pg.BarGraphItem(x=0.5 * (edges[:-1] + edges[1:]), height=counts,
+                                             width=np.diff(edges), brush=LOW_COLOUR))
+            plot.setLabel("left", "trials")
+        plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
+                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                                  style=Qt.PenStyle.DashLine)))
+
+    def _draw_breakevens(self, risk: Any) -> None:
+        table = self.breakeven_table
+        table.setRowCount(len(risk.inputs))
+        for row, item in enumerate(risk.inputs):
+            lo, hi = risk.breakeven_ranges[item.address]
+            cells = [item.address, _value(item.estimate, item.address),
+                     _value(risk.breakeven[item.address], item.address),
+                     f"{_value(lo, item.address)} to {_value(hi, item.address)}"]
+            for col, text in enumerate(cells):
+                cell = QTableWidgetItem(text)
+                if col:
+                    cell.setTextAlignment(Qt.AlignmentFlag.AlignRight
+                                          | Qt.AlignmentFlag.AlignVCenter)
+                table.setItem(row, col, cell)
+
+    def _draw_map(self, risk: Any) -> None:
+        m = risk.two_way
+        if m is None:
+            return
+        xs, ys = np.asarray(m.x_values, float), np.asarray(m.y_values, float)
+        colours = np.array([KEEP_COLOUR, REPLACE_COLOUR], dtype=np.ubyte)
+        rgb = colours[np.asarray(m.replace, dtype=int)]          # (len(y), len(x), 3)
+        self.map_image.setImage(np.ascontiguousarray(rgb.transpose(1, 0, 2)), levels=(0, 255))
+        dx = (xs[-1] - xs[0]) / max(len(xs) - 1, 1)
+        dy = (ys[-1] - ys[0]) / max(len(ys) - 1, 1)
+        self.map_image.setRect(QRectF(xs[0] - dx / 2, ys[0] - dy / 2,
+                                      (xs[-1] - xs[0]) + dx or 1.0, (ys[-1] - ys[0]) + dy or 1e-3))
+        self.map_plot.setLabel("bottom", m.x_input)
+        self.map_plot.setLabel("left", m.y_input)
+        x0, y0 = m.x_estimate, m.y_estimate
+        self.map_marker.setData([x0], [y0])
+        self.map_plot.autoRange()
+
+    def map_image_array(self) -> np.ndarray | None:
+        """The RGB image of the two-way map (for tests)."""
+        return self.map_image.image
