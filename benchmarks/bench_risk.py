@@ -1,0 +1,141 @@
+"""Benchmark: the vectorised Monte Carlo against a naive per-trial loop, and the CLI cost.
+
+Run:  python benchmarks/bench_risk.py [--trials 200000] [--naive 2000]
+
+1. ``core.risk.simulate`` on a study with a defender and two challengers (lives
+   up to 25 years) and six uncertain inputs, 200,000 trials.
+2. The naive reference: for each trial, build the perturbed study and run
+   ``core.study.run_study`` on it (what a per-trial loop would do).  It is timed
+   on a subset (2,000 trials by default) and extrapolated linearly to the full
+   count; the decisions of the subset are checked against the vectorised ones.
+3. The whole ``tenure study --json`` command (a fresh process, imports included)
+   on that study with and without its uncertainty block; target: within 3x.
+
+Prints the timings side by side and the ratios.  Invented demo data (Harrowgate
+Fabrication Ltd., Millbrook site).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+from core import risk
+from core.study import run_study
+from core.studyfile import parse_study
+
+STUDY = {
+    "format": "tenure-study", "version": 1,
+    "title": "Millbrook CNC cell",
+    "marr": 0.09,
+    "defender": {"name": "Cell 2 lathe", "market_value": 38000, "max_life": 12,
+                 "market_values": {"decline_rate": 0.15},
+                 "operating_costs": {"first": 21000, "gradient": 1900},
+                 "extra_costs": [{"year": 3, "amount": 12000, "label": "spindle rebuild"}]},
+    "challengers": [
+        {"name": "Twin-spindle lathe", "first_cost": 165000, "max_life": 25,
+         "market_values": {"decline_rate": 0.12},
+         "operating_costs": {"first": 9000, "gradient": 650}},
+        {"name": "Turn-mill centre", "first_cost": 210000, "max_life": 20,
+         "market_values": {"values": [170000 * 0.9 ** k for k in range(20)]},
+         "operating_costs": {"first": 7000, "growth": 0.045},
+         "extra_costs": [{"year": 10, "amount": 25000, "label": "controller retrofit"}]}],
+    "uncertainty": {"trials": 200000, "seed": 2026, "inputs": {
+        "marr": {"normal": [0.09, 0.02]},
+        "Cell 2 lathe.operating_costs.first": {"triangular": [17000, 21000, 28000]},
+        "Cell 2 lathe.market_value": {"lognormal": [38000, 6000]},
+        "Twin-spindle lathe.first_cost": {"pert": [150000, 165000, 200000]},
+        "Twin-spindle lathe.market_values.decline_rate": {"uniform": [0.09, 0.16]},
+        "Turn-mill centre.operating_costs.growth": {"normal": [0.045, 0.015]}}},
+}
+
+
+def naive(study, draws: dict[str, np.ndarray], count: int) -> tuple[float, np.ndarray]:
+    """Per-trial loop over core.study.run_study; returns (seconds, replace flags)."""
+    flags = np.empty(count, dtype=bool)
+    start = time.perf_counter()
+    for t in range(count):
+        case = risk.perturbed_study(study, {a: float(v[t]) for a, v in draws.items()})
+        flags[t] = run_study(case).recommendation.action == "replace"
+    return time.perf_counter() - start, flags
+
+
+def cli_seconds(path: Path, repeats: int) -> float:
+    """Best wall time of ``tenure study PATH --json`` in a fresh interpreter."""
+    cmd = [sys.executable, "-c", "import sys; from core.cli import main; sys.exit(main())",
+           "study", str(path), "--json"]
+    best = float("inf")
+    for _ in range(repeats):
+        start = time.perf_counter()
+        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL,
+                       env={**os.environ, "PYTHONHASHSEED": "0"})
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--trials", type=int, default=200_000)
+    parser.add_argument("--naive", type=int, default=2_000, help="naive-loop subset size")
+    parser.add_argument("--repeats", type=int, default=3, help="CLI runs (best time kept)")
+    args = parser.parse_args()
+
+    obj = json.loads(json.dumps(STUDY))
+    obj["uncertainty"]["trials"] = args.trials
+    body = {k: v for k, v in obj.items() if k not in ("format", "version")}
+    study = parse_study(body)
+    print(f"study: {study.title}: defender + {len(study.challengers)} challengers, lives "
+          f"{[a.max_life for a in study.alternatives]}, {len(study.uncertainty.inputs)} "
+          f"uncertain inputs, {args.trials:,} trials")
+
+    risk.simulate(study, trials=2000)  # warm-up (imports, first allocations)
+    start = time.perf_counter()
+    sim = risk.simulate(study)
+    vec = time.perf_counter() - start
+    start = time.perf_counter()
+    full = risk.run_risk(study)
+    whole = time.perf_counter() - start
+
+    count = min(args.naive, args.trials)
+    draws = {a: v[:count] for a, v in risk.draw_inputs(study, count, sim.seed).items()}
+    loop, flags = naive(study, draws, count)
+    agree = bool(np.array_equal(flags, sim.replace[:count]))
+    extrapolated = loop * args.trials / count
+
+    print(f"\n{'':38}{'seconds':>10}{'trials/s':>14}")
+    print(f"{'vectorised simulate':38}{vec:10.3f}{args.trials / vec:14,.0f}")
+    print(f"{'run_risk (simulate + sensitivity)':38}{whole:10.3f}")
+    print(f"{f'naive loop, {count:,} trials (measured)':38}{loop:10.3f}{count / loop:14,.0f}")
+    print(f"{f'naive loop, {args.trials:,} (extrapolated)':38}{extrapolated:10.1f}")
+    print(f"speed-up vectorised vs naive: {extrapolated / vec:,.0f}x "
+          f"(naive timed on {count:,} trials and scaled linearly)")
+    print(f"decisions of the {count:,} naive trials agree with the vectorised run: {agree}")
+    print(f"probability_replace {sim.probability_replace:.4f} "
+          f"(standard error {sim.probability_standard_error:.4f})")
+    print(f"memo-facing JSON size: {len(json.dumps(full.to_json())):,} bytes")
+
+    with tempfile.TemporaryDirectory() as folder:
+        with_unc = Path(folder) / "with.json"
+        without = Path(folder) / "without.json"
+        with_unc.write_text(json.dumps(obj), encoding="utf-8")
+        plain = {k: v for k, v in obj.items() if k != "uncertainty"}
+        without.write_text(json.dumps(plain), encoding="utf-8")
+        t_without = cli_seconds(without, args.repeats)
+        t_with = cli_seconds(with_unc, args.repeats)
+    ratio = t_with / t_without
+    print(f"\n`tenure study --json` without uncertainty: {t_without:.3f} s; with "
+          f"{args.trials:,} trials: {t_with:.3f} s; ratio {ratio:.2f}x "
+          f"(target within 3x: {'met' if ratio <= 3 else 'NOT met'})")
+    return 0 if agree else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
