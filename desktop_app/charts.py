@@ -628,9 +628,22 @@ class ChartPanel(QWidget):
             esl = economic_life(aw)
         return int(esl)
 
-    def _recommendation(self) -> Any:
-        r = self._result
-        return r.recommendation if self.basis() == AFTER else r.before_tax_recommendation
+    def _options(self, r: Any) -> tuple[list[Any], bool]:
+        """(study-period options, after tax?) for the chosen basis.
+
+        With tax, ``result.study_period_options`` holds the after-tax options and
+        ``result.after_tax.before_tax_study_period_options`` the before-tax ones.
+        """
+        at = r.after_tax
+        after_options = getattr(at, "study_period_options", None) if at is not None else None
+        if self.basis() == AFTER and after_options:
+            return list(after_options), True
+        before = getattr(at, "before_tax_study_period_options", None) if at is not None else None
+        if before is not None:
+            return list(before), False
+        if at is not None and after_options is None:
+            return list(r.study_period_options), True  # replaced by the after-tax ones
+        return list(r.study_period_options), False
 
     def _basis_words(self, after: bool) -> str:
         return "after tax" if after else "before tax"
@@ -863,11 +876,7 @@ class ChartPanel(QWidget):
         options = []
         after = False
         if r is not None:
-            options = list(r.study_period_options)
-            if self.basis() == AFTER:
-                at = getattr(r.after_tax, "study_period_options", None)
-                if at:
-                    options, after = list(at), True
+            options, after = self._options(r)
         if r is None or not options:
             for bar in self._option_bars:
                 bar.setOpts(x=[], height=[])

@@ -1,0 +1,396 @@
+"""The results panel of the window: the recommendation, the key figures, warnings and cautions.
+
+``ResultsPanel.set_result`` shows a ``core.results.StudyResult``: a coloured
+badge (KEEP / REPLACE NOW / REPLACE IN N YEARS) with the recommendation's
+one-sentence reason, the basis (before or after tax), a table of each
+alternative's economic service life (ESL), AW and EAC at the ESL and rank, the
+replacement value against the defender's market value today, the
+one-more-year check, and the study's warnings.  The cautions of DESIGN.md §9
+are always shown, also with no result.  Nothing here computes economics.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QFrame,
+    QGroupBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QScrollArea,
+    QSizePolicy,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
+
+from desktop_app.charts import format_money, years_text
+
+__all__ = ["ResultsPanel", "badge_for", "caution_texts", "FALLBACK_CAUTIONS"]
+
+# DESIGN.md §9, used only when core.memo.cautions is not importable.
+FALLBACK_CAUTIONS = (
+    "Estimates are forecasts: the recommendation is only as good as the market values, "
+    "operating costs and service lives it rests on, and it should be revisited when they change.",
+    "Replacement required for safety, regulation or code overrides the economics.",
+    "Tax treatment is simplified; defer to a tax adviser for the tax position that applies.",
+    "Decommissioning and changeover follow site safety rules and local codes; defer to licensed "
+    "engineering practice where it applies.",
+)
+
+# Okabe & Ito colours: (background, text).
+BADGE_COLOURS = {
+    "keep": ("#009E73", "#ffffff"),
+    "replace-now": ("#D55E00", "#ffffff"),
+    "replace-later": ("#E69F00", "#000000"),
+    "none": ("#9a9a9a", "#ffffff"),
+}
+
+COLUMNS = ("Rank", "Alternative", "Role", "ESL", "AW at ESL", "EAC at ESL")
+
+
+def caution_texts() -> list[str]:
+    """The cautions of DESIGN.md §9: the memo's texts when available, else the built-in list."""
+    try:
+        from core.memo.cautions import caution_texts as memo_cautions
+    except ImportError:
+        return list(FALLBACK_CAUTIONS)
+    texts = list(memo_cautions())
+    return texts or list(FALLBACK_CAUTIONS)
+
+
+def badge_for(recommendation: Any) -> tuple[str, str]:
+    """(badge text, colour key) of a ``core.results.Recommendation``.
+
+    Replace now -> 'REPLACE NOW'; keep j years then a challenger (study period)
+    -> 'REPLACE IN j YEARS'; keep -> 'KEEP'.
+    """
+    if recommendation is None:
+        return "NO RESULT", "none"
+    if recommendation.action == "replace":
+        return "REPLACE NOW", "replace-now"
+    j = recommendation.defender_years
+    if recommendation.challenger is not None and j:
+        return f"REPLACE IN {years_text(int(j)).upper()}", "replace-later"
+    return "KEEP", "keep"
+
+
+def _percent(x: float) -> str:
+    return f"{100.0 * float(x):.2f} %".replace(".00 %", " %")
+
+
+class ResultsPanel(QWidget):
+    """Recommendation, key figures, warnings and the always-visible cautions of one result.
+
+    Signal ``alternativeActivated(str)``: a row of the key-figures table was
+    clicked (the main window may show that alternative's breakdown chart).
+    """
+
+    alternativeActivated = Signal(str)
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self._result: Any = None
+        self._currency = ""
+
+        self.badge = QLabel(self)
+        self.badge.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.badge.setSizePolicy(QSizePolicy.Policy.Maximum, QSizePolicy.Policy.Fixed)
+        self.basis_label = QLabel(self)
+        self.basis_label.setStyleSheet("color: #333333;")
+        self.basis_label.setWordWrap(True)
+        self.title_label = QLabel(self)
+        self.title_label.setStyleSheet("color: #333333;")
+        self.title_label.setWordWrap(True)
+        self.reason_label = QLabel(self)
+        self.reason_label.setWordWrap(True)
+        self.reason_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.reason_label.setStyleSheet("font-size: 12pt; font-weight: bold;")
+        self.before_tax_label = QLabel(self)
+        self.before_tax_label.setWordWrap(True)
+        self.before_tax_label.setStyleSheet("color: #333333;")
+
+        self.table = QTableWidget(0, len(COLUMNS), self)
+        self.table.setHorizontalHeaderLabels(list(COLUMNS))
+        self.table.verticalHeader().setVisible(False)
+        self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        header = self.table.horizontalHeader()
+        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
+        self.table.cellClicked.connect(self._row_clicked)
+        self.table.setToolTip("AW: annual worth, signed (costs negative; higher is better).\n"
+                              "EAC: equivalent annual cost = -AW (lower is better).\n"
+                              "ESL: economic service life, the retention with the best AW.")
+
+        self.replacement_label = QLabel(self)
+        self.one_more_year_label = QLabel(self)
+        self.extra_label = QLabel(self)
+        for label in (self.replacement_label, self.one_more_year_label, self.extra_label):
+            label.setWordWrap(True)
+            label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+
+        self.warnings_label = QLabel(self)
+        self.warnings_label.setWordWrap(True)
+        self.warnings_label.setStyleSheet(
+            "background: #fff4d6; border: 1px solid #E69F00; padding: 6px; color: #000000;")
+
+        figures = QGroupBox("Key figures", self)
+        fig_layout = QVBoxLayout(figures)
+        fig_layout.addWidget(self.table)
+        fig_layout.addWidget(self.replacement_label)
+        fig_layout.addWidget(self.one_more_year_label)
+        fig_layout.addWidget(self.extra_label)
+
+        head = QHBoxLayout()
+        head.addWidget(self.badge)
+        head.addSpacing(12)
+        head_text = QVBoxLayout()
+        head_text.addWidget(self.title_label)
+        head_text.addWidget(self.basis_label)
+        head.addLayout(head_text, 1)
+
+        body = QWidget(self)
+        body_layout = QVBoxLayout(body)
+        body_layout.setContentsMargins(0, 0, 0, 0)
+        body_layout.addLayout(head)
+        body_layout.addWidget(self.reason_label)
+        body_layout.addWidget(self.before_tax_label)
+        body_layout.addWidget(self.warnings_label)
+        body_layout.addWidget(figures)
+        body_layout.addStretch(1)
+        scroll = QScrollArea(self)
+        scroll.setWidgetResizable(True)
+        scroll.setFrameShape(QFrame.Shape.NoFrame)
+        scroll.setWidget(body)
+
+        # Cautions sit outside the scroll area: always visible.
+        self.cautions_box = QGroupBox("Cautions", self)
+        cautions_layout = QVBoxLayout(self.cautions_box)
+        cautions_layout.setContentsMargins(8, 4, 8, 4)
+        self.cautions_label = QLabel(self.cautions_box)
+        self.cautions_label.setWordWrap(True)
+        self.cautions_label.setTextFormat(Qt.TextFormat.RichText)
+        self.cautions_label.setStyleSheet("font-size: 8.5pt; color: #222222;")
+        cautions_layout.addWidget(self.cautions_label)
+        self._cautions = caution_texts()
+        self.cautions_label.setText("".join(f"<p style='margin:2px 0'>&bull; {_html(t)}</p>"
+                                            for t in self._cautions))
+
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.addWidget(scroll, 1)
+        layout.addWidget(self.cautions_box, 0)
+        self._render()
+
+    # ------------------------------------------------------------- public API
+    def set_result(self, result: Any) -> None:
+        """Show ``result`` (a ``core.results.StudyResult``), or the empty state for None."""
+        self._result = result
+        self._render()
+
+    def result(self) -> Any:
+        return self._result
+
+    def set_currency(self, symbol: str) -> None:
+        """The currency symbol put before amounts ('' for none)."""
+        self._currency = symbol or ""
+        self._render()
+
+    def badge_text(self) -> str:
+        return self.badge.text()
+
+    def recommendation_text(self) -> str:
+        return self.reason_label.text()
+
+    def basis_text(self) -> str:
+        return self.basis_label.text()
+
+    def caution_texts(self) -> list[str]:
+        """The cautions shown (always, with or without a result)."""
+        return list(self._cautions)
+
+    def warnings_text(self) -> str:
+        return self.warnings_label.text() if not self.warnings_label.isHidden() else ""
+
+    def figures_rows(self) -> list[tuple[str, ...]]:
+        """The key-figures table as text rows (columns as in ``COLUMNS``)."""
+        rows = []
+        for r in range(self.table.rowCount()):
+            rows.append(tuple(self.table.item(r, c).text() if self.table.item(r, c) else ""
+                              for c in range(self.table.columnCount())))
+        return rows
+
+    def figures_text(self) -> str:
+        """The sentences under the table (replacement value, one more year, extras)."""
+        return "\n".join(label.text() for label in
+                         (self.replacement_label, self.one_more_year_label, self.extra_label)
+                         if label.text())
+
+    # -------------------------------------------------------------- internals
+    def _money(self, value: float) -> str:
+        return format_money(value, self._currency)
+
+    def _row_clicked(self, row: int, _column: int) -> None:
+        item = self.table.item(row, 1)
+        if item is not None:
+            self.alternativeActivated.emit(item.text())
+
+    def _set_badge(self, text: str, key: str) -> None:
+        bg, fg = BADGE_COLOURS[key]
+        self.badge.setText(text)
+        self.badge.setStyleSheet(
+            f"background: {bg}; color: {fg}; font-size: 15pt; font-weight: bold; "
+            f"padding: 6px 14px; border-radius: 6px;")
+
+    def _render(self) -> None:
+        r = self._result
+        if r is None:
+            self._set_badge("NO RESULT", "none")
+            self.title_label.setText("")
+            self.basis_label.setText("")
+            self.reason_label.setText("Open or run a study to see its recommendation.")
+            self.before_tax_label.hide()
+            self.table.setRowCount(0)
+            for label in (self.replacement_label, self.one_more_year_label, self.extra_label):
+                label.setText("")
+            self.warnings_label.hide()
+            return
+        rec = r.recommendation
+        after = rec.basis == "after-tax"
+        study = r.study
+        self._set_badge(*badge_for(rec))
+        self.title_label.setText(f"<b>{_html(study.title)}</b>")
+        self.reason_label.setText(rec.reason)
+        self.basis_label.setText(self._basis_words(r, after))
+
+        before = r.before_tax_recommendation
+        if after and before is not None and before is not rec:
+            same = (before.action, before.challenger, before.defender_years) == (
+                rec.action, rec.challenger, rec.defender_years)
+            verdict = badge_for(before)[0].lower()
+            self.before_tax_label.setText(
+                f"Before tax the study says the same ({verdict})." if same else
+                f"Before tax the study would say {verdict}: {before.reason}")
+            self.before_tax_label.show()
+        else:
+            self.before_tax_label.hide()
+
+        self._fill_table(r, after)
+        self._fill_sentences(r, rec)
+        if r.warnings:
+            self.warnings_label.setText("Warnings:\n" + "\n".join(f"\u26a0 {w}" for w in r.warnings))
+            self.warnings_label.show()
+        else:
+            self.warnings_label.hide()
+
+    def _basis_words(self, r: Any, after: bool) -> str:
+        study = r.study
+        if after and study.tax is not None:
+            text = (f"Basis: after tax (tax rate {_percent(study.tax.rate)}, after-tax MARR "
+                    f"{_percent(study.tax.after_tax_marr)})")
+        else:
+            text = f"Basis: before tax (MARR {_percent(study.marr)}"
+            if abs(float(r.rate) - float(study.marr)) > 1e-12:
+                text += f"; rate used {_percent(r.rate)}"
+            text += ")"
+        if study.inflation is not None:
+            text += (f" · inflation {_percent(study.inflation.rate)}, estimates in "
+                     f"{'constant' if study.inflation.estimates == 'constant' else 'then-current'}"
+                     f" money")
+        if study.study_period:
+            text += f" · study period {years_text(int(study.study_period))}"
+        return text
+
+    def _figures(self, alt: Any, after: bool) -> tuple[int, float]:
+        """(ESL, AW at ESL) on the shown basis."""
+        at = alt.after_tax if after else None
+        if at is not None and getattr(at, "annual_worth", None) is not None:
+            esl = getattr(at, "economic_life", None)
+            aw_esl = getattr(at, "annual_worth_at_economic_life", None)
+            if esl is not None:
+                if aw_esl is None:
+                    aw_esl = float(at.annual_worth[int(esl) - 1])
+                return int(esl), float(aw_esl)
+        return int(alt.economic_life), float(alt.annual_worth_at_economic_life)
+
+    def _fill_table(self, r: Any, after: bool) -> None:
+        figures = {a.name: self._figures(a, after) for a in r.alternatives}
+        if after:
+            order = sorted(r.alternatives, key=lambda a: -round(figures[a.name][1], 2))
+            rank = {a.name: i + 1 for i, a in enumerate(order)}
+        else:
+            order = list(r.ranking)
+            rank = {a.name: a.rank for a in r.alternatives}
+        self.table.setRowCount(len(order))
+        right = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
+        for row, alt in enumerate(order):
+            esl, aw = figures[alt.name]
+            cells = (str(rank[alt.name]), alt.name, alt.role, years_text(esl),
+                     self._money(aw), self._money(-aw))
+            for col, text in enumerate(cells):
+                item = QTableWidgetItem(text)
+                if col in (0, 3, 4, 5):
+                    item.setTextAlignment(right)
+                if rank[alt.name] == 1:
+                    font = item.font()
+                    font.setBold(True)
+                    item.setFont(font)
+                self.table.setItem(row, col, item)
+        height = self.table.horizontalHeader().height() + 2 * self.table.frameWidth()
+        height += sum(self.table.rowHeight(i) for i in range(self.table.rowCount()))
+        self.table.setFixedHeight(height + 2)
+
+    def _fill_sentences(self, r: Any, rec: Any) -> None:
+        d = r.defender
+        best = rec.best_challenger
+        rv = rec.replacement_value
+        if rv is None:
+            self.replacement_label.setText(
+                f"Replacement value: not found. Market value of {d.name} today: "
+                f"{self._money(d.price)}.")
+        else:
+            favours = "replacing" if d.price > rv + 0.005 else (
+                "keeping" if d.price < rv - 0.005 else "neither")
+            text = (f"Replacement value {self._money(rv)}: the market value of {d.name} today "
+                    f"at which keeping it and replacing it with {best} cost the same. Its market "
+                    f"value today is {self._money(d.price)}, "
+                    f"{'above' if favours == 'replacing' else 'below' if favours == 'keeping' else 'equal to'}"
+                    f" the replacement value, which favours {favours}.")
+            if r.study.study_period:
+                text += " (Economic-life comparison, without the study period.)"
+            self.replacement_label.setText(text)
+        check = rec.one_more_year or {}
+        if check:
+            mc = float(check.get("defender_marginal_cost", 0.0))
+            eac = float(check.get("challenger_annual_cost", 0.0))
+            keep = bool(check.get("keep_next_year"))
+            year = int(check.get("year", 1))
+            self.one_more_year_label.setText(
+                f"One more year: the marginal cost of keeping {d.name} in year {year}, "
+                f"{self._money(mc)}, is {'below' if keep else 'not below'} {best}'s equivalent "
+                f"annual cost at its economic life, {self._money(eac)}: "
+                + ("keeping it one more year costs less." if keep else
+                   "keeping it another year costs more than replacing it."))
+        else:
+            self.one_more_year_label.setText("")
+        extras = []
+        if rec.action == "keep" and not r.study.study_period and rec.planned_defender_years:
+            extras.append(f"Under today's estimates {d.name} would be replaced after "
+                          f"{years_text(int(rec.planned_defender_years))}; restudy each year.")
+        risk = r.risk
+        p = getattr(risk, "probability_replace", None)
+        if p is not None:
+            extras.append(f"Risk analysis: {100.0 * float(p):.0f} % of trials say replace.")
+        self.extra_label.setText(" ".join(extras))
+
+
+def _html(text: str) -> str:
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
