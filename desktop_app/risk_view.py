@@ -331,8 +331,10 @@ class RiskView(QWidget):
         ys = np.arange(len(bars), dtype=float)
         if not bars:
             return
-        lows = np.array([b.difference_at_low for b in bars])
-        highs = np.array([b.difference_at_high for b in bars])
+        if not np.isfinite(base):
+            return  # no AW difference with this study period (see the notes)
+        lows = np.nan_to_num(np.array([b.difference_at_low for b in bars]), nan=base)
+        highs = np.nan_to_num(np.array([b.difference_at_high for b in bars]), nan=base)
         plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.6,
                                      width=np.abs(lows - base), brush=LOW_COLOUR,
                                      name="input at its 10th percentile"))

@@ -314,3 +314,16 @@ def test_market_values_follow_a_varying_price_only_with_a_decline_rate():
     # decline-rate market values scale with P: the shift is smaller than -dP (A/P,i,k)
     k = np.arange(1, 11)
     assert np.all(a[1] - a[0] > -60000.0 * ap(0.10, k))
+
+
+def test_study_period_without_a_replace_now_option():
+    # T = 14: no challenger lasts 14 years, so "replace now" cannot fill the period.
+    study = make(trials=200, study_period=14)
+    result = run_study(study).risk
+    assert result.probability_replace == 0.0
+    out = result.to_json()
+    assert out["annual_worth_difference"]["p50"] is None
+    assert any("undefined" in n for n in out["notes"])
+    assert all(v is None for v in out["breakeven"].values())
+    json.dumps(out, allow_nan=False)
+    assert "Replace wins in 0.0%" in result.format_text()

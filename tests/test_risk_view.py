@@ -69,3 +69,9 @@ def test_cancel(view, qtbot):
     assert not view.is_running()
     assert "Cancelled" in view.status.text()
     assert view.run_button.isEnabled()
+
+
+def test_shows_a_study_period_without_a_difference(view):
+    result = run_study(make(trials=200, study_period=14))
+    view.set_result(result)
+    assert "Replace wins in 0.0%" in view.summary.text()

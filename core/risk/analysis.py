@@ -420,7 +420,7 @@ class RiskResult:
         s = self.difference_summary()
 
         def m(v: float | None) -> str:
-            return "-" if v is None else money(v)
+            return "-" if v is None or not math.isfinite(v) else money(v)
 
         lines = [f"Risk ({self.basis}; {sim.trials:,} Monte Carlo trials, seed {sim.seed})",
                  f"Replace wins in {self.probability_replace:.1%} of trials "
@@ -428,15 +428,15 @@ class RiskResult:
                  "AW difference = best challenger's AW minus the defender's "
                  f"({'each at its ESL' if self.decision_rule.startswith('no study') else 'study-period options'}); "
                  "positive favours replacing.",
-                 f"  base case {money(self.base_difference)} ({self.base_action}); mean "
+                 f"  base case {m(self.base_difference)} ({self.base_action}); mean "
                  f"{m(s['mean'])} (standard error {m(s['mean_standard_error'])})",
                  "  percentiles: " + ", ".join(f"p{p} {m(s[f'p{p}'])}" for p in PERCENTILES)]
         lines += ["", "Tornado (each input from its 10th to 90th percentile, the rest at "
                   "their estimates):",
                   table(["input", "low", "high", "AW difference at low", "at high", "swing"],
                         [[b.address, _fmt(b.low_value), _fmt(b.high_value),
-                          money(b.difference_at_low), money(b.difference_at_high),
-                          money(b.swing)] for b in self.tornado])]
+                          m(b.difference_at_low), m(b.difference_at_high),
+                          m(b.swing)] for b in self.tornado])]
         lines += ["", "Breakeven (the value at which the recommendation flips, the rest at "
                   "their estimates):",
                   table(["input", "estimate", "breakeven", "searched"],
