@@ -63,17 +63,17 @@ def read_header(path: Path) -> dict:
         raise WorkbookError(path, f"cannot read ({exc.strerror or exc})") from None
     if size == 0:
         raise _refuse(path, "the file is empty")
+    if head[:16] != SQLITE_MAGIC[:len(head[:16])]:
+        raise _refuse(path, "not an SQLite database")
     if len(head) < 100:
         raise _refuse(path, f"truncated: {size} bytes, shorter than a database header")
-    if head[:16] != SQLITE_MAGIC:
-        raise _refuse(path, "not an SQLite database")
     page_size = int.from_bytes(head[16:18], "big")
     page_size = 65536 if page_size == 1 else page_size
     if page_size < 512 or page_size & (page_size - 1):
         raise _refuse(path, f"damaged header: page size {page_size}")
     app_id = int.from_bytes(head[68:72], "big")
     if app_id != APPLICATION_ID:
-        raise _refuse(path, f"an SQLite database of another program (application id {app_id:#x})")
+        raise _refuse(path, f"an SQLite database of another program, application id {app_id:#x}")
     pages = int.from_bytes(head[28:32], "big")
     header_count_valid = head[92:96] == head[24:28] and pages > 0
     hot = journal_path(path).exists() and journal_path(path).stat().st_size > 0

@@ -393,6 +393,9 @@ class Workbook:
         except (ValueError, StudyError) as exc:
             raise WorkbookError(self.path, f"the stored study of {tag} {year} is damaged "
                                            f"({exc})") from None
+        if fingerprint(study) != fp:
+            raise WorkbookError(self.path, f"the stored study of {tag} {year} is damaged "
+                                           "(its fingerprint does not match its estimates)")
         return StudyRecord(tag, year, study, result, fp, action, saved_at)
 
     def study(self, tag: str, year: int | None = None) -> Study:
