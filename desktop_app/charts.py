@@ -92,10 +92,10 @@ DASHES = (Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine,
 GREY = "#9a9a9a"
 
 VIEWS: tuple[tuple[str, str], ...] = (
-    ("aw", "Annual cost by retention"),
-    ("parts", "Capital recovery and operating"),
+    ("aw", "By retention"),
+    ("parts", "Cost parts"),
     ("marginal", "One more year"),
-    ("options", "Study-period options"),
+    ("options", "Study period"),
 )
 
 BEFORE, AFTER = "before-tax", "after-tax"
@@ -294,13 +294,18 @@ class ChartPanel(QWidget):
         self._updating = False
 
         self.tabs = QTabBar(self)
+        tips = {"aw": "Equivalent annual cost (or AW) of every alternative by years kept",
+                "parts": "Capital recovery and operating parts of one alternative",
+                "marginal": "The defender's marginal cost by year against the best challenger",
+                "options": "Keep-then-replace options over the study period"}
         for key, title in VIEWS:
             index = self.tabs.addTab(title)
             self.tabs.setTabData(index, key)
+            self.tabs.setTabToolTip(index, tips[key])
         self.tabs.setExpanding(False)
         self.alt_label = QLabel("Alternative:", self)
         self.alt_combo = QComboBox(self)
-        self.alt_combo.setMinimumContentsLength(14)
+        self.alt_combo.setMinimumContentsLength(10)
         self.basis_combo = QComboBox(self)
         self.basis_combo.addItem("Before tax", BEFORE)
         self.basis_combo.addItem("After tax", AFTER)
@@ -583,8 +588,8 @@ class ChartPanel(QWidget):
             has_options = r is not None and bool(r.study_period_options)
             options_index = [k for k, _ in VIEWS].index("options")
             self.tabs.setTabEnabled(options_index, has_options)
-            self.tabs.setTabToolTip(options_index, "" if has_options else
-                                    "This study has no study period")
+            self.tabs.setTabToolTip(options_index, "Keep-then-replace options over the study "
+                                    "period" if has_options else "This study has no study period")
             if not has_options and self.tabs.currentIndex() == options_index:
                 self.tabs.setCurrentIndex(0)
             self.stack.setCurrentIndex(self.tabs.currentIndex())
@@ -750,7 +755,7 @@ class ChartPanel(QWidget):
         aw, after_aw = self._data(alt, "annual_worth")
         note = ""
         if not (after_cr and after_op and after_aw) and self.basis() == AFTER:
-            note = " (after-tax parts not available: before tax shown)"
+            note = _note("The after-tax result has no capital-recovery and operating split: before-tax figures shown.")
         if cr is None or op is None or aw is None or not (after_cr and after_op and after_aw):
             cr = np.asarray(alt.capital_recovery, dtype=float)
             op = np.asarray(alt.operating, dtype=float)
@@ -818,7 +823,7 @@ class ChartPanel(QWidget):
         note = ""
         if mc is None:
             mc = np.asarray(d.marginal_cost, dtype=float)
-            note = " (after-tax marginal costs not available: before tax shown)"
+            note = _note("The after-tax result has no marginal costs: before-tax figures shown.")
         after = after_mc
         rec = r.recommendation if after else r.before_tax_recommendation
         best = r.alternative(rec.best_challenger)
@@ -838,10 +843,14 @@ class ChartPanel(QWidget):
         x_line = np.array([0.4, len(mc) + 0.6])
         self._challenger_line.setData(x_line, np.array([level, level]))
         short = "AW" if self.signed() else "cost"
-        plot.legend.addItem(self._mc_keep, "Defender's marginal cost of the year"
-                            if not self.signed() else "Defender's marginal AW of the year (-MC)")
+        if (~above).any():
+            plot.legend.addItem(self._mc_keep, f"Marginal cost below {best.name}'s EAC (keep)"
+                                if not self.signed() else
+                                f"Marginal AW (-MC) better than {best.name}'s AW (keep)")
         if above.any():
-            plot.legend.addItem(self._mc_over, f"Years costlier than {best.name}")
+            plot.legend.addItem(self._mc_over, f"Marginal cost above {best.name}'s EAC"
+                                if not self.signed() else
+                                f"Marginal AW (-MC) worse than {best.name}'s AW")
         plot.legend.addItem(self._challenger_line,
                             f"{best.name}: EAC at its ESL of {years_text(b_esl)}"
                             if not self.signed() else
@@ -888,7 +897,7 @@ class ChartPanel(QWidget):
         plot.set_message("")
         note = ""
         if self.basis() == AFTER and not after:
-            note = " (after-tax options not available: before tax shown)"
+            note = _note("The after-tax result has no study-period options: before-tax figures shown.")
         sign = self._sign()
         colour_of = {a.name: PALETTE[i % len(PALETTE)] for i, a in enumerate(r.alternatives)}
         groups: list[str | None] = [a.name for a in r.challengers
@@ -1010,16 +1019,21 @@ def _tolerant_svg_paths() -> Iterator[None]:
         module.correctCoordinates = original
 
 
+def _note(text: str) -> str:
+    """A second, smaller title line (HTML) for a caveat."""
+    return f"<br><span style='font-size:9pt; color:#8a4b00'>{text}</span>"
+
+
 def years_text(n: int) -> str:
     """'1 year', '6 years'."""
     return f"{n} year" if n == 1 else f"{n} years"
 
 
 def option_text(defender: str, option: Any, period: int | None) -> str:
-    """A study-period option in words: 'Keep Old press 2 y, then Screw 90 6 y'."""
+    """A study-period option in words: 'Keep Piston 40 2 years, then Screw 90 6 years'."""
     if option.challenger is None:
-        return f"Keep {defender} all {option.defender_years} y"
+        return f"Keep {defender} all {years_text(option.defender_years)}"
     if option.defender_years == 0:
-        return f"Replace now with {option.challenger} for {option.challenger_years} y"
-    return (f"Keep {defender} {option.defender_years} y, then {option.challenger} "
-            f"{option.challenger_years} y")
+        return f"Replace now with {option.challenger} for {years_text(option.challenger_years)}"
+    return (f"Keep {defender} {years_text(option.defender_years)}, then {option.challenger} "
+            f"{years_text(option.challenger_years)}")

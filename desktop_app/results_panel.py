@@ -142,9 +142,18 @@ class ResultsPanel(QWidget):
         self.warnings_label.setStyleSheet(
             "background: #fff4d6; border: 1px solid #E69F00; padding: 6px; color: #000000;")
 
+        self.table_caption = QLabel(self)
+        self.table_caption.setWordWrap(True)
+        self.table_caption.setStyleSheet("color: #333333;")
+        self.options_label = QLabel(self)
+        self.options_label.setWordWrap(True)
+        self.options_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+
         figures = QGroupBox("Key figures", self)
         fig_layout = QVBoxLayout(figures)
+        fig_layout.addWidget(self.table_caption)
         fig_layout.addWidget(self.table)
+        fig_layout.addWidget(self.options_label)
         fig_layout.addWidget(self.replacement_label)
         fig_layout.addWidget(self.one_more_year_label)
         fig_layout.addWidget(self.extra_label)
@@ -259,6 +268,8 @@ class ResultsPanel(QWidget):
             self.reason_label.setText("Open or run a study to see its recommendation.")
             self.before_tax_label.hide()
             self.table.setRowCount(0)
+            self.table_caption.setText("")
+            self.options_label.setText("")
             for label in (self.replacement_label, self.one_more_year_label, self.extra_label):
                 label.setText("")
             self.warnings_label.hide()
@@ -284,6 +295,7 @@ class ResultsPanel(QWidget):
             self.before_tax_label.hide()
 
         self._fill_table(r, after)
+        self._fill_options(r)
         self._fill_sentences(r, rec)
         if r.warnings:
             self.warnings_label.setText("Warnings:\n" + "\n".join(f"\u26a0 {w}" for w in r.warnings))
@@ -348,6 +360,38 @@ class ResultsPanel(QWidget):
         height += sum(self.table.rowHeight(i) for i in range(self.table.rowCount()))
         self.table.setFixedHeight(height + 2)
 
+    def _fill_options(self, r: Any) -> None:
+        """Caption of the ESL table and, with a study period, the best options in words."""
+        period = r.study.study_period
+        basis = "after tax" if r.recommendation.basis == "after-tax" else "before tax"
+        if not period:
+            self.table_caption.setText(f"Each alternative at its economic service life, {basis}; "
+                                       f"rank 1 has the least equivalent annual cost.")
+            self.options_label.setText("")
+            return
+        self.table_caption.setText(
+            f"Each alternative at its economic service life, {basis} (this ranking ignores the "
+            f"{int(period)}-year study period; the decision rests on the options below).")
+        feasible = [o for o in r.study_period_options
+                    if o.feasible and o.annual_worth is not None]
+        feasible.sort(key=lambda o: -round(float(o.annual_worth), 2))
+        infeasible = sum(1 for o in r.study_period_options if not o.feasible)
+        d = r.defender.name
+        lines = []
+        for i, o in enumerate(feasible[:3], start=1):
+            lines.append(f"{i}. {_option_words(d, o)}: EAC {self._money(-o.annual_worth)}")
+        more = len(feasible) - len(lines)
+        tail = []
+        if more > 0:
+            tail.append(f"{more} more feasible")
+        if infeasible:
+            tail.append(f"{infeasible} infeasible")
+        text = (f"Best study-period options over {years_text(int(period))}, {basis}:\n"
+                + "\n".join(lines))
+        if tail:
+            text += "\n(" + ", ".join(tail) + "; see the study-period chart.)"
+        self.options_label.setText(text)
+
     def _fill_sentences(self, r: Any, rec: Any) -> None:
         d = r.defender
         best = rec.best_challenger
@@ -390,6 +434,16 @@ class ResultsPanel(QWidget):
         if p is not None:
             extras.append(f"Risk analysis: {100.0 * float(p):.0f} % of trials say replace.")
         self.extra_label.setText(" ".join(extras))
+
+
+def _option_words(defender: str, option: Any) -> str:
+    """'Keep Old press 2 years, then New press 6 years' and the like."""
+    if option.challenger is None:
+        return f"Keep {defender} all {years_text(option.defender_years)}"
+    if option.defender_years == 0:
+        return f"Replace now with {option.challenger} for {years_text(option.challenger_years)}"
+    return (f"Keep {defender} {years_text(option.defender_years)}, then {option.challenger} "
+            f"{years_text(option.challenger_years)}")
 
 
 def _html(text: str) -> str:
