@@ -1,0 +1,224 @@
+"""Many replacement studies at once (a fleet): one numpy pass instead of one pass per study.
+
+``run_fleet(studies)`` returns exactly what ``[run_study(s) for s in studies]`` returns
+(the tests hold the two equal), but computes the AW schedules, ESLs, replacement values
+and the no-study-period decisions of every plain before-tax study in a handful of numpy
+calls over padded arrays:
+
+    alternatives stacked to shape (M, N), N = the longest max_life, a mask k <= max_life;
+    AW, CR, MC from ``annual_worth_schedule`` on the whole stack;
+    ESL_m = first argmax of round(AW_m, 2) over the valid k (ties to the shorter life);
+    RV = max_k [AW_D,k + P_D (A/P,i,k) - AW_c*] / (A/P,i,k)
+
+The RV line is the closed form of DESIGN.md §3: AW_D,k(P) = b_k - P (A/P,i,k) is linear
+and decreasing in the defender's market value P, so max_k AW_D,k(P) = AW_c* exactly where
+P = max_k (b_k - AW_c*)/(A/P,i,k) (``run_study`` finds the same P with a root finder, to
+1e-6).  Studies with tax, inflation or uncertainty, and the study-period options, go
+through ``core.study`` unchanged (their hooks are per study).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from core.annual_worth import annual_worth_schedule
+from core.estimates import Study
+from core.factors import ap, pa
+from core.results import AlternativeResult, Recommendation, StudyResult
+from core.study import CENT, decide, money, run_study, years
+from core.studyfile import fingerprint
+
+
+def _plain(study: Study) -> bool:
+    return study.tax is None and study.inflation is None and study.uncertainty is None
+
+
+def _stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
+    """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study)."""
+    alts = [a for s in studies for a in s.alternatives]
+    m = len(alts)
+    n = max(a.max_life for a in alts)
+    price = np.array([a.price for a in alts], dtype=float)
+    life = np.array([a.max_life for a in alts])
+    rate = np.array([s.marr for s in studies for _ in s.alternatives], dtype=float)
+    years_row = np.arange(1, n + 1, dtype=float)
+    S = np.zeros((m, n))
+    Op = np.zeros((m, n))
+    X = np.zeros((m, n))
+    decline = [(r, a.market_values.decline_rate or 0.0) for r, a in enumerate(alts)
+               if a.market_values.values is None]
+    if decline:
+        rows = np.array([r for r, _ in decline])
+        d = np.array([v for _, v in decline])
+        S[rows] = price[rows, None] * np.power(1.0 - d[:, None], years_row)
+    ages = years_row - 1.0
+    grad_rows, grad_first, grad_g, grow_rows, grow_first, grow_g = [], [], [], [], [], []
+    for r, a in enumerate(alts):
+        k = a.max_life
+        if a.market_values.values is not None:
+            S[r, :k] = a.market_values.values[:k]
+        oc = a.operating_costs
+        if oc.values is not None:
+            Op[r, :k] = oc.values[:k]
+        elif oc.growth is not None:
+            grow_rows.append(r)
+            grow_first.append(0.0 if oc.first is None else oc.first)
+            grow_g.append(oc.growth)
+        else:
+            grad_rows.append(r)
+            grad_first.append(0.0 if oc.first is None else oc.first)
+            grad_g.append(0.0 if oc.gradient is None else oc.gradient)
+        for extra in a.extra_costs:
+            if 1 <= extra.year <= k:
+                X[r, extra.year - 1] += extra.amount
+    if grad_rows:
+        Op[grad_rows] = np.array(grad_first)[:, None] + ages * np.array(grad_g)[:, None]
+    if grow_rows:
+        Op[grow_rows] = np.array(grow_first)[:, None] * np.power(1.0 + np.array(grow_g)[:, None],
+                                                                ages)
+    mask = years_row[None, :] <= life[:, None]
+    S = np.where(mask, S, 0.0)
+    Op = np.where(mask, Op, 0.0)
+    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask}
+
+
+def _warnings(study: Study, S: np.ndarray, rows: range, neg_s: np.ndarray,
+              neg_c: np.ndarray) -> list[str]:
+    """The same notes as ``core.study`` gives; ``neg_s``/``neg_c`` flag rows with any negative."""
+    notes = []
+    for alt, r in zip(study.alternatives, rows, strict=True):
+        if alt.role == "defender" and alt.price < 0:
+            notes.append(f"{alt.name}: market value today is negative (a net removal cost).")
+        if neg_s[r]:
+            negative = np.flatnonzero(S[r, :alt.max_life] < 0)
+            notes.append(f"{alt.name}: market value is negative in year(s) "
+                         f"{', '.join(str(int(j) + 1) for j in negative)} (a net removal cost).")
+        if neg_c[r]:
+            notes.append(f"{alt.name}: some yearly costs are negative (net income).")
+    if study.marr < 0:
+        notes.append("MARR is negative.")
+    return notes
+
+
+def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
+                              aw_at_esl: dict[str, float], rv: float, planned: int,
+                              check: dict) -> Recommendation:
+    """The sentence ``core.study.decide`` writes when there is no study period (kept equal by tests)."""
+    d_name = study.defender.name
+    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
+    if round(c_aw, 2) > round(d_best, 2):
+        reason = (f"Replace {d_name} now with {best}: its equivalent annual cost of "
+                  f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
+                  f"{money(c_aw - d_best)} a year less than the defender's best, "
+                  f"{money(-d_best)} over {years(esl[d_name])}.")
+        return Recommendation("replace", best, None, rv, "before-tax", reason, best, 0, check)
+    reason = (f"Keep {d_name}: its equivalent annual cost of {money(-d_best)} over "
+              f"its best remaining life of {years(esl[d_name])} is "
+              f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
+              f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
+              f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
+    return Recommendation("keep", None, None, rv, "before-tax", reason, best, max(planned, 1),
+                          check)
+
+
+def _run_plain(studies: Sequence[Study]) -> list[StudyResult]:
+    st = _stack(studies)
+    price, rate, mask, life = st["price"], st["rate"], st["mask"], st["life"]
+    C = st["O"] + st["X"]
+    sch = annual_worth_schedule(price, st["S"], C, rate)
+    aw = sch.annual_worth
+    n = aw.shape[1]
+    year_row = np.arange(1, n + 1, dtype=float)
+    rounded = np.where(mask, np.round(aw, 2), -np.inf)
+    esl = np.argmax(rounded, axis=1) + 1
+    m_index = np.arange(aw.shape[0])
+    at_esl = aw[m_index, esl - 1]
+    at_esl_r = np.round(at_esl, 2)
+
+    counts = np.array([len(s.alternatives) for s in studies])
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]])      # defender row of each study
+    k_max = int(counts.max()) - 1
+    ch_rows = first[:, None] + 1 + np.arange(k_max)[None, :]
+    ch_valid = np.arange(k_max)[None, :] < (counts - 1)[:, None]
+    ch_rows = np.where(ch_valid, ch_rows, first[:, None])
+    ch_score = np.where(ch_valid, at_esl_r[ch_rows], -np.inf)
+    best_rows = ch_rows[np.arange(len(studies)), np.argmax(ch_score, axis=1)]
+    target = at_esl[best_rows]                                   # AW_c* of each study
+
+    d_aw = aw[first]
+    d_mask = mask[first]
+    d_rate = rate[first]
+    cap = ap(d_rate[:, None], year_row)
+    rv_candidates = np.where(d_mask, (d_aw + price[first, None] * cap - target[:, None]) / cap,
+                             -np.inf)
+    rv = rv_candidates.max(axis=1)
+    keep_vals = d_aw * pa(d_rate[:, None], year_row) - target[:, None] * pa(d_rate[:, None],
+                                                                           year_row)
+    keep_vals = np.where(d_mask, np.round(keep_vals, 2), -np.inf)
+    keep_best = keep_vals.max(axis=1)
+    planned = np.where(keep_best > 0.0, np.argmax(keep_vals, axis=1) + 1, 0)
+    mc_next = -d_aw[:, 0]
+    neg_s = np.any(mask & (st["S"] < 0), axis=1).tolist()
+    neg_c = np.any(mask & (C < 0), axis=1).tolist()
+    out: list[StudyResult] = []
+    for s_i, study in enumerate(studies):
+        rows = range(int(first[s_i]), int(first[s_i] + counts[s_i]))
+        names = [a.name for a in study.alternatives]
+        esl_d = {nm: int(esl[r]) for nm, r in zip(names, rows, strict=True)}
+        at_d = {nm: float(at_esl[r]) for nm, r in zip(names, rows, strict=True)}
+        best = names[int(best_rows[s_i]) - rows.start]
+        c_aw = at_d[best]
+        rv_i = float(rv[s_i])
+        check = {"year": 1, "defender_marginal_cost": float(mc_next[s_i]),
+                 "challenger_annual_cost": -c_aw,
+                 "keep_next_year": bool(mc_next[s_i] < -c_aw - CENT)}
+        if study.study_period is None:
+            rec = _no_period_recommendation(study, best, esl_d, at_d, rv_i, int(planned[s_i]),
+                                            check)
+            options: list = []
+        else:
+            aw_map = {nm: aw[r, :life[r]] for nm, r in zip(names, rows, strict=True)}
+            rec, options, _ = decide(study, aw_map, float(rate[rows.start]), "before-tax",
+                                     lambda _target, value=rv_i: value)
+        order = sorted(names, key=lambda nm: -round(at_d[nm], 2))
+        results = []
+        for alt, r in zip(study.alternatives, rows, strict=True):
+            k = alt.max_life
+            results.append(AlternativeResult(
+                name=alt.name, role=alt.role, price=float(price[r]), max_life=k,
+                market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
+                extra_costs=st["X"][r, :k], annual_worth=aw[r, :k],
+                capital_recovery=sch.capital_recovery[r, :k], operating=sch.operating[r, :k],
+                marginal_cost=sch.marginal_cost[r, :k], economic_life=esl_d[alt.name],
+                annual_worth_at_economic_life=at_d[alt.name], rank=order.index(alt.name) + 1))
+        out.append(StudyResult(study=study, rate=float(rate[rows.start]),
+                               alternatives=tuple(results), recommendation=rec,
+                               before_tax_recommendation=rec, study_period_options=tuple(options),
+                               warnings=tuple(_warnings(study, st["S"], rows, neg_s, neg_c)),
+                               fingerprint=fingerprint(study)))
+    return out
+
+
+def run_fleet(studies: Sequence[Study]) -> list[StudyResult]:
+    """``run_study`` for every study, vectorised across the plain before-tax ones.
+
+    >>> from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+    >>> d = Alternative("Old press", "defender", 20000.0, 3, MarketValues(decline_rate=0.3),
+    ...                 OperatingCosts(first=9000.0, gradient=2500.0))
+    >>> c = Alternative("New press", "challenger", 60000.0, 8, MarketValues(decline_rate=0.2),
+    ...                 OperatingCosts(first=3000.0, gradient=500.0))
+    >>> (r,) = run_fleet([Study("Press line", 0.10, d, (c,))])
+    >>> r.recommendation.action, r.defender.economic_life, round(r.recommendation.replacement_value, 2)
+    ('replace', 1, 18062.4)
+    """
+    plain = [k for k, s in enumerate(studies) if _plain(s)]
+    out: list[StudyResult | None] = [None] * len(studies)
+    if plain:
+        for k, result in zip(plain, _run_plain([studies[k] for k in plain]), strict=True):
+            out[k] = result
+    for k, study in enumerate(studies):
+        if out[k] is None:
+            out[k] = run_study(study)
+    return out  # type: ignore[return-value]

@@ -1,0 +1,133 @@
+"""The vectorised fleet path (core.fleet) must give exactly what run_study gives, study by study.
+
+Sources: core.study.run_study as the reference (itself checked against hand calculations and
+numpy-financial in test_engine.py); "hand calculation" for the closed-form replacement value.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import random
+
+import numpy as np
+import pytest
+from conftest import document
+
+from core.cli import main
+from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
+from core.fleet import run_fleet
+from core.results import _list
+from core.study import run_study
+
+
+def _random_alt(rng: random.Random, name: str, role: str) -> Alternative:
+    life = rng.randint(1, 14)
+    price = round(rng.uniform(-2000 if role == "defender" else 0, 90000), 2)
+    if rng.random() < 0.5 and price >= 0:
+        mv = MarketValues(decline_rate=round(rng.uniform(-0.05, 0.6), 3))
+    else:
+        mv = MarketValues(values=tuple(round(rng.uniform(-3000, 60000), 2)
+                                       for _ in range(life + rng.randint(0, 2))))
+    pick = rng.random()
+    if pick < 0.25:
+        oc = OperatingCosts(values=tuple(round(rng.uniform(-500, 20000), 2) for _ in range(life)))
+    elif pick < 0.5:
+        oc = OperatingCosts(first=round(rng.uniform(0, 15000), 2),
+                            gradient=round(rng.uniform(-200, 3000), 2))
+    elif pick < 0.75:
+        oc = OperatingCosts(first=round(rng.uniform(0, 15000), 2),
+                            growth=round(rng.uniform(-0.1, 0.2), 3))
+    else:
+        oc = OperatingCosts(first=round(rng.uniform(0, 15000), 2))
+    extras = tuple(ExtraCost(rng.randint(1, life), round(rng.uniform(100, 20000), 2), "overhaul")
+                   for _ in range(rng.randint(0, 2)))
+    return Alternative(name, role, price, life, mv, oc, extras)
+
+
+def _random_study(rng: random.Random, k: int) -> Study:
+    d = _random_alt(rng, "Existing unit", "defender")
+    chs = tuple(_random_alt(rng, f"Option {c}", "challenger") for c in range(rng.randint(1, 4)))
+    period = None
+    if rng.random() < 0.3:
+        period = rng.randint(1, d.max_life + max(c.max_life for c in chs))
+    marr = rng.choice([0.0, 0.05, 0.1, 0.18, -0.03, round(rng.uniform(0.01, 0.2), 4)])
+    return Study(f"Ouseburn Yard asset {k}", marr, d, chs, study_period=period)
+
+
+def _same(a, b) -> None:
+    assert a.study is b.study and a.rate == b.rate and a.fingerprint == b.fingerprint
+    assert a.warnings == b.warnings
+    ra, rb = a.recommendation, b.recommendation
+    assert dataclasses.replace(ra, replacement_value=None) == \
+        dataclasses.replace(rb, replacement_value=None)
+    # run_study finds the RV with brentq (xtol 1e-6); the fleet uses the closed form.
+    assert ra.replacement_value == pytest.approx(rb.replacement_value, rel=1e-9, abs=1e-5)
+    assert a.study_period_options == b.study_period_options
+    for x, y in zip(a.alternatives, b.alternatives, strict=True):
+        for field in dataclasses.fields(x):
+            u, v = getattr(x, field.name), getattr(y, field.name)
+            if isinstance(u, np.ndarray):
+                assert np.array_equal(u, v), field.name
+            else:
+                assert u == v, field.name
+
+
+def test_fleet_equals_run_study_on_random_studies() -> None:
+    # Source: core.study.run_study (reference), 300 random studies with every estimate form.
+    rng = random.Random(20261202)
+    studies = [_random_study(rng, k) for k in range(300)]
+    for a, b in zip(run_fleet(studies), [run_study(s) for s in studies], strict=True):
+        _same(a, b)
+
+
+def test_fleet_falls_back_for_hooked_studies() -> None:
+    # Source: core.study.run_study; a study with inflation goes through run_study itself.
+    from core.estimates import Inflation
+
+    rng = random.Random(3)
+    plain = _random_study(rng, 1)
+    hooked = dataclasses.replace(_random_study(rng, 2), inflation=Inflation(0.03, "constant"))
+    out = run_fleet([plain, hooked])
+    _same(out[0], run_study(plain))
+    _same(out[1], run_study(hooked))
+
+
+def test_closed_form_replacement_value_by_hand() -> None:
+    # Source: hand calculation at i = 0 (see test_engine.py): RV = max(9.75, 8.5, 5.25) = 9.75.
+    d = Alternative("Old press", "defender", 10.0, 3, MarketValues(values=(6.0, 3.0, 1.0)),
+                    OperatingCosts(values=(2.0, 4.0, 7.0)))
+    c = Alternative("New press", "challenger", 20.0, 4, MarketValues(values=(12.0, 8.0, 5.0, 3.0)),
+                    OperatingCosts(values=(1.0, 1.0, 2.0, 2.0)))
+    (r,) = run_fleet([Study("Hand", 0.0, d, (c,))])
+    assert r.recommendation.replacement_value == pytest.approx(9.75, abs=1e-12)
+
+
+def test_rounding_helper_matches_python_round() -> None:
+    # Source: Python's round() (correctly rounded) as reference, including exact halves.
+    rng = np.random.default_rng(11)
+    x = np.concatenate([rng.uniform(-1e5, 1e5, 20000), np.round(rng.uniform(-1e5, 1e5, 20000), 5),
+                        [0.5e-4, -0.5e-4, 1.00005, 2.5e13, -0.0, 0.0]])
+    assert _list(x) == [round(float(v), 4) for v in x]
+    assert _list(x, 2) == [round(float(v), 2) for v in x]
+
+
+def test_cli_fleet_output_equals_single_runs(capsys, write_json) -> None:
+    # Source: DESIGN.md §6 (one JSON object {"studies": [...]}); run_study per study as reference.
+    rng = random.Random(8)
+    studies = [_random_study(rng, k) for k in range(12)]
+    from core.studyfile import dump_study_document
+
+    file = write_json(dump_study_document(studies))
+    assert main(["study", str(file), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert list(out) == ["studies"]
+    want = [run_study(s).to_json() for s in studies]
+    for got, ref in zip(out["studies"], want, strict=True):
+        ref_rv = ref["recommendation"].pop("replacement_value")
+        got_rv = got["recommendation"].pop("replacement_value")
+        assert got_rv == pytest.approx(ref_rv, abs=0.011)
+        assert got == ref
+    one = write_json(document(), "one.json")
+    assert main(["study", str(one), "--json"]) == 0
+    assert len(json.loads(capsys.readouterr().out)["studies"]) == 1
