@@ -23,7 +23,22 @@ def _r(x: float | None, digits: int = 4) -> float | None:
 
 
 def _list(a: np.ndarray, digits: int = 4) -> list[float]:
-    return [round(float(v), digits) for v in np.asarray(a)]
+    """``[round(float(v), digits) for v in a]``, vectorised.
+
+    np.round (x * 10^d, rint, / 10^d) gives the same double as Python's correctly rounded
+    ``round`` unless x * 10^d lies within rounding error of a half (or is huge), so those
+    few elements are rounded by Python.
+
+    >>> _list(np.array([41943.78005, -29413.33365, 0.123456, 2.5e12]))
+    [41943.7801, -29413.3337, 0.1235, 2500000000000.0]
+    """
+    x = np.asarray(a, dtype=float).ravel()
+    scaled = x * 10.0**digits
+    values = np.round(x, digits).tolist()
+    risky = ~(np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) > 1e-6) | ~(np.abs(scaled) < 1e9)
+    for k in np.flatnonzero(risky).tolist():
+        values[k] = round(float(x[k]), digits)
+    return values
 
 
 @dataclass(frozen=True)
