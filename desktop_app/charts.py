@@ -141,6 +141,32 @@ class YearAxis(pg.AxisItem):
         return [f"{round(v):d}" if abs(v - round(v)) < 1e-6 else "" for v in values]
 
 
+class _Legend:
+    """A pyqtgraph legend that is rebuilt only when its entries change (rebuilding is slow)."""
+
+    def __init__(self, legend: pg.LegendItem) -> None:
+        self.item = legend
+        self._shown: list[tuple[int, str]] = []
+        self._pending: list[tuple[Any, str]] = []
+
+    def clear(self) -> None:
+        self._pending = []
+
+    def addItem(self, item: Any, label: str) -> None:  # noqa: N802 (pyqtgraph naming)
+        self._pending.append((item, label))
+
+    def commit(self) -> None:
+        wanted = [(id(item), label) for item, label in self._pending]
+        if wanted != self._shown:
+            self.item.clear()
+            for item, label in self._pending:
+                self.item.addItem(item, label)
+            self._shown = wanted
+
+    def labels(self) -> list[str]:
+        return [label for _id, label in self._shown]
+
+
 @dataclass
 class _Target:
     """A point (or bar) the hover read-out can report."""
@@ -176,10 +202,12 @@ class _Plot(pg.PlotWidget):
         # An invisible border path ends in "Z", which pyqtgraph's SVG exporter cannot parse.
         item.getViewBox().border = None
         # The legend sits in its own row under the x axis, so it never hides data.
-        self.legend = pg.LegendItem(offset=None, labelTextColor="k", labelTextSize="9pt",
-                                    colCount=3, horSpacing=24, verSpacing=-4)
-        item.layout.addItem(self.legend, 4, 1)
-        item.layout.setAlignment(self.legend, Qt.AlignmentFlag.AlignHCenter)
+        legend = pg.LegendItem(offset=None, labelTextColor="k", labelTextSize="9pt",
+                               colCount=3, horSpacing=24, verSpacing=-4)
+        item.layout.addItem(legend, 4, 1)
+        item.layout.setAlignment(legend, Qt.AlignmentFlag.AlignHCenter)
+        self.legend = _Legend(legend)
+        self._texts: dict[str, str] = {}
         self.targets: list[_Target] = []
         self.labels: list[pg.TextItem] = []
         self.crosshair = pg.InfiniteLine(angle=90, movable=False,
@@ -212,6 +240,17 @@ class _Plot(pg.PlotWidget):
         t.setPos(x, y)
         t.show()
         return t
+
+    def set_title(self, text: str) -> None:
+        """The plot title (unchanged text is not re-laid out)."""
+        if self._texts.get("title") != text:
+            self._texts["title"] = text
+            self.getPlotItem().setTitle(text, color="k", size="11pt")
+
+    def set_axis_label(self, axis: str, text: str) -> None:
+        if self._texts.get(axis) != text:
+            self._texts[axis] = text
+            self.getPlotItem().setLabel(axis, text, color="k")
 
     def fit_left_axis(self, *arrays: np.ndarray) -> None:
         """Fix the value axis width to its widest tick label (Qt lays it out late otherwise)."""
@@ -292,6 +331,7 @@ class ChartPanel(QWidget):
         self._series: dict[str, dict[str, tuple[np.ndarray, np.ndarray]]] = {
             key: {} for key, _ in VIEWS}
         self._updating = False
+        self._dirty: set[str] = {key for key, _ in VIEWS}
 
         self.tabs = QTabBar(self)
         tips = {"aw": "Equivalent annual cost (or AW) of every alternative by years kept",
@@ -501,6 +541,8 @@ class ChartPanel(QWidget):
         (defender years j, EAC or AW; NaN where infeasible).
         Values follow the sign toggle: EAC/costs positive, or signed AW (costs negative).
         """
+        if self.view() in self._dirty:
+            self._draw(self.view())
         return dict(self._series[self.view()])
 
     def hover_text(self, x: float, y: float) -> str:
@@ -515,6 +557,8 @@ class ChartPanel(QWidget):
         """Write the current chart to ``path``: PNG (``width`` pixels wide) or SVG, by suffix."""
         path = Path(path)
         suffix = path.suffix.lower()
+        if self.view() in self._dirty:
+            self._draw(self.view())
         item = self.plots[self.view()].getPlotItem()
         for plot in self.plots.values():
             plot.hide_readout()
@@ -552,13 +596,18 @@ class ChartPanel(QWidget):
     def _tab_changed(self, index: int) -> None:
         self.stack.setCurrentIndex(index)
         self._sync_visibility()
+        if self.view() in self._dirty:
+            self._draw(self.view())
         if not self._updating:
             self.viewChanged.emit(self.view())
 
     def _alt_changed(self, _index: int) -> None:
         if self._updating:
             return
-        self._draw_parts()
+        if self.view() == "parts":
+            self._draw("parts")
+        else:
+            self._dirty.add("parts")
         name = self.alternative()
         if name:
             self.alternativeChanged.emit(name)
@@ -604,14 +653,17 @@ class ChartPanel(QWidget):
         self.basis_combo.setVisible(self.has_after_tax())
 
     def _redraw(self) -> None:
+        """Redraw the current view now; the others when they are next shown."""
         if self._updating:
             return
-        for plot in self.plots.values():
-            plot.hide_readout()
-        self._draw_aw()
-        self._draw_parts()
-        self._draw_marginal()
-        self._draw_options()
+        self._dirty = {key for key, _ in VIEWS}
+        self._draw(self.view())
+
+    def _draw(self, key: str) -> None:
+        self.plots[key].hide_readout()
+        {"aw": self._draw_aw, "parts": self._draw_parts, "marginal": self._draw_marginal,
+         "options": self._draw_options}[key]()
+        self._dirty.discard(key)
 
     # Data selection (basis) --------------------------------------------------
     def _data(self, alt: Any, field: str) -> tuple[np.ndarray | None, bool]:
@@ -670,18 +722,20 @@ class ChartPanel(QWidget):
         plot.targets = []
         plot.hide_labels()
         self._series[key] = {}
-        plot.getPlotItem().setTitle("")
+        plot.set_title("")
+        plot.legend.clear()
+        plot.legend.commit()
         plot.set_message(text)
 
     def _finish(self, key: str) -> None:
         plot = self.plots[key]
+        plot.legend.commit()
         plot.getPlotItem().enableAutoRange()
         plot.fit_left_axis(*(y for _x, y in self._series[key].values()))
 
     # Views ------------------------------------------------------------------
     def _draw_aw(self) -> None:
         plot = self.plots["aw"]
-        item = plot.getPlotItem()
         r = self._result
         plot.legend.clear()
         if r is None:
@@ -731,15 +785,14 @@ class ChartPanel(QWidget):
         plot.targets = targets
         self._series["aw"] = series
         what = "Annual worth" if self.signed() else "Equivalent annual cost"
-        item.setTitle(f"{what} by retention period, {self._basis_words(any_after)} "
-                      f"(stars: economic service life)", color="k", size="11pt")
-        item.setLabel("left", axis_title, color="k")
-        item.setLabel("bottom", "Years kept (retention period k)", color="k")
+        plot.set_title(f"{what} by retention period, {self._basis_words(any_after)} "
+                      f"(stars: economic service life)")
+        plot.set_axis_label("left", axis_title)
+        plot.set_axis_label("bottom", "Years kept (retention period k)")
         self._finish("aw")
 
     def _draw_parts(self) -> None:
         plot = self.plots["parts"]
-        item = plot.getPlotItem()
         r = self._result
         name = self.alt_combo.currentText()
         if r is None or not name:
@@ -800,15 +853,14 @@ class ChartPanel(QWidget):
             targets.append(_Target(x, float(op_v[j]),
                                    f"{name}, {years_text(y)}: operating {self._money(op_v[j])}"))
         plot.targets = targets
-        item.setTitle(f"{name}: capital recovery and operating parts, "
-                      f"{self._basis_words(after)}{note}", color="k", size="11pt")
-        item.setLabel("left", axis_title, color="k")
-        item.setLabel("bottom", "Years kept (retention period k)", color="k")
+        plot.set_title(f"{name}: capital recovery and operating parts, "
+                      f"{self._basis_words(after)}{note}")
+        plot.set_axis_label("left", axis_title)
+        plot.set_axis_label("bottom", "Years kept (retention period k)")
         self._finish("parts")
 
     def _draw_marginal(self) -> None:
         plot = self.plots["marginal"]
-        item = plot.getPlotItem()
         r = self._result
         plot.legend.clear()
         if r is None:
@@ -869,17 +921,16 @@ class ChartPanel(QWidget):
                                    f"{self._money(values[j])}\n{verdict} than {best.name} "
                                    f"({self._money(level)})", bar_width=0.6))
         plot.targets = targets
-        item.setTitle(f"One more year? {d.name}'s marginal cost by year against {best.name}, "
-                      f"{self._basis_words(after)}{note}", color="k", size="11pt")
+        plot.set_title(f"One more year? {d.name}'s marginal cost by year against {best.name}, "
+                      f"{self._basis_words(after)}{note}")
         unit = f"{self._currency} per year" if self._currency else "per year"
-        item.setLabel("left", (f"Cost of the year ({unit}; costs positive)" if not self.signed()
-                               else f"Signed annual worth ({unit}; costs negative)"), color="k")
-        item.setLabel("bottom", f"Year of keeping {d.name} (j)", color="k")
+        plot.set_axis_label("left", (f"Cost of the year ({unit}; costs positive)" if not self.signed()
+                               else f"Signed annual worth ({unit}; costs negative)"))
+        plot.set_axis_label("bottom", f"Year of keeping {d.name} (j)")
         self._finish("marginal")
 
     def _draw_options(self) -> None:
         plot = self.plots["options"]
-        item = plot.getPlotItem()
         r = self._result
         plot.legend.clear()
         options = []
@@ -966,11 +1017,10 @@ class ChartPanel(QWidget):
             plot.hide_labels()
         plot.targets = targets
         self._series["options"] = series
-        item.setTitle(f"Study-period options over {period} years, {self._basis_words(after)}"
-                      f"{note}", color="k", size="11pt")
-        item.setLabel("left", axis_title, color="k")
-        item.setLabel("bottom", f"Years keeping {r.study.defender.name} before replacing (j)",
-                      color="k")
+        plot.set_title(f"Study-period options over {period} years, {self._basis_words(after)}"
+                      f"{note}")
+        plot.set_axis_label("left", axis_title)
+        plot.set_axis_label("bottom", f"Years keeping {r.study.defender.name} before replacing (j)")
         self._finish("options")
 
     # Hover -------------------------------------------------------------------
