@@ -9,7 +9,6 @@ here: the dialog calls :func:`core.memo.issue.issue_memo`.
 
 from __future__ import annotations
 
-import inspect
 import re
 from pathlib import Path
 from typing import Any
@@ -34,6 +33,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.memo.cautions import caution_texts
+from core.memo.register import record_in_workbook
 from core.memo.render import MemoOptions
 from core.memo.sign import ROLES
 
@@ -73,42 +73,6 @@ class MemoJob(QRunnable):
             self.signals.done.emit(issued)
         finally:
             self.passphrase = None
-
-
-def record_in_workbook(workbook_path: str | None, issued: Any) -> str | None:
-    """Record the memo in the workbook's register, if the workbook API offers it.
-
-    Returns None when recorded (or nothing to do), else a short note why not.
-    Passes only the keyword arguments ``core.workbook.record_memo`` accepts.
-    """
-    if not workbook_path:
-        return None
-    try:
-        from core import workbook  # lazily: another helper's package
-    except Exception:  # noqa: BLE001
-        return "the workbook register is not available in this build"
-    fn = getattr(workbook, "record_memo", None)
-    if not callable(fn):
-        return "the workbook register is not available in this build"
-    meta = {
-        "memo_path": issued.path, "pdf_path": issued.path, "memo": issued.path,
-        "fingerprint": issued.fingerprint, "study_fingerprint": issued.fingerprint,
-        "title": issued.title, "study_title": issued.title,
-        "signer": issued.signed_by, "signed_by": issued.signed_by, "role": issued.role,
-        "certificate_sha256": issued.signer_cert_sha256,
-    }
-    try:
-        params = list(inspect.signature(fn).parameters.values())
-        named = [p for p in params[1:]
-                 if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
-        kwargs = {p.name: meta[p.name] for p in named if p.name in meta}
-        if any(p.kind == p.VAR_KEYWORD for p in params):
-            for k in ("memo_path", "fingerprint", "title", "signer", "role"):
-                kwargs.setdefault(k, meta[k])
-        fn(workbook_path, **kwargs)
-    except Exception as exc:  # noqa: BLE001 - the memo is issued either way
-        return f"not recorded in the workbook ({exc})"
-    return None
 
 
 def _safe_name(title: str) -> str:

@@ -478,3 +478,23 @@ def test_user_trust_folder(signed, ids, tmp_path, monkeypatch):
     monkeypatch.setattr(verify_mod, "user_trust_dir", lambda: folder)
     assert verify_memo_bytes(signed).all_trusted
     assert not verify_memo_bytes(signed, use_user_trust=False).all_trusted
+
+
+def test_memo_of_a_workbook_study_is_recorded_in_its_register(ids, tmp_path, capsys):
+    wbmod = pytest.importorskip("core.workbook")
+    demo = pytest.importorskip("core.demo")
+    book = tmp_path / "plant.tenure"
+    demo.build_demo(book)
+    studies = wbmod.studies_from_workbook(book)
+    title = studies[0].title
+    out = tmp_path / "m.pdf"
+    rc = main(["memo", str(book), "--study", title, "-o", str(out),
+               "--sign", str(ids["a"]), "--passphrase-file", str(ids["pw"])])
+    captured = capsys.readouterr()
+    assert rc == 0, captured.err
+    assert "recorded in the memo register" in captured.out
+    with wbmod.Workbook.open(book, write=False) as wb:
+        memos = wb.memos()
+    assert memos and memos[-1].fingerprint == fingerprint(studies[0])
+    assert memos[-1].signer == "Priya Natarajan"
+    assert verify_memo(out, use_user_trust=False).integrity_ok

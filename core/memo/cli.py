@@ -76,6 +76,17 @@ def load_one_study(path: str, title: str | None):
     return studies[0]
 
 
+def _is_workbook(path: str) -> bool:
+    p = Path(path)
+    if p.suffix.lower() == ".tenure":
+        return True
+    try:
+        with p.open("rb") as fh:
+            return fh.read(16) == b"SQLite format 3\x00"
+    except OSError:
+        return False
+
+
 def _passphrase(args) -> bytes:
     from core.memo.identity import read_passphrase_file
 
@@ -116,6 +127,14 @@ def run_memo(args: argparse.Namespace) -> int:
     print(f"study: {study.title}")
     print(f"study fingerprint: {issued.fingerprint}")
     print(f"pages: {issued.pages}; page size: {args.page_size}")
+    if _is_workbook(args.file):
+        from core.memo.register import record_in_workbook
+
+        note = record_in_workbook(str(args.file), issued)
+        if note:
+            print(f"note: {args.file}: {note}", file=sys.stderr)
+        else:
+            print(f"recorded in the memo register of {args.file}")
     if issued.signed_by:
         print(f"signed: {issued.role} by {issued.signed_by}")
     else:
