@@ -19,14 +19,16 @@ through ``core.study`` unchanged (their hooks are per study).
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
 from core.annual_worth import annual_worth_schedule
 from core.estimates import Study
 from core.factors import ap, pa
-from core.results import AlternativeResult, Recommendation, StudyResult
+from core.results import AlternativeResult, Recommendation, StudyResult, _list, _r
 from core.study import CENT, decide, money, run_study, years
 from core.studyfile import fingerprint
 
@@ -123,7 +125,8 @@ def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
                           check)
 
 
-def _run_plain(studies: Sequence[Study]) -> list[StudyResult]:
+def _run_plain(studies: Sequence[Study], with_json: bool = False
+               ) -> tuple[list[StudyResult], list[dict[str, Any]] | None]:
     st = _stack(studies)
     price, rate, mask, life = st["price"], st["rate"], st["mask"], st["life"]
     C = st["O"] + st["X"]
@@ -198,7 +201,34 @@ def _run_plain(studies: Sequence[Study]) -> list[StudyResult]:
                                before_tax_recommendation=rec, study_period_options=tuple(options),
                                warnings=tuple(_warnings(study, st["S"], rows, neg_s, neg_c)),
                                fingerprint=fingerprint(study)))
-    return out
+    if not with_json:
+        return out, None
+    # Round every list of every alternative in one pass (results._list, on the whole stack),
+    # then cut each alternative's rows: the same values AlternativeResult.to_json gives.
+    n_cols = aw.shape[1]
+    flat = {key: _list(matrix) for key, matrix in (
+        ("annual_worth", aw), ("capital_recovery", sch.capital_recovery),
+        ("operating_annual_worth", sch.operating), ("marginal_cost", sch.marginal_cost),
+        ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", st["X"]))}
+    docs = []
+    for s_i, result in enumerate(out):
+        doc = dataclasses.replace(result, alternatives=()).to_json()
+        alts = []
+        for r, a in enumerate(result.alternatives, start=int(first[s_i])):
+            lo, hi = r * n_cols, r * n_cols + a.max_life
+            alts.append({
+                "name": a.name, "role": a.role, "annual_worth": flat["annual_worth"][lo:hi],
+                "economic_life": a.economic_life,
+                "annual_worth_at_economic_life": _r(a.annual_worth_at_economic_life),
+                "rank": a.rank, "capital_recovery": flat["capital_recovery"][lo:hi],
+                "operating_annual_worth": flat["operating_annual_worth"][lo:hi],
+                "marginal_cost": flat["marginal_cost"][lo:hi],
+                "market_values": flat["market_values"][lo:hi],
+                "operating_costs": flat["operating_costs"][lo:hi],
+                "extra_costs": flat["extra_costs"][lo:hi]})
+        doc["alternatives"] = alts
+        docs.append(doc)
+    return out, docs
 
 
 def run_fleet(studies: Sequence[Study]) -> list[StudyResult]:
@@ -213,12 +243,32 @@ def run_fleet(studies: Sequence[Study]) -> list[StudyResult]:
     >>> r.recommendation.action, r.defender.economic_life, round(r.recommendation.replacement_value, 2)
     ('replace', 1, 18062.4)
     """
+    return _run_all(studies, with_json=False)[0]
+
+
+def run_fleet_json(studies: Sequence[Study]) -> list[dict[str, Any]]:
+    """``[run_study(s).to_json() for s in studies]`` (DESIGN.md §6 objects), vectorised.
+
+    The replacement value may differ from run_study's in the last rounded cent in rare cases
+    (closed form here, a root finder to 1e-6 there).
+    """
+    return _run_all(studies, with_json=True)[1]
+
+
+def _run_all(studies: Sequence[Study], with_json: bool
+             ) -> tuple[list[StudyResult], list[dict[str, Any]]]:
     plain = [k for k, s in enumerate(studies) if _plain(s)]
-    out: list[StudyResult | None] = [None] * len(studies)
+    results: list[Any] = [None] * len(studies)
+    docs: list[Any] = [None] * len(studies)
     if plain:
-        for k, result in zip(plain, _run_plain([studies[k] for k in plain]), strict=True):
-            out[k] = result
+        got, got_docs = _run_plain([studies[k] for k in plain], with_json)
+        for j, k in enumerate(plain):
+            results[k] = got[j]
+            if got_docs is not None:
+                docs[k] = got_docs[j]
     for k, study in enumerate(studies):
-        if out[k] is None:
-            out[k] = run_study(study)
-    return out  # type: ignore[return-value]
+        if results[k] is None:
+            results[k] = run_study(study)
+        if with_json and docs[k] is None:
+            docs[k] = results[k].to_json()
+    return results, docs

@@ -131,3 +131,18 @@ def test_cli_fleet_output_equals_single_runs(capsys, write_json) -> None:
     one = write_json(document(), "one.json")
     assert main(["study", str(one), "--json"]) == 0
     assert len(json.loads(capsys.readouterr().out)["studies"]) == 1
+
+
+def test_fleet_json_equals_to_json_of_run_study() -> None:
+    # Source: run_study(s).to_json() (reference); the fleet rounds all lists in one pass.
+    from core.fleet import run_fleet_json
+
+    rng = random.Random(77)
+    studies = [_random_study(rng, k) for k in range(200)]
+    for got, s in zip(run_fleet_json(studies), studies, strict=True):
+        ref = run_study(s).to_json()
+        assert got["recommendation"].pop("replacement_value") == pytest.approx(
+            ref["recommendation"].pop("replacement_value"), abs=0.011)
+        assert got == ref
+        assert list(got) == list(ref)
+        assert [list(a) for a in got["alternatives"]] == [list(a) for a in ref["alternatives"]]
