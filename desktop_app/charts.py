@@ -751,6 +751,7 @@ class ChartPanel(QWidget):
         targets: list[_Target] = []
         any_after = False
         shown = 0
+        esl_years: list[int] = []
         for i, alt in enumerate(r.alternatives):
             line, esl_item = self._aw_item(i)
             aw, after = self._data(alt, "annual_worth")
@@ -766,9 +767,13 @@ class ChartPanel(QWidget):
             esl_y = values[k - 1]
             esl_item.setData([float(k)], [esl_y])
             color = PALETTE[i % len(PALETTE)]
-            # Labels go away from the curves: below the EAC minimum, above the AW maximum.
+            # Labels go away from the curves: below the EAC minimum, above the AW maximum;
+            # alternatives sharing an ESL year stack their labels instead of overprinting.
+            stack = esl_years.count(k)
+            esl_years.append(k)
             plot.label(shown, f"ESL {k} y", float(k), esl_y, color,
-                       (0.5, -0.35) if not self.signed() else (0.5, 1.35))
+                       (0.5, -0.35 - 1.1 * stack) if not self.signed()
+                       else (0.5, 1.35 + 1.1 * stack))
             shown += 1
             series[alt.name] = (years, values)
             series[f"{alt.name} ESL"] = (np.array([float(k)]), np.array([esl_y]))

@@ -14,7 +14,9 @@ import pytest  # noqa: E402
 pytest.importorskip("pytestqt")
 pytest.importorskip("pyqtgraph")
 
-from PySide6.QtCore import QObject, Signal  # noqa: E402
+from PySide6.QtCore import QEvent, QObject, QPointF, Qt, Signal  # noqa: E402
+from PySide6.QtGui import QMouseEvent  # noqa: E402
+from PySide6.QtWidgets import QApplication  # noqa: E402
 
 from core.estimates import (  # noqa: E402
     Alternative,
@@ -210,3 +212,40 @@ def test_many_signal_emits_do_not_exhaust_true():
     for _ in range(5000):
         probe.ping.emit()
     assert sys.getrefcount(True) > 1000
+
+
+def test_mouse_over_a_point_shows_the_read_out(chart, result, qtbot):
+    chart.set_result(result)
+    chart.show()
+    qtbot.waitExposed(chart)
+    qtbot.wait(20)  # let the view box settle its auto range
+    plot = chart.plot_widget()
+    alt = result.alternative("Scroll 55")
+    vb = plot.getPlotItem().getViewBox()
+    scene_pos = vb.mapViewToScene(pg_point(3.0, -alt.annual_worth[2]))
+    widget_pos = plot.mapFromScene(scene_pos)
+    move = QMouseEvent(QEvent.Type.MouseMove, QPointF(widget_pos),
+                       QPointF(plot.viewport().mapToGlobal(widget_pos)),
+                       Qt.MouseButton.NoButton, Qt.MouseButton.NoButton,
+                       Qt.KeyboardModifier.NoModifier)
+    QApplication.sendEvent(plot.viewport(), move)
+    qtbot.waitUntil(lambda: plot.readout.isVisible(), timeout=2000)
+    assert plot.readout.textItem.toPlainText().startswith("Scroll 55, 3 years: EAC ")
+
+
+def test_export_button_writes_the_chosen_file(chart, result, tmp_path, monkeypatch):
+    from desktop_app import charts
+
+    chart.set_result(result)
+    target = tmp_path / "chosen"
+    monkeypatch.setattr(charts.QFileDialog, "getSaveFileName",
+                        staticmethod(lambda *a, **k: (str(target), "PNG image (*.png)")))
+    written = []
+    chart.exported.connect(written.append)
+    chart.export_button.click()
+    assert written == [str(target) + ".png"]
+    assert (tmp_path / "chosen.png").stat().st_size > 1000
+
+
+def pg_point(x, y):
+    return QPointF(float(x), float(y))
