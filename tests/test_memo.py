@@ -498,3 +498,24 @@ def test_memo_of_a_workbook_study_is_recorded_in_its_register(ids, tmp_path, cap
     assert memos and memos[-1].fingerprint == fingerprint(studies[0])
     assert memos[-1].signer == "Priya Natarajan"
     assert verify_memo(out, use_user_trust=False).integrity_ok
+
+
+def test_risk_memo_prints_the_simulation_results():
+    from core.estimates import Distribution, Uncertainty
+
+    base = _study(title="Millbrook lathe L-4, risk")
+    ch = base.challengers[0].name
+    st = dataclasses.replace(base, uncertainty=Uncertainty(400, 11, (
+        (f"{ch}.first_cost", Distribution("triangular", (60000.0, 72000.0, 90000.0))),
+        (f"{base.defender.name}.operating_costs.first",
+         Distribution("uniform", (9000.0, 13000.0))))))
+    res = run_study(st)
+    if res.risk is None:
+        pytest.skip("risk analysis not available")
+    d = res.risk.to_json()
+    text = _text(render_memo(res))
+    assert "Risk" in text and "400 trials" in text
+    assert f"{d['probability_replace'] * 100:.1f}%" in text
+    for q in ("p10", "p50", "p90"):
+        assert money(d["annual_worth_difference"][q]) in text
+    assert f"{ch}.first_cost" in _norm(text).replace(" .", ".") or "first_cost" in text

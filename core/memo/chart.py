@@ -16,7 +16,7 @@ from reportlab.lib import colors
 
 from core.memo.fonts import FB, FR
 
-__all__ = ["nice_ticks", "aw_chart", "SERIES_STYLES", "short_money"]
+__all__ = ["nice_ticks", "aw_chart", "histogram_chart", "SERIES_STYLES", "short_money"]
 
 SERIES_STYLES = (
     (colors.HexColor("#1f4e79"), None, "circle"),
@@ -167,4 +167,62 @@ def aw_chart(
         if len(label) > 48:
             label = label[:45] + "..."
         d.add(String(lx + 28, ly, label, fontName=FR(), fontSize=7.5))
+    return d
+
+
+def histogram_chart(edges: Sequence[float], counts: Sequence[int], width: float,
+                    height: float = 150.0, currency: str = "") -> Drawing:
+    """Bars of the share of trials by AW difference (best challenger minus defender).
+
+    Bars right of zero (the challenger better) are dark, left of zero light.
+    """
+    d = Drawing(width, height)
+    left, right, bottom, top = 62.0, 12.0, 30.0, 16.0
+    pw, ph = width - left - right, height - bottom - top
+    total = max(sum(counts), 1)
+    shares = [c / total for c in counts]
+    lo, hi = float(edges[0]), float(edges[-1])
+    if hi <= lo:
+        hi = lo + 1.0
+    xt = nice_ticks(lo, hi, 7)
+    x0, x1 = min(xt[0], lo), max(xt[-1], hi)
+    top_share = max(shares) if shares else 1.0
+    yt = nice_ticks(0.0, top_share, 4)
+    y1 = yt[-1] if yt[-1] > 0 else 1.0
+
+    def X(v: float) -> float:
+        return left + (v - x0) / (x1 - x0) * pw
+
+    def Y(v: float) -> float:
+        return bottom + v / y1 * ph
+
+    d.add(String(left, height - 10, "Spread of the AW difference across trials",
+                 fontName=FB(), fontSize=8.5))
+    d.add(Rect(left, bottom, pw, ph, fillColor=None, strokeColor=colors.grey, strokeWidth=0.5))
+    for t in yt:
+        if t < 0:
+            continue
+        d.add(Line(left, Y(t), left + pw, Y(t), strokeColor=colors.HexColor("#dddddd"),
+                   strokeWidth=0.4))
+        d.add(String(left - 4, Y(t) - 3, f"{t * 100:.0f}%", fontName=FR(), fontSize=7,
+                     textAnchor="end"))
+    for i, share in enumerate(shares):
+        a, b = float(edges[i]), float(edges[i + 1])
+        mid = (a + b) / 2
+        fill = colors.HexColor("#1f4e79") if mid > 0 else colors.HexColor("#9dc3e6")
+        d.add(Rect(X(a), bottom, max(X(b) - X(a) - 0.5, 0.3), Y(share) - bottom,
+                   fillColor=fill, strokeColor=None))
+    for t in xt:
+        if x0 <= t <= x1:
+            d.add(Line(X(t), bottom, X(t), bottom - 3, strokeColor=colors.grey, strokeWidth=0.5))
+            d.add(String(X(t), bottom - 11, short_money(t), fontName=FR(), fontSize=7,
+                         textAnchor="middle"))
+    if x0 < 0 < x1:
+        d.add(Line(X(0), bottom, X(0), bottom + ph, strokeColor=colors.black, strokeWidth=0.8))
+        d.add(String(X(0) + 3, bottom + ph - 9, "replace to the right of 0", fontName=FR(),
+                     fontSize=6.5))
+    unit = f" ({currency}/yr)" if currency else ""
+    d.add(String(left + pw / 2, bottom - 22, f"AW of the best challenger minus AW of the "
+                 f"defender{unit}", fontName=FR(), fontSize=7.5, textAnchor="middle"))
+    d.add(String(10, bottom + ph / 2, "share", fontName=FR(), fontSize=7.5))
     return d

@@ -443,6 +443,10 @@ class _Builder:
                           f"after {yrs(rec.planned_defender_years)}"])
         if r.study.study_period:
             facts.append(["Study period", yrs(r.study.study_period)])
+        risk = _to_json(r.risk)
+        if risk and isinstance(risk.get("probability_replace"), (int, float)):
+            facts.append(["Risk: share of simulated trials that say replace",
+                          f"{risk['probability_replace'] * 100:.1f}% (see Risk)"])
         facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
         self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
                                       header=False))
@@ -630,43 +634,132 @@ class _Builder:
         if not d:
             return
         self.h("Risk")
+        trials = d.get("trials")
         unc = r.study.uncertainty
-        if unc is not None:
-            self.add(_p(f"Monte Carlo simulation: {unc.trials:,} trials"
-                        + (f", seed {unc.seed}" if unc.seed is not None else "")
-                        + ". Each trial draws every uncertain input, recomputes every economic "
-                        "life and compares the best challenger with the defender.", s["small"]))
+        if trials is None and unc is not None:
+            trials = unc.trials
+        seed = d.get("seed", unc.seed if unc is not None else None)
+        intro = "Monte Carlo simulation"
+        if isinstance(trials, int):
+            intro += f": {trials:,} trials"
+        if seed is not None:
+            intro += f", seed {seed}"
+        intro += (". Each trial draws every uncertain input, recomputes every economic life and "
+                  "compares the best challenger's AW at its ESL with the defender's.")
+        if d.get("basis"):
+            intro += f" Basis: {d['basis']}."
+        if isinstance(d.get("decision_rule"), str):
+            intro += f" Decision rule: {d['decision_rule']}."
+        self.add(_p(intro, s["small"]))
         rows = [["Result", "Value"]]
-        if "probability_replace" in d:
-            p = d["probability_replace"]
+        p = d.get("probability_replace")
+        if isinstance(p, (int, float)):
+            se = d.get("probability_replace_standard_error")
             rows.append(["Share of trials that say replace",
-                         f"{float(p) * 100:.1f}%" if isinstance(p, (int, float)) else str(p)])
+                         f"{p * 100:.1f}%" + (f" (standard error {se * 100:.1f} points)"
+                                              if isinstance(se, (int, float)) else "")])
+        base = d.get("base_case")
+        if isinstance(base, dict) and base.get("action"):
+            rows.append(["Base case (every input at its estimate)",
+                         f"{base['action']}; AW difference {money(base.get('annual_worth_difference'))}"
+                         f" {cur}/yr"])
         awd = d.get("annual_worth_difference")
         if isinstance(awd, dict):
-            for q in ("p10", "p50", "p90"):
-                if q in awd:
-                    rows.append([f"AW difference, best challenger minus defender, {q.upper()} "
-                                 f"({cur}/yr)", money(awd[q])])
+            names = {"p5": "P5", "p10": "P10", "p50": "P50 (median)", "p90": "P90", "p95": "P95",
+                     "mean": "mean", "standard_deviation": "standard deviation",
+                     "min": "smallest", "max": "largest"}
             for k, v in awd.items():
-                if k not in ("p10", "p50", "p90"):
-                    rows.append([f"AW difference {k} ({cur}/yr)", _fmt_value(v, k)])
+                if k in ("mean_standard_error",) or not isinstance(v, (int, float)):
+                    continue
+                rows.append([f"AW difference, best challenger minus defender, {names.get(k, k)} "
+                             f"({cur}/yr)", money(v)])
         for k, v in d.items():
-            if k in ("probability_replace", "annual_worth_difference", "breakeven"):
+            if k in ("probability_replace", "probability_replace_standard_error", "base_case",
+                     "annual_worth_difference", "breakeven", "breakeven_search_range", "trials",
+                     "seed", "basis", "decision_rule", "inputs", "tornado", "notes", "two_way",
+                     "annual_worth_difference_histogram", "economic_life_distribution",
+                     "best_challenger_distribution"):
                 continue
-            if isinstance(v, (list, dict)) and len(str(v)) > 400:
-                continue  # raw samples or histograms: not for print
-            rows.append([_label(k), _fmt_value(v, k)])
-        rows = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows]
-        self.add(_table(rows, [0.6 * self.w, 0.4 * self.w], numeric_from=1))
+            if isinstance(v, (str, int, float, bool)):
+                rows.append([_label(k), _fmt_value(v, k)])
+        rows = [rows[0]] + [[_p(a, s["cell"]), b] for a, b in rows[1:]]
+        self.add(_table(rows, [0.62 * self.w, 0.38 * self.w], numeric_from=1))
+        hist = d.get("annual_worth_difference_histogram")
+        if isinstance(hist, dict) and hist.get("counts") and hist.get("bin_edges"):
+            try:
+                from core.memo.chart import histogram_chart
+
+                self.add(Spacer(1, 4), histogram_chart(
+                    [float(e) for e in hist["bin_edges"]], [int(c) for c in hist["counts"]],
+                    self.w, 150, cur))
+            except Exception:  # noqa: BLE001 - a chart is optional
+                pass
+        best = d.get("best_challenger_distribution")
+        tot = trials if isinstance(trials, int) and trials > 0 else None
+        if isinstance(best, dict) and tot:
+            self.add(_p("Best challenger across trials: " + "; ".join(
+                f"{k} {100 * v / tot:.1f}%" for k, v in best.items()
+                if isinstance(v, (int, float))), s["small"]))
+        esl = d.get("economic_life_distribution")
+        if isinstance(esl, dict) and tot:
+            for name, counts in esl.items():
+                if isinstance(counts, dict):
+                    parts = [f"{k}: {100 * v / tot:.1f}%" for k, v in counts.items()
+                             if isinstance(v, (int, float)) and v]
+                    self.add(_p(f"ESL of {name} across trials (years: share): "
+                                + "; ".join(parts), s["small"]))
+        ins = d.get("inputs")
+        if isinstance(ins, list) and ins:
+            rows = [["Uncertain input", "Distribution", "Estimate", "P10", "P90"]]
+            for x in ins:
+                if not isinstance(x, dict):
+                    continue
+                addr = str(x.get("input", ""))
+                par = ", ".join(_num_for(addr, v) for v in (x.get("parameters") or []))
+                rows.append([Paragraph(escape(addr), s["cell"]),
+                             Paragraph(escape(f"{x.get('distribution', '')} ({par})"), s["cell"]),
+                             _num_for(addr, x.get("estimate")), _num_for(addr, x.get("p10")),
+                             _num_for(addr, x.get("p90"))])
+            w = self.w
+            self.add(Spacer(1, 4), _table(rows, [0.36 * w, 0.28 * w, 0.12 * w, 0.12 * w, 0.12 * w],
+                                          numeric_from=2))
+        tor = d.get("tornado")
+        if isinstance(tor, list) and tor:
+            rows = [["Input (P10 to P90, the rest at estimates)", "Low", "High",
+                     f"AW difference at low ({cur}/yr)", f"at high ({cur}/yr)",
+                     f"Swing ({cur}/yr)"]]
+            for x in tor:
+                if not isinstance(x, dict):
+                    continue
+                addr = str(x.get("input", ""))
+                rows.append([Paragraph(escape(addr), s["cell"]), _num_for(addr, x.get("low_value")),
+                             _num_for(addr, x.get("high_value")),
+                             money(x.get("annual_worth_difference_at_low")),
+                             money(x.get("annual_worth_difference_at_high")),
+                             money(x.get("swing"))])
+            w = self.w
+            self.add(Spacer(1, 4), _table(rows, [0.34 * w, 0.11 * w, 0.11 * w, 0.15 * w,
+                                                 0.15 * w, 0.14 * w], numeric_from=1))
         be = d.get("breakeven")
         if isinstance(be, dict) and be:
+            ranges = d.get("breakeven_search_range") if isinstance(
+                d.get("breakeven_search_range"), dict) else {}
             brow = [["Uncertain input (alone; the rest at their estimates)",
                      "Value at which the recommendation flips"]]
             for k, v in be.items():
-                brow.append([Paragraph(escape(k), s["cell"]),
-                             "does not flip within a tenfold range" if v is None
-                             else _fmt_value(v, k)])
-            self.add(Spacer(1, 4), _table(brow, [0.6 * self.w, 0.4 * self.w], numeric_from=1))
+                rng = ranges.get(k)
+                if v is None:
+                    txt = "does not flip within a tenfold range"
+                    if isinstance(rng, list) and len(rng) == 2:
+                        txt += f" ({_num_for(k, rng[0])} to {_num_for(k, rng[1])})"
+                else:
+                    txt = _num_for(k, v)
+                brow.append([Paragraph(escape(k), s["cell"]), Paragraph(escape(txt), s["cell"])])
+            self.add(Spacer(1, 4), _table(brow, [0.55 * self.w, 0.45 * self.w], numeric_from=None))
+        notes = d.get("notes")
+        if isinstance(notes, list):
+            for n in notes:
+                self.add(Paragraph(escape(str(n)), s["bullet"], bulletText="\u2022"))
 
     def assumptions(self):
         r, s, cur = self.r, self.s, self.cur
@@ -788,6 +881,16 @@ class _Builder:
                "(tenure verify). Printed copies may be signed by hand in the same boxes.",
                s["small"]),
             Spacer(1, 3), block]))
+
+
+def _num_for(address: str, v: Any) -> str:
+    """An uncertain input's value: rates as percentages, money with separators."""
+    if not isinstance(v, (int, float)) or isinstance(v, bool):
+        return "-" if v is None else str(v)
+    leaf = address.rsplit(".", 1)[-1].lower()
+    if any(w in leaf for w in ("rate", "growth", "marr")):
+        return pct(round(float(v), 4))
+    return money(v, 2 if abs(v) < 100 else 0)
 
 
 def _at(arr: Any, k: int) -> float | None:
