@@ -26,7 +26,7 @@ def _list(a: np.ndarray, digits: int = 4) -> list[float]:
     """``[round(float(v), digits) for v in a]``, vectorised.
 
     np.round (x * 10^d, rint, / 10^d) gives the same double as Python's correctly rounded
-    ``round`` unless x * 10^d lies within rounding error of a half (or is huge), so those
+    ``round`` unless x * 10^d lies within a few ulps of a half (or beyond 2^52), so those
     few elements are rounded by Python.
 
     >>> _list(np.array([41943.78005, -29413.33365, 0.123456, 2.5e12]))
@@ -35,7 +35,8 @@ def _list(a: np.ndarray, digits: int = 4) -> list[float]:
     x = np.asarray(a, dtype=float).ravel()
     scaled = x * 10.0**digits
     values = np.round(x, digits).tolist()
-    risky = ~(np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) > 1e-6) | ~(np.abs(scaled) < 1e9)
+    tolerance = 4.0 * np.abs(np.spacing(scaled))
+    risky = ~(np.abs(scaled - np.floor(scaled) - 0.5) > tolerance) | ~(np.abs(scaled) < 2.0**52)
     for k in np.flatnonzero(risky).tolist():
         values[k] = round(float(x[k]), digits)
     return values
