@@ -107,7 +107,8 @@ def test_rounding_helper_matches_python_round() -> None:
     # Source: Python's round() (correctly rounded) as reference, including exact halves.
     rng = np.random.default_rng(11)
     x = np.concatenate([rng.uniform(-1e5, 1e5, 20000), np.round(rng.uniform(-1e5, 1e5, 20000), 5),
-                        [0.5e-4, -0.5e-4, 1.00005, 2.5e13, -0.0, 0.0]])
+                        np.round(rng.uniform(-1e9, 1e9, 20000), 5),
+                        [0.5e-4, -0.5e-4, 1.00005, 2.5e13, 1e15 + 0.5, 1e17, -0.0, 0.0]])
     assert _list(x) == [round(float(v), 4) for v in x]
     assert _list(x, 2) == [round(float(v), 2) for v in x]
 
