@@ -18,6 +18,7 @@ from core.estimates import Alternative, Study
 from core.studyfile import alternative_to_dict, fingerprint, parse_study, study_to_dict
 from core.workbook.files import (
     WorkbookError,
+    WorkbookInUse,
     WriterLock,
     _uri,
     check_file,
@@ -123,6 +124,14 @@ class _State:
     depth: int = 0
 
 
+def _write_refused(path: Path, exc: sqlite3.Error) -> WorkbookError:
+    text = str(exc)
+    if "readonly" in text or "read-only" in text:
+        return WorkbookError(path, "cannot be written (read-only file or folder); open it "
+                                   "read-only or copy it somewhere writable")
+    return WorkbookInUse(path, f"in use: the database is locked by another program ({text})")
+
+
 def _parse_alternative(obj: dict, where: str) -> Alternative:
     """Parse a §5 challenger object through the public study parser."""
     holder = {"title": "candidate", "marr": 0.1,
@@ -189,7 +198,7 @@ class Workbook:
                 conn.execute("BEGIN IMMEDIATE")
             except sqlite3.OperationalError as exc:
                 conn.close()
-                raise WorkbookError(path, f"in use: the database is locked ({exc})") from None
+                raise _write_refused(path, exc) from None
             try:
                 version = int(conn.execute("PRAGMA user_version").fetchone()[0])
                 if version < SCHEMA_VERSION:
@@ -279,7 +288,7 @@ class Workbook:
         try:
             self._conn.execute("BEGIN IMMEDIATE")
         except sqlite3.OperationalError as exc:
-            raise WorkbookError(self.path, f"in use: the database is locked ({exc})") from None
+            raise _write_refused(self.path, exc) from None
         self._state.depth = 1
         try:
             yield self._conn
