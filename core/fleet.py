@@ -37,8 +37,12 @@ def _plain(study: Study) -> bool:
     return study.tax is None and study.inflation is None and study.uncertainty is None
 
 
-def _stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
-    """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study)."""
+def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
+    """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study).
+
+    Keys: price, life, rate (M,); S, O (operating C_j), X (extra X_j), mask (M, N) with
+    mask[m, k-1] = k <= max_life; counts (alternatives per study) and first (defender row).
+    """
     alts = [a for s in studies for a in s.alternatives]
     m = len(alts)
     n = max(a.max_life for a in alts)
@@ -83,7 +87,10 @@ def _stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     mask = years_row[None, :] <= life[:, None]
     S = np.where(mask, S, 0.0)
     Op = np.where(mask, Op, 0.0)
-    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask}
+    counts = np.array([len(s.alternatives) for s in studies])
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
+    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask,
+            "counts": counts, "first": first}
 
 
 def _warnings(study: Study, S: np.ndarray, rows: range, neg_s: np.ndarray,
@@ -125,10 +132,15 @@ def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
                           check)
 
 
-def _run_plain(studies: Sequence[Study], with_json: bool = False
-               ) -> tuple[list[StudyResult], list[dict[str, Any]] | None]:
-    st = _stack(studies)
-    price, rate, mask, life = st["price"], st["rate"], st["mask"], st["life"]
+def compute(st: dict[str, np.ndarray]) -> dict[str, Any]:
+    """Every AW schedule, ESL, best challenger, RV and no-period decision of a stacked fleet.
+
+    ``st`` comes from ``stack``.  One ``annual_worth_schedule`` call over the (M, N) stack,
+    then masked reductions per alternative (ESL) and per study (best challenger, RV, the
+    keep-or-replace test round(AW_c*, 2) > round(AW_D*, 2), the planned replacement year).
+    """
+    price, rate, mask = st["price"], st["rate"], st["mask"]
+    first, counts = st["first"], st["counts"]
     C = st["O"] + st["X"]
     sch = annual_worth_schedule(price, st["S"], C, rate)
     aw = sch.annual_worth
@@ -136,35 +148,42 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
     year_row = np.arange(1, n + 1, dtype=float)
     rounded = np.where(mask, np.round(aw, 2), -np.inf)
     esl = np.argmax(rounded, axis=1) + 1
-    m_index = np.arange(aw.shape[0])
-    at_esl = aw[m_index, esl - 1]
+    at_esl = aw[np.arange(aw.shape[0]), esl - 1]
     at_esl_r = np.round(at_esl, 2)
-
-    counts = np.array([len(s.alternatives) for s in studies])
-    first = np.concatenate([[0], np.cumsum(counts)[:-1]])      # defender row of each study
+    n_studies = len(first)
     k_max = int(counts.max()) - 1
     ch_rows = first[:, None] + 1 + np.arange(k_max)[None, :]
     ch_valid = np.arange(k_max)[None, :] < (counts - 1)[:, None]
     ch_rows = np.where(ch_valid, ch_rows, first[:, None])
     ch_score = np.where(ch_valid, at_esl_r[ch_rows], -np.inf)
-    best_rows = ch_rows[np.arange(len(studies)), np.argmax(ch_score, axis=1)]
+    best_rows = ch_rows[np.arange(n_studies), np.argmax(ch_score, axis=1)]
     target = at_esl[best_rows]                                   # AW_c* of each study
-
     d_aw = aw[first]
     d_mask = mask[first]
     d_rate = rate[first]
     cap = ap(d_rate[:, None], year_row)
-    rv_candidates = np.where(d_mask, (d_aw + price[first, None] * cap - target[:, None]) / cap,
-                             -np.inf)
-    rv = rv_candidates.max(axis=1)
-    keep_vals = d_aw * pa(d_rate[:, None], year_row) - target[:, None] * pa(d_rate[:, None],
-                                                                           year_row)
-    keep_vals = np.where(d_mask, np.round(keep_vals, 2), -np.inf)
-    keep_best = keep_vals.max(axis=1)
-    planned = np.where(keep_best > 0.0, np.argmax(keep_vals, axis=1) + 1, 0)
-    mc_next = -d_aw[:, 0]
-    neg_s = np.any(mask & (st["S"] < 0), axis=1).tolist()
-    neg_c = np.any(mask & (C < 0), axis=1).tolist()
+    rv = np.where(d_mask, (d_aw + price[first, None] * cap - target[:, None]) / cap,
+                  -np.inf).max(axis=1)
+    annuity = pa(d_rate[:, None], year_row)
+    keep_vals = np.where(d_mask, np.round(d_aw * annuity - target[:, None] * annuity, 2),
+                         -np.inf)
+    planned = np.where(keep_vals.max(axis=1) > 0.0, np.argmax(keep_vals, axis=1) + 1, 0)
+    return {"schedule": sch, "C": C, "esl": esl, "at_esl": at_esl, "best_rows": best_rows,
+            "target": target, "rv": rv, "planned": planned, "mc_next": -d_aw[:, 0],
+            "replace": np.round(target, 2) > np.round(at_esl[first], 2),
+            "neg_s": np.any(mask & (st["S"] < 0), axis=1).tolist(),
+            "neg_c": np.any(mask & (C < 0), axis=1).tolist()}
+
+
+def _run_plain(studies: Sequence[Study], with_json: bool = False
+               ) -> tuple[list[StudyResult], list[dict[str, Any]] | None]:
+    st = stack(studies)
+    core = compute(st)
+    price, rate, life, first, counts = st["price"], st["rate"], st["life"], st["first"], st["counts"]
+    sch, esl, at_esl, best_rows = core["schedule"], core["esl"], core["at_esl"], core["best_rows"]
+    rv, planned, mc_next = core["rv"], core["planned"], core["mc_next"]
+    neg_s, neg_c = core["neg_s"], core["neg_c"]
+    aw = sch.annual_worth
     out: list[StudyResult] = []
     for s_i, study in enumerate(studies):
         rows = range(int(first[s_i]), int(first[s_i] + counts[s_i]))
