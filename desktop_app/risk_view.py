@@ -130,6 +130,7 @@ class RiskView(QWidget):
         self._result: StudyResult | None = None
         self._risk: Any = None
         self._job: RiskJob | None = None
+        self._last_job: RiskJob | None = None
         self.pool = QThreadPool(self)
         self.pool.setMaxThreadCount(1)
 
@@ -275,7 +276,9 @@ class RiskView(QWidget):
         self.pool.waitForDone(timeout_ms)
 
     def _finish(self) -> None:
-        self._job = None
+        # keep the finished job alive until the next run: it must not be destroyed inside
+        # the slot its own signal is calling
+        self._last_job, self._job = self._job, None
         self._arm()
 
     def _done(self, risk: Any) -> None:
