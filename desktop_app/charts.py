@@ -358,13 +358,17 @@ class ChartPanel(QWidget):
         self.export_button.setText("Export…")
         self.export_button.setToolTip("Save the current chart as PNG or SVG")
 
+        # Two rows so that the tabs never need scroll arrows in a narrow pane.
         bar = QHBoxLayout()
         bar.setContentsMargins(0, 0, 0, 0)
         bar.addWidget(self.tabs)
         bar.addStretch(1)
-        for w in (self.alt_label, self.alt_combo, self.basis_combo, self.signed_check,
-                  self.export_button):
-            bar.addWidget(w)
+        bar.addWidget(self.export_button)
+        controls = QHBoxLayout()
+        controls.setContentsMargins(0, 0, 0, 0)
+        for w in (self.alt_label, self.alt_combo, self.basis_combo, self.signed_check):
+            controls.addWidget(w)
+        controls.addStretch(1)
 
         self.stack = QStackedWidget(self)
         self.plots: dict[str, _Plot] = {}
@@ -379,6 +383,7 @@ class ChartPanel(QWidget):
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(bar)
+        layout.addLayout(controls)
         layout.addWidget(self.stack, 1)
 
         self.tabs.currentChanged.connect(self._tab_changed)
@@ -437,6 +442,12 @@ class ChartPanel(QWidget):
         for key in ("marginal", "options"):
             self.plots[key].getPlotItem().addItem(
                 pg.InfiniteLine(pos=0, angle=0, pen=_pen("#444444", 1)), ignoreBounds=True)
+        # A few items ahead, so a usual study's first set_result only updates data.
+        self._aw_item(3)
+        self._option_item(3)
+        for plot in self.plots.values():
+            plot.label(2, "", 0.0, 0.0, "k", (0.5, 0.0))
+            plot.hide_labels()
 
     def _style(self, i: int) -> tuple[str, str, Qt.PenStyle]:
         return PALETTE[i % len(PALETTE)], SYMBOLS[i % len(SYMBOLS)], DASHES[i % len(DASHES)]
@@ -629,6 +640,7 @@ class ChartPanel(QWidget):
                     if preferred in names:
                         self.alt_combo.setCurrentIndex(names.index(preferred))
             after = self.has_after_tax()
+            self.export_button.setEnabled(r is not None)
             self.basis_combo.setEnabled(after)
             if after and r is not None and r.recommendation.basis == AFTER:
                 self.basis_combo.setCurrentIndex(1)
@@ -707,10 +719,13 @@ class ChartPanel(QWidget):
 
     def _value_words(self) -> tuple[str, str]:
         """(short name for read-outs, axis title) for the sign toggle."""
-        unit = f"{self._currency} per year" if self._currency else "per year"
+        unit = self._unit()
         if self.signed():
-            return "AW", f"Annual worth, AW ({unit}; costs negative, higher is better)"
-        return "EAC", f"Equivalent annual cost, EAC = -AW ({unit}; lower is better)"
+            return "AW", f"Annual worth, AW ({unit}; costs < 0)"
+        return "EAC", f"Equivalent annual cost, EAC = -AW ({unit})"
+
+    def _unit(self) -> str:
+        return f"{self._currency}/year" if self._currency else "per year"
 
     def _sign(self) -> float:
         return 1.0 if self.signed() else -1.0
@@ -725,11 +740,17 @@ class ChartPanel(QWidget):
         plot.set_title("")
         plot.legend.clear()
         plot.legend.commit()
+        plot.getPlotItem().hideAxis("left")
+        plot.getPlotItem().hideAxis("bottom")
+        plot.set_axis_label("left", "")
+        plot.set_axis_label("bottom", "")
         plot.set_message(text)
 
     def _finish(self, key: str) -> None:
         plot = self.plots[key]
         plot.legend.commit()
+        plot.getPlotItem().showAxis("left")
+        plot.getPlotItem().showAxis("bottom")
         plot.getPlotItem().enableAutoRange()
         plot.fit_left_axis(*(y for _x, y in self._series[key].values()))
 
@@ -789,9 +810,10 @@ class ChartPanel(QWidget):
         plot.hide_labels(shown)
         plot.targets = targets
         self._series["aw"] = series
-        what = "Annual worth" if self.signed() else "Equivalent annual cost"
+        what, better = (("Annual worth", "higher") if self.signed()
+                        else ("Equivalent annual cost", "lower"))
         plot.set_title(f"{what} by retention period, {self._basis_words(any_after)} "
-                      f"(stars: economic service life)")
+                       f"({better} is better; stars: economic service life)")
         plot.set_axis_label("left", axis_title)
         plot.set_axis_label("bottom", "Years kept (retention period k)")
         self._finish("aw")
@@ -928,9 +950,10 @@ class ChartPanel(QWidget):
         plot.targets = targets
         plot.set_title(f"One more year? {d.name}'s marginal cost by year against {best.name}, "
                       f"{self._basis_words(after)}{note}")
-        unit = f"{self._currency} per year" if self._currency else "per year"
-        plot.set_axis_label("left", (f"Cost of the year ({unit}; costs positive)" if not self.signed()
-                               else f"Signed annual worth ({unit}; costs negative)"))
+        unit = self._unit()
+        plot.set_axis_label("left", (f"Marginal cost of the year, MC ({unit})"
+                                     if not self.signed() else
+                                     f"Marginal AW of the year, -MC ({unit}; costs < 0)"))
         plot.set_axis_label("bottom", f"Year of keeping {d.name} (j)")
         self._finish("marginal")
 
