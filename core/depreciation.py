@@ -131,17 +131,16 @@ def declining_balance(basis: ArrayLike, years: int, rate: float,
     >>> declining_balance(1000.0, 5, 0.25).round(2).tolist()
     [250.0, 187.5, 187.5, 187.5, 187.5]
     """
+    h = years if horizon is None else horizon
     fractions = []
     remaining = 1.0
-    for y in range(1, years + 1):
+    for y in range(1, min(years, h) + 1):
         d = max(rate * remaining, remaining / (years - y + 1))
         d = min(d, remaining)
         fractions.append(d)
         remaining -= d
-    h = years if horizon is None else horizon
     f = np.zeros(h)
-    m = min(h, years)
-    f[:m] = fractions[:m]
+    f[:len(fractions)] = fractions
     return np.asarray(basis, dtype=float)[..., None] * f
 
 
@@ -199,7 +198,8 @@ def schedule(dep: Depreciation, basis: ArrayLike, horizon: int) -> DepreciationS
     ([0.5, 0.5], [8333.5, 4444.5])
     """
     b = np.asarray(basis, dtype=float)
-    age = dep.age
+    recovery = int(dep.macrs_class or 0) + 1 if dep.method == "macrs" else int(dep.years or 1)
+    age = min(dep.age, recovery)        # past the recovery period nothing more is allowed
     total = age + horizon
     if dep.method == "straight_line":
         d = straight_line(b, int(dep.years or 1), dep.salvage, horizon=total)
@@ -210,7 +210,7 @@ def schedule(dep: Depreciation, basis: ArrayLike, horizon: int) -> DepreciationS
     elif dep.method == "macrs":
         n = int(dep.macrs_class or 0)
         d = macrs(b, n, horizon=total)
-        tax_years = age + np.arange(1, horizon + 1)
+        tax_years = dep.age + np.arange(1, horizon + 1)
         fraction = np.where(tax_years < n + 1, 0.5, 1.0)
     else:  # pragma: no cover - the study file refuses other methods
         raise ValueError(f"unknown depreciation method {dep.method!r}")

@@ -86,6 +86,9 @@ REFUSALS = [
     (["inflation", "rate"], -1.0, "$.inflation.rate"),
     (["inflation", "index"], "CPI", "$.inflation.index"),
     (["inflation", "rate"], True, "$.inflation.rate"),
+    (["defender", "depreciation", "salvage"], 60000, "$.defender.depreciation.salvage"),
+    (["defender", "depreciation", "years"], 1000, "$.defender.depreciation.years"),
+    (["defender", "depreciation", "age"], 10**9, "$.defender.depreciation.age"),
 ]
 
 
@@ -103,3 +106,10 @@ def test_declining_balance_needs_rate(tmp_path, capsys) -> None:
                {"method": "declining_balance", "basis": 50000, "years": 8, "age": 2})
     assert main(["study", _write(tmp_path, doc)]) == 2
     assert capsys.readouterr().err.startswith("error: $.defender.depreciation.rate")
+
+
+def test_challenger_salvage_above_first_cost_is_refused(tmp_path, capsys) -> None:
+    doc = _set(BASE, ["challengers", 0, "depreciation"],
+               {"method": "straight_line", "years": 5, "salvage": 70000})
+    assert main(["study", _write(tmp_path, doc)]) == 2
+    assert capsys.readouterr().err.startswith("error: $.challengers[0].depreciation.salvage")
