@@ -189,6 +189,8 @@ def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
     age = _integer(data.get("age", 0), f"{path}.age", low=0, what="a whole number of years")
     if role == "challenger" and age:
         raise StudyError(f"{path}.age", "a challenger is new: its age must be 0")
+    if age > 100:
+        raise StudyError(f"{path}.age", "must be at most 100 years")
     years = macrs_class = rate = None
     salvage = 0.0
     if method == "macrs":
@@ -206,10 +208,14 @@ def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
         if "years" not in data:
             raise StudyError(f"{path}.years", "is required (the recovery period in years)")
         years = _integer(data["years"], f"{path}.years", what="a whole number of years")
+        if years > 100:
+            raise StudyError(f"{path}.years", "must be at most 100 years")
         if method == "straight_line":
             if "rate" in data:
                 raise StudyError(f"{path}.rate", "applies only to declining balance")
             salvage = _number(data.get("salvage", 0.0), f"{path}.salvage", low=0.0)
+            if basis is not None and salvage > basis:
+                raise StudyError(f"{path}.salvage", "must not exceed the basis")
         else:
             if "salvage" in data:
                 raise StudyError(f"{path}.salvage", "applies only to straight line")
@@ -244,6 +250,9 @@ def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alterna
     extras = _extra_costs(data.get("extra_costs", []), f"{path}.extra_costs", life)
     depreciation = (_depreciation(data["depreciation"], f"{path}.depreciation", role)
                     if "depreciation" in data else None)
+    if depreciation is not None and depreciation.basis is None and depreciation.salvage > price:
+        raise StudyError(f"{path}.depreciation.salvage",
+                         "must not exceed the basis (here the first cost)")
     return Alternative(name=name, role=role, price=price, max_life=life,
                        market_values=market_values, operating_costs=operating,
                        extra_costs=extras, depreciation=depreciation)
