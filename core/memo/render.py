@@ -356,7 +356,7 @@ class _Builder:
         self.story.extend(flow)
 
     def h(self, text: str):
-        self.add(CondPageBreak(60), _p(text, self.s["h"]))
+        self.add(CondPageBreak(130), _p(text, self.s["h"]))
 
     # -- top
     def header(self):
