@@ -429,10 +429,6 @@ def analyse(study: Study, result: StudyResult) -> StudyResult:
         return solve_replacement_value(defender_best, target, float(d_alt.price))
 
     rec, options, _ = decide(study, aw, decision, "after-tax", rv)
-    if study.study_period is not None and report != decision:
-        g = float(ap(report, study.study_period) / ap(decision, study.study_period))
-        options = [o if o.annual_worth is None else
-                   dataclasses.replace(o, annual_worth=o.annual_worth * g) for o in options]
     order = sorted(aw, key=lambda n: -round(float(aw[n][built[n][0].economic_life - 1]), 2))
     alts = {name: dataclasses.replace(b[0], rank=order.index(name) + 1)
             for name, b in built.items()}

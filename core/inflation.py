@@ -15,7 +15,8 @@ Conventions (DESIGN.md §4, README "After-tax and inflation")
   computed from AW_k = PW_k (A/P,i,k) (a level annuity in today's money, the
   only basis on which repeating an asset "at the same cost" is meaningful
   under inflation).  So a study stated either way reaches the same decision
-  and the same ESLs.
+  and the same ESLs.  The recommendation's amounts and the study-period
+  options stay in constant money.
 - AW is *reported* in the money the study states: a then-current study's
   AW_k = PW_k (A/P,i_f,k), a level then-current annuity with the same present
   worth.  Because (A/P,i_f,k)/(A/P,i,k) changes with k, the largest reported
@@ -186,8 +187,8 @@ def describe(study: Study) -> str:
         text += ("estimates are in then-current money, discounted at the market rate; AW is "
                  "in then-current money (a level annuity at the market rate); ESLs and the "
                  "decision are set in constant money at the real rate, so they do not depend "
-                 "on how the estimates are stated; the recommendation's amounts are in "
-                 "constant (today's) money.")
+                 "on how the estimates are stated; the recommendation's amounts and the "
+                 "study-period options are in constant (today's) money.")
     if study.tax is not None:
         at = study.tax.after_tax_marr
         text += (f" After tax: after-tax MARR {at:.2%} is real (market "
@@ -200,8 +201,8 @@ def restate(study: Study, result):  # noqa: ANN001, ANN201 - StudyResult in, Stu
 
     Only then-current studies change: AW, capital recovery and the operating
     part by ``reporting_factor``; marginal costs and market values by
-    (1+f)^j; study-period option AW by (A/P,i_f,T)/(A/P,i,T).  ESLs, the
-    ranking and the recommendation stay as decided in constant money.
+    (1+f)^j.  ESLs, the ranking, the recommendation and the study-period
+    options stay as decided, in constant money.
     """
     if study.inflation is None or study.inflation.estimates == "constant":
         return result
@@ -219,10 +220,4 @@ def restate(study: Study, result):  # noqa: ANN001, ANN201 - StudyResult in, Stu
             marginal_cost=to_then_current(res.marginal_cost, f),
             annual_worth_at_economic_life=float(res.annual_worth_at_economic_life
                                                 * factor[res.economic_life - 1])))
-    options = result.study_period_options
-    if study.study_period is not None:
-        t = study.study_period
-        g = float(ap(float(market_rate(real, f)), t) / ap(real, t))
-        options = tuple(o if o.annual_worth is None else
-                        dataclasses.replace(o, annual_worth=o.annual_worth * g) for o in options)
-    return dataclasses.replace(result, alternatives=tuple(alts), study_period_options=options)
+    return dataclasses.replace(result, alternatives=tuple(alts))
