@@ -28,7 +28,7 @@ from typing import Any
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QObject, QRectF, QRunnable, Qt, QThreadPool, Signal
+from PySide6.QtCore import QCoreApplication, QObject, QRectF, QRunnable, Qt, QThreadPool, Signal
 from PySide6.QtWidgets import (
     QCheckBox,
     QGridLayout,
@@ -133,6 +133,9 @@ class RiskView(QWidget):
         self._last_job: RiskJob | None = None
         self.pool = QThreadPool(self)
         self.pool.setMaxThreadCount(1)
+        app = QCoreApplication.instance()
+        if app is not None:   # never leave a worker running into interpreter shutdown
+            app.aboutToQuit.connect(self.shutdown)
 
         self.trials = QSpinBox()
         self.trials.setRange(100, 5_000_000)

@@ -45,33 +45,55 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.estimates import Alternative, Study
-from core.factors import af, ap, pa, pf
+from core.factors import ap, pa, pf
 from core.studyfile import split_address
 
 
+def batch_factors(rate: np.ndarray | float, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """((P/F,i,j), (A/P,i,k), (A/F,i,k)) for j, k = 1..n, from one power of (1+i).
+
+    (P/F,i,j) = (1+i)^-j;  (P/A,i,k) = (1 - (1+i)^-k)/i (k at i = 0);
+    (A/P,i,k) = 1/(P/A,i,k);  (A/F,i,k) = (A/P,i,k) - i.  ``rate`` scalar or (...);
+    each result (..., n).  Same values as ``core.factors`` (pf, ap, af), cheaper
+    for a batch of rates.
+
+    >>> v, cap, sink = batch_factors(0.10, 2)
+    >>> v.round(4).tolist(), cap.round(4).tolist(), sink.round(4).tolist()
+    ([0.9091, 0.8264], [1.1, 0.5762], [1.0, 0.4762])
+    """
+    i = np.asarray(rate, dtype=float)
+    if np.any(i <= -1.0) or not np.all(np.isfinite(i)):
+        raise ValueError("interest rate must be a finite number greater than -1")
+    years = np.arange(1, n + 1, dtype=float)
+    i_col = i[..., None]
+    v = np.power(1.0 + i_col, -years)
+    zero = np.abs(i_col) < 1e-12
+    annuity = np.where(zero, years, (1.0 - v) / np.where(zero, 1.0, i_col))
+    cap = 1.0 / annuity
+    return v, cap, cap - i_col
+
+
 def annual_worth_batch(price: np.ndarray | float, market_values: np.ndarray,
-                       costs: np.ndarray, rate: np.ndarray | float) -> np.ndarray:
+                       costs: np.ndarray, rate: np.ndarray | float,
+                       factors: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+                       ) -> np.ndarray:
     """AW_k = -[P(A/P,i,k) - S_k(A/F,i,k)] - [sum_{j<=k} (C_j+X_j)(P/F,i,j)](A/P,i,k).
 
     The AW part of ``core.annual_worth.annual_worth_schedule`` (same equation, same
     sign convention: costs positive in, AW negative out) without the extra
-    schedules, so that a scalar rate computes each factor once for the whole
-    batch.  ``price`` (...), ``market_values`` and ``costs`` (..., n) or (n,),
-    ``rate`` scalar or (...); returns (..., n).
+    schedules; the factors come from ``batch_factors`` (or are passed in, sliced
+    from a longer life, so that one batch of rates is raised to a power once).
+    ``price`` (...), ``market_values`` and ``costs`` (..., n) or (n,), ``rate``
+    scalar or (...); returns (..., n).
 
     >>> annual_worth_batch(np.array([10000.0, 20000.0]), np.array([7000.0, 5000.0]),
     ...                    np.array([1000.0, 1500.0]), 0.10).round(2).tolist()
     [[-5000.0, -4619.05], [-16000.0, -10380.95]]
     """
-    i = np.asarray(rate, dtype=float)
     n = np.shape(market_values)[-1]
-    years = np.arange(1, n + 1, dtype=float)
-    i_col = i[..., None]
-    cap = ap(i_col, years)
-    sink = af(i_col, years)
-    disc = pf(i_col, years)
+    v, cap, sink = batch_factors(rate, n) if factors is None else (f[..., :n] for f in factors)
     P_col = np.asarray(price, dtype=float)[..., None]
-    return market_values * sink - P_col * cap - np.cumsum(costs * disc, axis=-1) * cap
+    return market_values * sink - P_col * cap - np.cumsum(costs * v, axis=-1) * cap
 
 
 @dataclass(frozen=True)
@@ -257,6 +279,9 @@ class Model:
             rate = self.after_tax.rates(marr)[0]
         else:
             rate = self.inflation.rate(marr) if self.inflation is not None else marr
+        factors = None
+        if self.after_tax is None:
+            factors = batch_factors(rate, max(a.max_life for a in self.study.alternatives))
         aw: dict[str, np.ndarray] = {}
         esl: dict[str, np.ndarray] = {}
         at_esl: dict[str, np.ndarray] = {}
@@ -265,7 +290,7 @@ class Model:
             if self.after_tax is not None:
                 raw = self.after_tax.annual_worth(alt, price, s, c, marr)
             else:
-                raw = annual_worth_batch(price, s, c, rate)
+                raw = annual_worth_batch(price, s, c, rate, factors)
             schedule = np.broadcast_to(raw, (size, alt.max_life))
             idx = np.argmax(np.round(schedule, 2), axis=-1)
             aw[alt.name] = schedule
