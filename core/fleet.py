@@ -45,45 +45,67 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     """
     alts = [a for s in studies for a in s.alternatives]
     m = len(alts)
-    n = max(a.max_life for a in alts)
+    lives = [a.max_life for a in alts]
+    n = max(lives)
     price = np.array([a.price for a in alts], dtype=float)
-    life = np.array([a.max_life for a in alts])
+    life = np.array(lives)
     rate = np.array([s.marr for s in studies for _ in s.alternatives], dtype=float)
     years_row = np.arange(1, n + 1, dtype=float)
+    ages = years_row - 1.0
     S = np.zeros((m, n))
     Op = np.zeros((m, n))
     X = np.zeros((m, n))
-    decline = [(r, a.market_values.decline_rate or 0.0) for r, a in enumerate(alts)
-               if a.market_values.values is None]
-    if decline:
-        rows = np.array([r for r, _ in decline])
-        d = np.array([v for _, v in decline])
-        S[rows] = price[rows, None] * np.power(1.0 - d[:, None], years_row)
-    ages = years_row - 1.0
-    grad_rows, grad_first, grad_g, grow_rows, grow_first, grow_g = [], [], [], [], [], []
+    # Gather explicit values as flat (row, column, value) lists: one numpy scatter each.
+    sv_r: list[int] = []
+    sv_c: list[int] = []
+    sv_v: list[float] = []
+    ov_r: list[int] = []
+    ov_c: list[int] = []
+    ov_v: list[float] = []
+    x_r: list[int] = []
+    x_c: list[int] = []
+    x_v: list[float] = []
+    dec_r, dec_d, grad_r, grad_f, grad_g, grow_r, grow_f, grow_g = ([] for _ in range(8))
     for r, a in enumerate(alts):
         k = a.max_life
-        if a.market_values.values is not None:
-            S[r, :k] = a.market_values.values[:k]
+        mv = a.market_values
+        if mv.values is not None:
+            sv_r.extend([r] * k)
+            sv_c.extend(range(k))
+            sv_v.extend(mv.values[:k])
+        else:
+            dec_r.append(r)
+            dec_d.append(mv.decline_rate or 0.0)
         oc = a.operating_costs
         if oc.values is not None:
-            Op[r, :k] = oc.values[:k]
+            ov_r.extend([r] * k)
+            ov_c.extend(range(k))
+            ov_v.extend(oc.values[:k])
         elif oc.growth is not None:
-            grow_rows.append(r)
-            grow_first.append(0.0 if oc.first is None else oc.first)
+            grow_r.append(r)
+            grow_f.append(0.0 if oc.first is None else oc.first)
             grow_g.append(oc.growth)
         else:
-            grad_rows.append(r)
-            grad_first.append(0.0 if oc.first is None else oc.first)
+            grad_r.append(r)
+            grad_f.append(0.0 if oc.first is None else oc.first)
             grad_g.append(0.0 if oc.gradient is None else oc.gradient)
         for extra in a.extra_costs:
             if 1 <= extra.year <= k:
-                X[r, extra.year - 1] += extra.amount
-    if grad_rows:
-        Op[grad_rows] = np.array(grad_first)[:, None] + ages * np.array(grad_g)[:, None]
-    if grow_rows:
-        Op[grow_rows] = np.array(grow_first)[:, None] * np.power(1.0 + np.array(grow_g)[:, None],
-                                                                ages)
+                x_r.append(r)
+                x_c.append(extra.year - 1)
+                x_v.append(extra.amount)
+    if sv_r:
+        S[sv_r, sv_c] = sv_v
+    if dec_r:
+        S[dec_r] = price[dec_r, None] * np.power(1.0 - np.array(dec_d)[:, None], years_row)
+    if ov_r:
+        Op[ov_r, ov_c] = ov_v
+    if grad_r:
+        Op[grad_r] = np.array(grad_f)[:, None] + ages * np.array(grad_g)[:, None]
+    if grow_r:
+        Op[grow_r] = np.array(grow_f)[:, None] * np.power(1.0 + np.array(grow_g)[:, None], ages)
+    if x_r:
+        np.add.at(X, (np.array(x_r), np.array(x_c)), np.array(x_v))
     mask = years_row[None, :] <= life[:, None]
     S = np.where(mask, S, 0.0)
     Op = np.where(mask, Op, 0.0)

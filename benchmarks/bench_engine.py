@@ -1,0 +1,259 @@
+"""Engine benchmark: the numpy engine against a naive per-year Python loop, and the CLI.
+
+Run:  python benchmarks/bench_engine.py [--studies 5000] [--seed 2026] [--repeat 3]
+
+Not a timed test: it prints numbers and whether the targets are met.
+
+1. One study and a fleet of N studies (defender + 2 challengers, lives 12-25, random
+   estimates from a seeded generator, invented Harrowgate Fabrication Ltd. assets), each
+   solved by
+     - naive:   plain Python loops, year by year (written out below, no numpy), giving
+                every AW schedule, every ESL, the best challenger, keep/replace and the RV;
+     - engine:  core.fleet.stack + core.fleet.compute (every AW schedule and ESL of the
+                fleet in one numpy pass), and, for information, the full result objects
+                (core.fleet.run_fleet) and per-study core.study.run_study.
+   Both must agree on every ESL and every decision.  Target: engine >= 30x naive on the fleet.
+2. `tenure study FILE --json` as a subprocess on one study and on the fleet file.
+   Target: fleet wall time <= 3x the one-study wall time (start-up dominates one study).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import random
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+
+from core.fleet import compute, run_fleet, stack  # noqa: E402
+from core.study import run_study  # noqa: E402
+from core.studyfile import parse_study_document  # noqa: E402
+
+SITES = ("Kestrel Road", "Millbrook", "Ouseburn Yard")
+
+
+# --------------------------------------------------------------------------- data
+def fleet_document(n: int, seed: int) -> dict:
+    """A study file with n studies, random but reproducible estimates."""
+    rng = random.Random(seed)
+
+    def alternative(name: str, key: str, price: float) -> dict:
+        life = rng.randint(12, 25)
+        if rng.random() < 0.5:
+            mv = {"decline_rate": round(rng.uniform(0.08, 0.30), 4)}
+        else:
+            keep = rng.uniform(0.78, 0.92)
+            mv = {"values": [round(price * keep**k, 2) for k in range(1, life + 1)]}
+        first = round(rng.uniform(2000, 15000), 2)
+        if rng.random() < 0.5:
+            oc = {"first": first, "gradient": round(rng.uniform(100, 2500), 2)}
+        else:
+            oc = {"first": first, "growth": round(rng.uniform(0.01, 0.12), 4)}
+        alt = {"name": name, key: price, "max_life": life, "market_values": mv,
+               "operating_costs": oc}
+        if rng.random() < 0.3:
+            alt["extra_costs"] = [{"year": rng.randint(1, life),
+                                   "amount": round(rng.uniform(1000, 20000), 2),
+                                   "label": "overhaul"}]
+        return alt
+
+    studies = []
+    for k in range(n):
+        studies.append({
+            "title": f"Harrowgate Fabrication Ltd., {SITES[k % 3]}, asset {k:05d}",
+            "marr": round(rng.uniform(0.04, 0.15), 4),
+            "defender": alternative("Existing unit", "market_value",
+                                    round(rng.uniform(5000, 40000), 2)),
+            "challengers": [alternative("Challenger A", "first_cost",
+                                        round(rng.uniform(40000, 120000), 2)),
+                            alternative("Challenger B", "first_cost",
+                                        round(rng.uniform(40000, 120000), 2))]})
+    return {"format": "tenure-study", "version": 1, "studies": studies}
+
+
+# --------------------------------------------------------------------------- naive reference
+def naive_alternative(alt) -> tuple[list[float], list[float]]:
+    """S_1..S_n and C_j + X_j of one alternative, year by year in plain Python."""
+    n = alt.max_life
+    price = alt.price
+    mv = alt.market_values
+    s = []
+    for k in range(1, n + 1):
+        if mv.values is not None:
+            s.append(mv.values[k - 1])
+        else:
+            s.append(price * (1.0 - mv.decline_rate) ** k)
+    oc = alt.operating_costs
+    c = []
+    for j in range(1, n + 1):
+        if oc.values is not None:
+            value = oc.values[j - 1]
+        elif oc.growth is not None:
+            value = oc.first * (1.0 + oc.growth) ** (j - 1)
+        else:
+            value = oc.first + (j - 1) * (oc.gradient or 0.0)
+        for extra in alt.extra_costs:
+            if extra.year == j:
+                value += extra.amount
+        c.append(value)
+    return s, c
+
+
+def naive_study(study) -> dict:
+    """Every AW, ESL, best challenger, decision and RV of one study, in plain Python."""
+    i = study.marr
+    out = {}
+    for alt in study.alternatives:
+        s, c = naive_alternative(alt)
+        aws = []
+        for k in range(1, alt.max_life + 1):
+            pw = -alt.price + s[k - 1] / (1.0 + i) ** k
+            annuity = 0.0
+            for j in range(1, k + 1):
+                pw -= c[j - 1] / (1.0 + i) ** j
+                annuity += 1.0 / (1.0 + i) ** j
+            aws.append(pw / annuity)
+        esl, best = 1, round(aws[0], 2)
+        for k in range(2, len(aws) + 1):
+            if round(aws[k - 1], 2) > best:
+                esl, best = k, round(aws[k - 1], 2)
+        out[alt.name] = (aws, esl, s, c)
+    best_name = study.challengers[0].name
+    for ch in study.challengers[1:]:
+        if round(out[ch.name][0][out[ch.name][1] - 1], 2) > \
+                round(out[best_name][0][out[best_name][1] - 1], 2):
+            best_name = ch.name
+    target = out[best_name][0][out[best_name][1] - 1]
+    d_aws, d_esl, d_s, d_c = out[study.defender.name]
+    replace = round(target, 2) > round(d_aws[d_esl - 1], 2)
+    rv = None
+    for k in range(1, study.defender.max_life + 1):     # RV: max_k of P with AW_k(P) = target
+        annuity = 0.0
+        rest = d_s[k - 1] / (1.0 + i) ** k
+        for j in range(1, k + 1):
+            annuity += 1.0 / (1.0 + i) ** j
+            rest -= d_c[j - 1] / (1.0 + i) ** j
+        p = rest - target * annuity
+        rv = p if rv is None or p > rv else rv
+    return {"esl": [out[a.name][1] for a in study.alternatives], "best": best_name,
+            "replace": replace, "rv": rv}
+
+
+# --------------------------------------------------------------------------- timing
+def best_of(fn, repeat: int) -> tuple[float, object]:
+    best, value = float("inf"), None
+    for _ in range(repeat):
+        start = time.perf_counter()
+        value = fn()
+        best = min(best, time.perf_counter() - start)
+    return best, value
+
+
+def engine_core(studies):
+    return compute(stack(studies))
+
+
+def check_agreement(studies, naive, core) -> int:
+    """Number of studies where the engine and the naive loop disagree (ESL, decision, RV)."""
+    bad = 0
+    first = stack(studies)["first"]
+    for k, (study, ref) in enumerate(zip(studies, naive, strict=True)):
+        rows = range(int(first[k]), int(first[k]) + len(study.alternatives))
+        esl = [int(core["esl"][r]) for r in rows]
+        best = study.alternatives[int(core["best_rows"][k]) - rows.start].name
+        ok = (esl == ref["esl"] and best == ref["best"]
+              and bool(core["replace"][k]) == ref["replace"]
+              and abs(float(core["rv"][k]) - ref["rv"]) <= 1e-6 * max(1.0, abs(ref["rv"])))
+        bad += not ok
+    return bad
+
+
+def cli_wall(path: Path, repeat: int) -> float:
+    cmd = [sys.executable, "-m", "core.cli", "study", str(path), "--json"]
+    env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
+    best = float("inf")
+    for _ in range(repeat):
+        start = time.perf_counter()
+        proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env,
+                              cwd=HERE.parent, check=False)
+        best = min(best, time.perf_counter() - start)
+        if proc.returncode != 0:
+            raise SystemExit(f"tenure failed: {proc.stderr.decode()[-500:]}")
+    return best
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--studies", type=int, default=5000)
+    ap.add_argument("--seed", type=int, default=2026)
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--skip-per-study", action="store_true",
+                    help="skip the (slow) per-study run_study loop over the fleet")
+    args = ap.parse_args()
+
+    doc = fleet_document(args.studies, args.seed)
+    studies = parse_study_document(doc)
+    one = studies[:1]
+    print(f"fleet: {len(studies)} studies, "
+          f"{sum(len(s.alternatives) for s in studies)} alternatives, lives 12-25; "
+          f"cpus {os.cpu_count()}, load {os.getloadavg()[0]:.1f}")
+
+    rows = []
+    reps_one = 200
+    t_naive_one, _ = best_of(lambda: [naive_study(s) for s in one * reps_one], args.repeat)
+    t_core_one, _ = best_of(lambda: [engine_core([s]) for s in one * reps_one], args.repeat)
+    t_run_one, _ = best_of(lambda: [run_study(s) for s in one * reps_one], args.repeat)
+    rows.append(("one study: naive loop", t_naive_one / reps_one, None))
+    rows.append(("one study: engine stack+compute", t_core_one / reps_one,
+                 t_naive_one / t_core_one))
+    rows.append(("one study: engine run_study (full result)", t_run_one / reps_one,
+                 t_naive_one / t_run_one))
+
+    t_naive, naive = best_of(lambda: [naive_study(s) for s in studies], args.repeat)
+    t_core, core = best_of(lambda: engine_core(studies), args.repeat)
+    st = stack(studies)
+    t_compute, _ = best_of(lambda: compute(st), args.repeat)
+    t_fleet, _ = best_of(lambda: run_fleet(studies), 1)
+    rows.append(("fleet: naive loop", t_naive, None))
+    rows.append(("fleet: engine stack+compute (batch path)", t_core, t_naive / t_core))
+    rows.append(("fleet: engine compute only (pre-stacked)", t_compute, t_naive / t_compute))
+    rows.append(("fleet: engine run_fleet (full results)", t_fleet, t_naive / t_fleet))
+    if not args.skip_per_study:
+        t_loop, _ = best_of(lambda: [run_study(s) for s in studies], 1)
+        rows.append(("fleet: engine run_study per study", t_loop, t_naive / t_loop))
+    bad = check_agreement(studies, naive, core)
+
+    print(f"\n{'case':46} {'seconds':>10}  {'naive / engine':>14}")
+    for name, secs, ratio in rows:
+        print(f"{name:46} {secs:10.5f}  {'' if ratio is None else f'{ratio:13.1f}x'}")
+    print(f"studies where engine and naive loop disagree (ESL, decision, RV): {bad}")
+    ratio = t_naive / t_core
+    print(f"target engine >= 30x naive on the fleet: {ratio:.1f}x -> "
+          f"{'met' if ratio >= 30 else 'NOT met'}")
+
+    with tempfile.TemporaryDirectory() as tmp:
+        fleet_file = Path(tmp) / "fleet.json"
+        one_file = Path(tmp) / "one.json"
+        fleet_file.write_text(json.dumps(doc), encoding="utf-8")
+        one_file.write_text(json.dumps({"format": "tenure-study", "version": 1,
+                                        **doc["studies"][0]}), encoding="utf-8")
+        t_cli_one = cli_wall(one_file, args.repeat)
+        t_cli_fleet = cli_wall(fleet_file, args.repeat)
+    cli_ratio = t_cli_fleet / t_cli_one
+    print(f"\n`tenure study --json`, one study:   {t_cli_one:7.3f} s (best of {args.repeat})")
+    print(f"`tenure study --json`, {len(studies)} studies: {t_cli_fleet:7.3f} s "
+          f"(best of {args.repeat})")
+    print(f"fleet / one study: {cli_ratio:.2f}x -> target <= 3x "
+          f"{'met' if cli_ratio <= 3 else 'NOT met'}")
+    return 0 if bad == 0 else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
