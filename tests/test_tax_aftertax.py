@@ -212,3 +212,17 @@ def test_decision_annual_worth_matches_analyse() -> None:
         aw = decision_annual_worth(study, alt, np.array([alt.price, alt.price]))
         assert aw.shape == (2, alt.max_life)
         assert aw[1] == pytest.approx(r.alternative(alt.name).after_tax.annual_worth_constant)
+
+
+def test_tables_against_numpy_financial() -> None:
+    # numpy-financial: npv of each retention's after-tax cash-flow table, times pmt-based
+    # capital recovery, gives the after-tax AW the study reports
+    npf = pytest.importorskip("numpy_financial")
+    study = dataclasses.replace(_rich_study(), tax=Tax(0.35, 0.065))
+    r = run_study(study)
+    for alt in r.alternatives:
+        at = alt.after_tax
+        for k, tab in enumerate(at.tables, start=1):
+            pw = npf.npv(0.065, tab.net)
+            aw = -npf.pmt(0.065, k, pw)
+            assert aw == pytest.approx(at.annual_worth[k - 1], abs=1e-6)
