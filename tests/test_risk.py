@@ -185,10 +185,10 @@ def test_share_standard_error_shrinks_like_one_over_root_n():
 # ------------------------------------------------------------------ naive reference
 @pytest.mark.parametrize("period", [None, 8])
 def test_vectorised_trials_match_a_naive_loop_of_run_study(period):
-    study = make(trials=60, study_period=period)
-    draws = risk.draw_inputs(study, 60, 7)
+    study = make(trials=40, study_period=period)
+    draws = risk.draw_inputs(study, 40, 7)
     sim = risk.simulate(study)
-    for t in range(60):
+    for t in range(40):
         case = risk.perturbed_study(study, {a: float(v[t]) for a, v in draws.items()})
         res = run_study(case)
         assert sim.replace[t] == (res.recommendation.action == "replace"

@@ -14,7 +14,7 @@ from core.study import run_study
 from core.studyfile import parse_study
 
 
-def make(tax=True, inflation=None, period=None, trials=40):
+def make(tax=True, inflation=None, period=None, trials=25):
     obj = copy.deepcopy(BASE)
     obj["defender"]["depreciation"] = {"method": "straight_line", "basis": 50000, "years": 8,
                                        "age": 3}
