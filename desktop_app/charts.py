@@ -201,6 +201,7 @@ class _Plot(pg.PlotWidget):
         item.setMenuEnabled(False)
         # An invisible border path ends in "Z", which pyqtgraph's SVG exporter cannot parse.
         item.getViewBox().border = None
+        item.getViewBox().setDefaultPadding(0.07)
         # The legend sits in its own row under the x axis, so it never hides data.
         legend = pg.LegendItem(offset=None, labelTextColor="k", labelTextSize="9pt",
                                colCount=3, horSpacing=24, verSpacing=-4)
@@ -573,6 +574,10 @@ class ChartPanel(QWidget):
         item = self.plots[self.view()].getPlotItem()
         for plot in self.plots.values():
             plot.hide_readout()
+        # The view box applies a new auto range lazily, at its next paint; the SVG exporter
+        # does not paint first, so settle the range and transform now.
+        item.getViewBox().updateAutoRange()
+        item.getViewBox().updateMatrix()
         if suffix == ".png":
             exporter = pg.exporters.ImageExporter(item)
             exporter.parameters()["width"] = int(width)
@@ -1083,6 +1088,8 @@ def _tolerant_svg_paths() -> Iterator[None]:
     original = module.correctCoordinates
 
     def correct(node, defs, item, options):
+        for element in list(node.getElementsByTagName("rect")):
+            _rect_to_path(element)
         for element in node.getElementsByTagName("path"):
             tokens = element.getAttribute("d").split()
             kept = [t for t in tokens if "," in t]
@@ -1095,6 +1102,28 @@ def _tolerant_svg_paths() -> Iterator[None]:
         yield
     finally:
         module.correctCoordinates = original
+
+
+def _rect_to_path(rect: Any) -> None:
+    """Replace an SVG <rect> by the equivalent <path>, which pyqtgraph's fix-up transforms
+    (it leaves <rect> alone, so a rectangle next to a path lost its transform)."""
+    parent = rect.parentNode
+    ancestor = parent
+    while ancestor is not None and getattr(ancestor, "tagName", None) is not None:
+        if ancestor.tagName == "pattern":
+            return
+        ancestor = ancestor.parentNode
+    try:
+        x, y = float(rect.getAttribute("x") or 0), float(rect.getAttribute("y") or 0)
+        w, h = float(rect.getAttribute("width")), float(rect.getAttribute("height"))
+    except ValueError:
+        return
+    path = rect.ownerDocument.createElement("path")
+    for name, value in rect.attributes.items():
+        if name not in ("x", "y", "width", "height"):
+            path.setAttribute(name, value)
+    path.setAttribute("d", f"M{x},{y} L{x + w},{y} L{x + w},{y + h} L{x},{y + h} L{x},{y}")
+    parent.replaceChild(path, rect)
 
 
 def _note(text: str) -> str:
