@@ -37,19 +37,34 @@ def _plain(study: Study) -> bool:
     return study.tax is None and study.inflation is None and study.uncertainty is None
 
 
+def _scatter_index(rows: list[int], life: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(row, column) indices of the first life[r] cells of each listed row, row by row."""
+    r = np.array(rows)
+    k = life[r]
+    starts = np.cumsum(k) - k
+    cols = np.arange(int(k.sum())) - np.repeat(starts, k)
+    return np.repeat(r, k), cols
+
+
 def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study).
 
     Keys: price, life, rate (M,); S, O (operating C_j), X (extra X_j), mask (M, N) with
     mask[m, k-1] = k <= max_life; counts (alternatives per study) and first (defender row).
     """
-    alts = [a for s in studies for a in s.alternatives]
+    alts = []
+    counts_l = []
+    for study in studies:
+        group = study.alternatives
+        alts.extend(group)
+        counts_l.append(len(group))
     m = len(alts)
     lives = [a.max_life for a in alts]
     n = max(lives)
     price = np.array([a.price for a in alts], dtype=float)
     life = np.array(lives)
-    rate = np.array([s.marr for s in studies for _ in s.alternatives], dtype=float)
+    counts = np.array(counts_l)
+    rate = np.repeat(np.array([s.marr for s in studies], dtype=float), counts)
     years_row = np.arange(1, n + 1, dtype=float)
     ages = years_row - 1.0
     S = np.zeros((m, n))
@@ -57,10 +72,8 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     X = np.zeros((m, n))
     # Gather explicit values as flat (row, column, value) lists: one numpy scatter each.
     sv_r: list[int] = []
-    sv_c: list[int] = []
     sv_v: list[float] = []
     ov_r: list[int] = []
-    ov_c: list[int] = []
     ov_v: list[float] = []
     x_r: list[int] = []
     x_c: list[int] = []
@@ -70,16 +83,14 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
         k = a.max_life
         mv = a.market_values
         if mv.values is not None:
-            sv_r.extend([r] * k)
-            sv_c.extend(range(k))
+            sv_r.append(r)
             sv_v.extend(mv.values[:k])
         else:
             dec_r.append(r)
             dec_d.append(mv.decline_rate or 0.0)
         oc = a.operating_costs
         if oc.values is not None:
-            ov_r.extend([r] * k)
-            ov_c.extend(range(k))
+            ov_r.append(r)
             ov_v.extend(oc.values[:k])
         elif oc.growth is not None:
             grow_r.append(r)
@@ -95,11 +106,11 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
                 x_c.append(extra.year - 1)
                 x_v.append(extra.amount)
     if sv_r:
-        S[sv_r, sv_c] = sv_v
+        S[_scatter_index(sv_r, life)] = sv_v
     if dec_r:
         S[dec_r] = price[dec_r, None] * np.power(1.0 - np.array(dec_d)[:, None], years_row)
     if ov_r:
-        Op[ov_r, ov_c] = ov_v
+        Op[_scatter_index(ov_r, life)] = ov_v
     if grad_r:
         Op[grad_r] = np.array(grad_f)[:, None] + ages * np.array(grad_g)[:, None]
     if grow_r:
@@ -109,7 +120,6 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     mask = years_row[None, :] <= life[:, None]
     S = np.where(mask, S, 0.0)
     Op = np.where(mask, Op, 0.0)
-    counts = np.array([len(s.alternatives) for s in studies])
     first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
     return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask,
             "counts": counts, "first": first}
