@@ -128,6 +128,7 @@ class RiskView(QWidget):
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self._result: StudyResult | None = None
+        self._currency = ""
         self._risk: Any = None
         self._job: RiskJob | None = None
         self._last_job: RiskJob | None = None
@@ -214,6 +215,17 @@ class RiskView(QWidget):
         self._arm()
 
     # ------------------------------------------------------------------ state
+    def set_currency(self, symbol: str) -> None:
+        """The currency symbol of the money axis titles ('' for none)."""
+        self._currency = symbol or ""
+        unit = f" ({self._currency}/yr)" if self._currency else ""
+        label = f"AW difference (best challenger - defender){unit}"
+        self.tornado_plot.setLabel("bottom", label)
+        self.histogram_plot.setLabel("bottom", label)
+
+    def currency(self) -> str:
+        return self._currency
+
     def set_result(self, result: StudyResult | None) -> None:
         """Show ``result`` (its risk analysis when it has one); a running job is cancelled."""
         self.cancel()

@@ -75,3 +75,9 @@ def test_shows_a_study_period_without_a_difference(view):
     result = run_study(make(trials=200, study_period=14))
     view.set_result(result)
     assert "Replace wins in 0.0%" in view.summary.text()
+
+
+def test_currency_in_axis_titles(view):
+    view.set_currency("£")
+    assert view.currency() == "£"
+    assert "£/yr" in view.tornado_plot.getAxis("bottom").labelText
