@@ -219,3 +219,41 @@ def test_damaged_study_row_is_reported(wb: Workbook) -> None:
         c.execute("UPDATE studies SET study_json = ?", (json.dumps(body),))
     with pytest.raises(WorkbookError, match="fingerprint does not match"):
         wb.study("AC-101")
+
+
+def test_save_studies_maps_titles_to_assets(tmp_path: Path) -> None:
+    from core.workbook import save_studies
+
+    p = tmp_path / "window.tenure"
+    first = make_study("Kestrel Road — AC-101 compressor")
+    other = Study("Loose study", 0.1, dataclasses.replace(DEFENDER, depreciation=None),
+                  (dataclasses.replace(CHALLENGER, depreciation=None),))
+    where = save_studies(p, [first, other], 2025, {first.title: run_study(first).to_json()},
+                         company="Harrowgate")
+    assert where == [("AC-101", 2025), ("A-001", 2025)]
+    with Workbook.open(p) as wb:
+        assert wb.asset("AC-101").site == "Kestrel Road"
+        assert wb.asset("AC-101").description == "compressor"
+        assert wb.asset("A-001").site == "Unassigned"
+        assert wb.record("AC-101").action == "replace" and wb.record("A-001").action is None
+    edited = dataclasses.replace(first, marr=0.12)
+    assert save_studies(p, [edited], 2026, {first.title: run_study(first).to_json()}) == [
+        ("AC-101", 2026)]
+    with Workbook.open(p) as wb:
+        assert wb.years("AC-101") == [2025, 2026] and wb.study("AC-101", 2025) == first
+        assert wb.record("AC-101").result_json is None  # the stale result was not stored
+        assert studies_from_workbook(p) == [edited, other]
+
+
+def test_study_json_import_export_functions(tmp_path: Path) -> None:
+    from core.workbook import export_study_json, import_study_json
+
+    studies = [make_study("Kestrel Road — AC-101 compressor", tax=True),
+               make_study("Millbrook — P-7 pump")]
+    src = tmp_path / "in.json"
+    src.write_text(dump_study_document(studies), encoding="utf-8")
+    p = tmp_path / "b.tenure"
+    assert import_study_json(p, src, 2026) == [("AC-101", 2026), ("P-7", 2026)]
+    out = export_study_json(p, tmp_path / "out.json")
+    assert load_study_file(out) == studies
+    assert out.read_text(encoding="utf-8") == src.read_text(encoding="utf-8")  # byte for byte

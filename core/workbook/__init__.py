@@ -28,6 +28,9 @@ Overview for the window, the memo helpers and the CLI (no Qt anywhere here)::
 
     Workbook.create("new.tenure", company="...")   # a new empty workbook (refuses to overwrite)
     studies_from_workbook(path) -> list[Study]     # current year per asset (the CLI's loader)
+    save_studies(path, studies, year=None, results=None)   # the window's Save: by title
+                                                   # "Site — TAG description" to assets
+    export_study_json(path, out); import_study_json(path, json_path, year=None)   # §5 files
     record_memo(workbook_path, memo_path=..., fingerprint=..., signer=..., title=...)
                                                    # module-level hook used by the memo dialog
     autosave(workbook, path=None, pending=None)    # atomic sibling recovery copy
@@ -58,7 +61,10 @@ from core.workbook.model import (
     Site,
     StudyRecord,
     Workbook,
+    export_study_json,
+    import_study_json,
     record_memo,
+    save_studies,
     studies_from_workbook,
 )
 from core.workbook.recovery import (
@@ -72,5 +78,5 @@ from core.workbook.schema import APPLICATION_ID, SCHEMA_VERSION
 
 __all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "Asset", "Candidate", "HistoryRow", "MemoRecord",
            "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse", "autosave",
-           "check_file", "discard_recovery", "find_recovery", "lock_path", "record_memo",
-           "recovery_path", "restore_recovery", "studies_from_workbook"]
+           "check_file", "discard_recovery", "export_study_json", "import_study_json", "find_recovery", "lock_path", "record_memo",
+           "recovery_path", "restore_recovery", "save_studies", "studies_from_workbook"]

@@ -612,6 +612,84 @@ def studies_from_workbook(path: str | Path) -> list[Study]:
     return studies
 
 
+SITE_SEPARATOR = " — "
+
+
+def _asset_for_title(wb: Workbook, title: str, by_title: dict[str, str]) -> str:
+    """The tag of the asset a study title belongs to, adding the asset when it is new."""
+    if title in by_title:
+        return by_title[title]
+    site, _, rest = title.partition(SITE_SEPARATOR)
+    if not rest.strip():
+        site, rest = "Unassigned", title
+    site, rest = site.strip() or "Unassigned", rest.strip()
+    first = rest.split(" ", 1)[0]
+    try:
+        if wb.asset(first).site == site:
+            return first
+    except KeyError:
+        pass
+    known = {a.tag for a in wb.assets()}
+    if first and any(ch.isdigit() for ch in first) and first not in known:
+        tag, description = first, (rest.split(" ", 1)[1] if " " in rest else rest)
+    else:
+        n = 1
+        while f"A-{n:03d}" in known:
+            n += 1
+        tag, description = f"A-{n:03d}", rest
+    wb.add_asset(Asset(tag, description, site))
+    by_title[title] = tag
+    return tag
+
+
+def save_studies(path: str | Path, studies: Sequence[Study], year: int | None = None,
+                 results: Mapping[str, Mapping[str, Any]] | None = None,
+                 company: str = "") -> list[tuple[str, int]]:
+    """Save the window's studies into the workbook at ``path`` (created when missing).
+
+    Each study goes to the asset whose current study has the same title; else
+    to the asset named by the title "Site — TAG description"; else to a new
+    asset. It is stored as ``year``'s study (default: this calendar year),
+    replacing that year's and leaving earlier years as they were. ``results``
+    maps a title to its ``StudyResult.to_json()``. One transaction for all.
+    Returns the (tag, year) of each study, in order.
+    """
+    year = _dt.date.today().year if year is None else int(year)
+    path = Path(path)
+    with (Workbook.create(path, company=company) if not path.exists() else _writer(path)) as wb:
+        by_title = {r.study.title: r.tag for r in wb.studies()}
+        out = []
+        with wb.transaction():
+            for study in studies:
+                tag = _asset_for_title(wb, study.title, by_title)
+                result = (results or {}).get(study.title)
+                if result is not None and result.get("fingerprint") != fingerprint(study):
+                    result = None  # a stale result is not stored as this study's snapshot
+                wb.save_study(tag, year, study, result)
+                out.append((tag, year))
+        return out
+
+
+def export_study_json(workbook_path: str | Path, out: str | Path) -> Path:
+    """Write the current study of every asset as one DESIGN.md §5 study file."""
+    from core.studyfile import dump_study_document
+
+    out = Path(out)
+    text = dump_study_document(studies_from_workbook(workbook_path))
+    tmp = out.with_name(out.name + ".part")
+    tmp.write_text(text, encoding="utf-8")
+    os.replace(tmp, out)
+    return out
+
+
+def import_study_json(workbook_path: str | Path, json_path: str | Path,
+                      year: int | None = None) -> list[tuple[str, int]]:
+    """Read a §5 study file into the workbook as ``year``'s studies (see :func:`save_studies`)."""
+    from core.studyfile import load_study_file
+
+    return save_studies(workbook_path, load_study_file(json_path), year)
+
+
 @contextlib.contextmanager
 def _writer(path: str | Path) -> Iterator[Workbook]:
     """The workbook at ``path`` for writing: this process's open one if any, else a new one."""
@@ -641,4 +719,4 @@ def record_memo(workbook_path: str | Path, memo_path: str | Path, fingerprint: s
 
 
 __all__ = ["Asset", "Candidate", "HistoryRow", "MemoRecord", "Site", "StudyRecord", "Workbook",
-           "record_memo", "studies_from_workbook"]
+           "export_study_json", "import_study_json", "record_memo", "save_studies", "studies_from_workbook"]
