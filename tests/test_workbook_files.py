@@ -356,3 +356,12 @@ def test_damaged_recovery_is_not_offered(book: Path) -> None:
     assert find_recovery(book) is None
     with pytest.raises(WorkbookError, match="no intact recovery"):
         restore_recovery(book)
+
+
+def test_break_lock_after_confirmation(book: Path) -> None:
+    lock_path(book).write_text(json.dumps({"pid": 1, "host": "elsewhere", "time": "t"}))
+    with pytest.raises(WorkbookInUse):
+        Workbook.open(book, write=True)
+    with Workbook.open(book, write=True, break_lock=True) as wb:
+        assert json.loads(lock_path(book).read_text())["pid"] == os.getpid()
+        assert wb.writable

@@ -36,6 +36,7 @@ Overview for the window, the memo helpers and the CLI (no Qt anywhere here)::
     autosave(workbook, path=None, pending=None)    # atomic sibling recovery copy
     find_recovery(path) -> Path | None             # offer it after a crash
     discard_recovery(path); restore_recovery(path)
+    Workbook.open(path, write=True, break_lock=True)   # after the user confirms a left-over lock
 
 Files are checked before anything is written: a damaged, truncated or foreign
 file raises :class:`WorkbookError` (a ``core.errors.StudyError``, printed as

@@ -200,6 +200,17 @@ class WriterLock:
             return False  # cannot tell whether a process on another machine is alive
         return not _pid_alive(int(owner.get("pid", -1)))
 
+    def owner(self) -> dict | None:
+        """The pid, host and time in the lock file, or None when there is no readable lock."""
+        return self._owner() if self.file.exists() else None
+
+    def break_lock(self) -> None:
+        """Remove the lock file whoever holds it (only after the user confirms it is stale)."""
+        try:
+            self.file.unlink()
+        except FileNotFoundError:
+            pass
+
     def acquire(self) -> None:
         me = {"pid": os.getpid(), "host": socket.gethostname(),
               "time": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")}

@@ -180,17 +180,22 @@ class Workbook:
         return conn
 
     @classmethod
-    def open(cls, path: str | Path, write: bool = False) -> Workbook:
+    def open(cls, path: str | Path, write: bool = False, break_lock: bool = False) -> Workbook:
         """Open an existing workbook, checked first; ``write=True`` takes the writer's lock.
 
         An older schema is migrated forward (one transaction) when opened for
-        writing; read-only opening never changes the file.
+        writing; read-only opening never changes the file. ``break_lock=True``
+        removes a lock the user has confirmed is left over (for example from
+        another computer that crashed); SQLite's own locking still guards
+        each transaction.
         """
         path = Path(path)
         version = check_file(path)
         if not write:
             return cls(path, cls._connect(path, False), False, None, version)
         lock = WriterLock(path)
+        if break_lock:
+            lock.break_lock()
         lock.acquire()
         try:
             conn = cls._connect(path, True)
