@@ -19,7 +19,6 @@ through ``core.study`` unchanged (their hooks are per study).
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
@@ -211,75 +210,84 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
                ) -> tuple[list[StudyResult], list[dict[str, Any]] | None]:
     st = stack(studies)
     core = compute(st)
-    price, rate, life, first, counts = st["price"], st["rate"], st["life"], st["first"], st["counts"]
+    price, rate, life, first = st["price"], st["rate"], st["life"], st["first"]
     sch, esl, at_esl, best_rows = core["schedule"], core["esl"], core["at_esl"], core["best_rows"]
     rv, planned, mc_next = core["rv"], core["planned"], core["mc_next"]
     neg_s, neg_c = core["neg_s"], core["neg_c"]
     aw = sch.annual_worth
+    n_cols = aw.shape[1]
+    # Python lists: indexing numpy scalars one by one costs more than the numpy pass itself.
+    esl_l, at_l, best_l = esl.tolist(), at_esl.tolist(), best_rows.tolist()
+    rv_l, planned_l, mc_l = rv.tolist(), planned.tolist(), mc_next.tolist()
+    first_l, rate_l, price_l = first.tolist(), rate.tolist(), price.tolist()
+    flat: dict[str, list[float]] = {}
+    if with_json:
+        # Round every list of every alternative in one pass (results._list on the whole
+        # stack), then cut each alternative's cells: the values AlternativeResult.to_json gives.
+        flat = {key: _list(matrix) for key, matrix in (
+            ("annual_worth", aw), ("capital_recovery", sch.capital_recovery),
+            ("operating_annual_worth", sch.operating), ("marginal_cost", sch.marginal_cost),
+            ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", st["X"]))}
     out: list[StudyResult] = []
+    docs: list[dict[str, Any]] = []
     for s_i, study in enumerate(studies):
-        rows = range(int(first[s_i]), int(first[s_i] + counts[s_i]))
-        names = [a.name for a in study.alternatives]
-        esl_d = {nm: int(esl[r]) for nm, r in zip(names, rows, strict=True)}
-        at_d = {nm: float(at_esl[r]) for nm, r in zip(names, rows, strict=True)}
-        best = names[int(best_rows[s_i]) - rows.start]
+        alts = study.alternatives
+        start = first_l[s_i]
+        rows = range(start, start + len(alts))
+        names = [a.name for a in alts]
+        esl_d = dict(zip(names, esl_l[start:rows.stop], strict=True))
+        at_d = dict(zip(names, at_l[start:rows.stop], strict=True))
+        best = names[best_l[s_i] - start]
         c_aw = at_d[best]
-        rv_i = float(rv[s_i])
-        check = {"year": 1, "defender_marginal_cost": float(mc_next[s_i]),
+        rv_i = rv_l[s_i]
+        check = {"year": 1, "defender_marginal_cost": mc_l[s_i],
                  "challenger_annual_cost": -c_aw,
-                 "keep_next_year": bool(mc_next[s_i] < -c_aw - CENT)}
+                 "keep_next_year": mc_l[s_i] < -c_aw - CENT}
         if study.study_period is None:
-            rec = _no_period_recommendation(study, best, esl_d, at_d, rv_i, int(planned[s_i]),
-                                            check)
+            rec = _no_period_recommendation(study, best, esl_d, at_d, rv_i, planned_l[s_i], check)
             options: list = []
         else:
             aw_map = {nm: aw[r, :life[r]] for nm, r in zip(names, rows, strict=True)}
-            rec, options, _ = decide(study, aw_map, float(rate[rows.start]), "before-tax",
+            rec, options, _ = decide(study, aw_map, rate_l[start], "before-tax",
                                      lambda _target, value=rv_i: value)
         order = sorted(names, key=lambda nm: -round(at_d[nm], 2))
+        rank = {nm: order.index(nm) + 1 for nm in names}
         results = []
-        for alt, r in zip(study.alternatives, rows, strict=True):
-            k = alt.max_life
-            results.append(AlternativeResult(
-                name=alt.name, role=alt.role, price=float(price[r]), max_life=k,
-                market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
-                extra_costs=st["X"][r, :k], annual_worth=aw[r, :k],
-                capital_recovery=sch.capital_recovery[r, :k], operating=sch.operating[r, :k],
-                marginal_cost=sch.marginal_cost[r, :k], economic_life=esl_d[alt.name],
-                annual_worth_at_economic_life=at_d[alt.name], rank=order.index(alt.name) + 1))
-        out.append(StudyResult(study=study, rate=float(rate[rows.start]),
-                               alternatives=tuple(results), recommendation=rec,
-                               before_tax_recommendation=rec, study_period_options=tuple(options),
-                               warnings=tuple(_warnings(study, st["S"], rows, neg_s, neg_c)),
-                               fingerprint=fingerprint(study)))
-    if not with_json:
-        return out, None
-    # Round every list of every alternative in one pass (results._list, on the whole stack),
-    # then cut each alternative's rows: the same values AlternativeResult.to_json gives.
-    n_cols = aw.shape[1]
-    flat = {key: _list(matrix) for key, matrix in (
-        ("annual_worth", aw), ("capital_recovery", sch.capital_recovery),
-        ("operating_annual_worth", sch.operating), ("marginal_cost", sch.marginal_cost),
-        ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", st["X"]))}
-    docs = []
-    for s_i, result in enumerate(out):
-        doc = dataclasses.replace(result, alternatives=()).to_json()
-        alts = []
-        for r, a in enumerate(result.alternatives, start=int(first[s_i])):
-            lo, hi = r * n_cols, r * n_cols + a.max_life
-            alts.append({
-                "name": a.name, "role": a.role, "annual_worth": flat["annual_worth"][lo:hi],
-                "economic_life": a.economic_life,
-                "annual_worth_at_economic_life": _r(a.annual_worth_at_economic_life),
-                "rank": a.rank, "capital_recovery": flat["capital_recovery"][lo:hi],
+        if not with_json:
+            for alt, r in zip(alts, rows, strict=True):
+                k = alt.max_life
+                results.append(AlternativeResult(
+                    name=alt.name, role=alt.role, price=price_l[r], max_life=k,
+                    market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
+                    extra_costs=st["X"][r, :k], annual_worth=aw[r, :k],
+                    capital_recovery=sch.capital_recovery[r, :k], operating=sch.operating[r, :k],
+                    marginal_cost=sch.marginal_cost[r, :k], economic_life=esl_d[alt.name],
+                    annual_worth_at_economic_life=at_d[alt.name], rank=rank[alt.name]))
+        result = StudyResult(study=study, rate=rate_l[start], alternatives=tuple(results),
+                             recommendation=rec, before_tax_recommendation=rec,
+                             study_period_options=tuple(options),
+                             warnings=tuple(_warnings(study, st["S"], rows, neg_s, neg_c)),
+                             fingerprint=fingerprint(study))
+        if not with_json:
+            out.append(result)
+            continue
+        doc = result.to_json()
+        doc_alts = []
+        for alt, r in zip(alts, rows, strict=True):
+            lo, hi = r * n_cols, r * n_cols + alt.max_life
+            doc_alts.append({
+                "name": alt.name, "role": alt.role, "annual_worth": flat["annual_worth"][lo:hi],
+                "economic_life": esl_d[alt.name],
+                "annual_worth_at_economic_life": _r(at_d[alt.name]),
+                "rank": rank[alt.name], "capital_recovery": flat["capital_recovery"][lo:hi],
                 "operating_annual_worth": flat["operating_annual_worth"][lo:hi],
                 "marginal_cost": flat["marginal_cost"][lo:hi],
                 "market_values": flat["market_values"][lo:hi],
                 "operating_costs": flat["operating_costs"][lo:hi],
                 "extra_costs": flat["extra_costs"][lo:hi]})
-        doc["alternatives"] = alts
+        doc["alternatives"] = doc_alts
         docs.append(doc)
-    return out, docs
+    return out, (docs if with_json else None)
 
 
 def run_fleet(studies: Sequence[Study]) -> list[StudyResult]:
@@ -308,18 +316,20 @@ def run_fleet_json(studies: Sequence[Study]) -> list[dict[str, Any]]:
 
 def _run_all(studies: Sequence[Study], with_json: bool
              ) -> tuple[list[StudyResult], list[dict[str, Any]]]:
+    """Results (or, with ``with_json``, only the §6 objects) for every study, in order."""
     plain = [k for k, s in enumerate(studies) if _plain(s)]
     results: list[Any] = [None] * len(studies)
     docs: list[Any] = [None] * len(studies)
     if plain:
         got, got_docs = _run_plain([studies[k] for k in plain], with_json)
         for j, k in enumerate(plain):
-            results[k] = got[j]
             if got_docs is not None:
                 docs[k] = got_docs[j]
+            else:
+                results[k] = got[j]
     for k, study in enumerate(studies):
-        if results[k] is None:
-            results[k] = run_study(study)
         if with_json and docs[k] is None:
-            docs[k] = results[k].to_json()
+            docs[k] = run_study(study).to_json()
+        elif not with_json and results[k] is None:
+            results[k] = run_study(study)
     return results, docs

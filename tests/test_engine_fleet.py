@@ -91,6 +91,11 @@ def test_fleet_falls_back_for_hooked_studies() -> None:
     out = run_fleet([plain, hooked])
     _same(out[0], run_study(plain))
     _same(out[1], run_study(hooked))
+    from core.fleet import run_fleet_json
+
+    docs = run_fleet_json([hooked, plain])
+    assert docs[0] == run_study(hooked).to_json()
+    assert docs[1]["title"] == plain.title and docs[1]["alternatives"][0]["name"] == "Existing unit"
 
 
 def test_closed_form_replacement_value_by_hand() -> None:
