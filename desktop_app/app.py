@@ -17,12 +17,6 @@ def _configure_rendering() -> None:
     from PySide6.QtCore import QCoreApplication, Qt
 
     QCoreApplication.setAttribute(Qt.ApplicationAttribute.AA_UseSoftwareOpenGL, True)
-    try:
-        import pyqtgraph as pg
-
-        pg.setConfigOptions(useOpenGL=False, antialias=True, background="w", foreground="k")
-    except ImportError:
-        pass
 
 
 def create_app(argv: list[str] | None = None):
@@ -56,16 +50,24 @@ def initial_path(path: str | None, prefs) -> str | None:
     return demo_path()
 
 
-def build_window(path: str | None):
+def build_window(path: str | None, deferred: bool = False):
+    """The main window on ``path`` (else the last file, else the demo).
+
+    ``deferred``: return at once with an empty window; call
+    ``window.finish_startup(window.startup_path)`` once it is on screen to load
+    the panels and the file (the start-up path of ``main``).
+    """
     from desktop_app.main_window import MainWindow
     from desktop_app.prefs import Preferences
 
     prefs = Preferences()
-    window = MainWindow(prefs)
+    window = MainWindow(prefs, deferred=deferred)
     target = initial_path(path, prefs)
-    if target is not None:
-        if not window.open_path(target) and target != path:
-            pass
+    window.startup_path = target
+    if deferred:
+        pass
+    elif target is not None:
+        window.open_path(target)
     return window
 
 
@@ -76,9 +78,13 @@ def main(path: str | None = None) -> int:
     if path is not None and not Path(path).exists():
         raise StudyError(path, "no such file")
     app = create_app()
-    window = build_window(path)
+    window = build_window(path, deferred=True)
     recovery.install_excepthook(window.handle_unexpected)
     window.show()
+    app.processEvents()  # paint the window first, then load the panels and the file
+    from PySide6.QtCore import QTimer
+
+    QTimer.singleShot(0, lambda: window.finish_startup(window.startup_path))
     return int(app.exec())
 
 

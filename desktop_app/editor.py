@@ -101,9 +101,10 @@ class LineBinding:
         if self.edit.text() != text:
             with QSignalBlocker(self.edit):
                 self.edit.setText(text)
+                self.edit.setCursorPosition(0)
 
     def finish(self) -> None:
-        study = self.owner.study
+        study = self.owner.latest()
         if study is None or self.edit.text() == self.getter(study):
             return
         try:
@@ -125,8 +126,8 @@ class LineBinding:
             self.owner.report(message)
             self.edit.setToolTip(message)
         self.edit.setStyleSheet(ERROR_STYLE)
-        if self.owner.study is not None:
-            self.show(self.owner.study)
+        if self.owner.latest() is not None:
+            self.show(self.owner.latest())
 
 
 class _StudyView(QWidget):
@@ -147,6 +148,11 @@ class _StudyView(QWidget):
         edit.setPlaceholderText(placeholder)
         self.bindings.append(LineBinding(edit, label, getter, setter, self, merge or label))
         return edit
+
+    def latest(self) -> Study | None:
+        """The newest study this view was given (a hidden tab may hold one not yet shown)."""
+        pending = getattr(self, "pending", None)
+        return pending if pending is not None else self.study
 
     def show_bindings(self) -> None:
         if self.study is not None:
@@ -225,7 +231,7 @@ class StudySettings(_StudyView):
         self.infl_rate = self.bind(
             "Inflation rate", lambda s: fmt_percent(s.inflation.rate) if s.inflation else "",
             self._set_infl_rate)
-        right.addRow("Inflation rate (% a year)", self.infl_rate)
+        right.addRow("Inflation (% a year)", self.infl_rate)
         self.year: int | None = None
 
     def set_study(self, study: Study | None, year: int | None) -> None:
@@ -326,7 +332,12 @@ class YearTableModel(QAbstractTableModel):
         self.labels: list[str] = []
 
     def set_alternative(self, alt: Alternative | None) -> None:
-        self.beginResetModel()
+        same_shape = (alt is not None and self.alt is not None
+                      and alt.max_life == self.alt.max_life)
+        if alt == self.alt:
+            return
+        if not same_shape:
+            self.beginResetModel()
         self.alt = alt
         if alt is not None:
             self.s = alt.market_value_array()
@@ -337,7 +348,10 @@ class YearTableModel(QAbstractTableModel):
                 if 1 <= e.year <= alt.max_life and e.label:
                     k = e.year - 1
                     self.labels[k] = e.label if not self.labels[k] else f"{self.labels[k]}; {e.label}"
-        self.endResetModel()
+        if same_shape:  # keep the selection and the current cell: only the values changed
+            self.dataChanged.emit(self.index(0, 0), self.index(self.rowCount() - 1, 4))
+        else:
+            self.endResetModel()
 
     def rowCount(self, parent: QModelIndex = _ROOT) -> int:  # noqa: N802
         return 0 if self.alt is None or parent.isValid() else self.alt.max_life
@@ -406,6 +420,7 @@ class AlternativeEditor(_StudyView):
                  parent: QWidget | None = None) -> None:
         super().__init__(commit, report, parent)
         self.position = position
+        self.pending: Study | None = None
         outer = QVBoxLayout(self)
         outer.setContentsMargins(6, 6, 6, 6)
         top = QHBoxLayout()
@@ -429,14 +444,14 @@ class AlternativeEditor(_StudyView):
         form.addRow("Tax depreciation", self.dep_method)
         self.dep_years = self.bind(
             "Recovery period", lambda s: self._dep_text(s, "years"), self._set_dep_years)
-        self.dep_years_label = QLabel("Recovery period (years)")
+        self.dep_years_label = QLabel("Recovery (years)")
         form.addRow(self.dep_years_label, self.dep_years)
         self.dep_basis = self.bind("Tax basis", lambda s: self._dep_text(s, "basis"),
                                    self._set_dep_basis)
         self.dep_basis_label = QLabel()
         form.addRow(self.dep_basis_label, self.dep_basis)
         self.dep_age = self.bind("Tax age", lambda s: self._dep_text(s, "age"), self._set_dep_age)
-        form.addRow("Tax age (years claimed)", self.dep_age)
+        form.addRow("Tax age (years)", self.dep_age)
         top.addWidget(basics, 1)
 
         rules = QGroupBox("Generators (fill the table)")
@@ -509,6 +524,7 @@ class AlternativeEditor(_StudyView):
 
     def set_study(self, study: Study | None) -> None:
         self.study = study
+        self.pending = None
         if study is None:
             return
         alt = self.alt_of(study)
@@ -532,8 +548,8 @@ class AlternativeEditor(_StudyView):
         self.dep_basis.setEnabled(dep is not None)
         self.dep_basis.setPlaceholderText("" if self.position == 0 else "= first cost")
         self.dep_age.setEnabled(dep is not None and self.position == 0)
-        self.dep_years_label.setText("MACRS class (years)" if dep is not None and
-                                     dep.method == "macrs" else "Recovery period (years)")
+        self.dep_years_label.setText("MACRS class" if dep is not None and
+                                     dep.method == "macrs" else "Recovery (years)")
         self.model.set_alternative(alt)
 
     # -- setters (each returns the next study or raises FieldError)
@@ -587,7 +603,7 @@ class AlternativeEditor(_StudyView):
         return self._alt(s, operating_costs=replace(oc, **changes))
 
     def _mv_mode_changed(self, k: int) -> None:
-        s = self.study
+        s = self.latest()
         if s is None:
             return
         alt = self.alt_of(s)
@@ -601,7 +617,7 @@ class AlternativeEditor(_StudyView):
             self.set_study(s)
 
     def _oc_mode_changed(self, k: int) -> None:
-        s = self.study
+        s = self.latest()
         if s is None:
             return
         alt = self.alt_of(s)
@@ -631,7 +647,7 @@ class AlternativeEditor(_StudyView):
         return "" if value is None else str(value)
 
     def _dep_changed(self, k: int) -> None:
-        s = self.study
+        s = self.latest()
         if s is None:
             return
         alt = self.alt_of(s)
@@ -671,7 +687,7 @@ class AlternativeEditor(_StudyView):
 
     # -- table edits
     def edit_cell(self, row: int, col: int, text: str) -> bool:
-        s = self.study
+        s = self.latest()
         if s is None:
             return False
         alt = self.alt_of(s)
@@ -738,13 +754,24 @@ class StudyEditor(QWidget):
         bar.addWidget(self.add_button)
         bar.addWidget(self.remove_button)
         layout.addLayout(bar)
+        self.notice = QLabel("")
+        self.notice.setObjectName("editor_notice")
+        self.notice.setWordWrap(True)
+        self.notice.setStyleSheet("color: #9b2c1f; font-weight: bold; padding: 2px 4px;")
+        self.notice.hide()
+        layout.addWidget(self.notice)
         self.tabs = QTabWidget()
-        self.tabs.currentChanged.connect(lambda _i: self._update_buttons())
+        self.tabs.currentChanged.connect(self._tab_opened)
         layout.addWidget(self.tabs, 1)
         self.placeholder = QLabel("This asset has no study yet. Use Asset ▸ Start study.")
         self.placeholder.setAlignment(Qt.AlignmentFlag.AlignCenter)
         layout.addWidget(self.placeholder)
         self.placeholder.hide()
+
+    def show_notice(self, message: str) -> None:
+        """The last refusal or note, shown inline above the alternatives."""
+        self.notice.setText(message)
+        self.notice.setVisible(bool(message))
 
     def editors(self) -> list[AlternativeEditor]:
         return [self.tabs.widget(i) for i in range(self.tabs.count())]
@@ -775,9 +802,23 @@ class StudyEditor(QWidget):
             ed.currency = self.currency
             ed.retitle()
             self.tabs.addTab(ed, "")
+        current = self.tabs.currentIndex()
         for i, alt in enumerate(alts):
-            self.tabs.setTabText(i, ("Defender: " if i == 0 else "") + alt.name)
-            self.tabs.widget(i).set_study(study)
+            text = ("Defender: " if i == 0 else "") + alt.name
+            if self.tabs.tabText(i) != text:
+                self.tabs.setTabText(i, text)
+            ed = self.tabs.widget(i)
+            if i == current:
+                ed.set_study(study)
+            else:
+                ed.pending = study  # shown when its tab is opened
+        self._update_buttons()
+
+    def _tab_opened(self, index: int) -> None:
+        ed = self.tabs.widget(index)
+        if ed is not None and getattr(ed, "pending", None) is not None:
+            study, ed.pending = ed.pending, None
+            ed.set_study(study)
         self._update_buttons()
 
     def _update_buttons(self) -> None:

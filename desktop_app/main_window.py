@@ -72,8 +72,11 @@ APP_NAME = "Tenure"
 
 
 class MainWindow(QMainWindow):
-    def __init__(self, prefs: Preferences | None = None, parent: QWidget | None = None) -> None:
+    def __init__(self, prefs: Preferences | None = None, parent: QWidget | None = None,
+                 deferred: bool = False) -> None:
         super().__init__(parent)
+        self._deferred = deferred
+        self.startup_done = not deferred
         self.prefs = prefs or Preferences()
         self.doc = Document([], None, "new")
         self.current_key: str | None = None
@@ -87,7 +90,8 @@ class MainWindow(QMainWindow):
         self.undo_stack.cleanChanged.connect(lambda _c: self._update_modified())
         self.undo_stack.indexChanged.connect(lambda _i: self._update_modified())
         self.setWindowTitle(f"[*]{APP_NAME}")
-        self.resize(1480, 900)
+        self.resize(1720, 980)
+        self._sized = False
         self._build()
         self._build_menus()
         self.autosave_timer = QTimer(self)
@@ -105,24 +109,17 @@ class MainWindow(QMainWindow):
         scroll.setWidget(self.editor)
         scroll.setMinimumWidth(480)
 
-        self.chart_panel = make_chart_panel()
-        self.results_panel = make_results_panel()
-        self.risk_view = make_risk_view()
-        results_page = QWidget()
-        rl = QVBoxLayout(results_page)
-        rl.setContentsMargins(0, 0, 0, 0)
-        right_split = QSplitter(Qt.Orientation.Vertical)
-        right_split.addWidget(self.chart_panel)
-        right_split.addWidget(self.results_panel)
-        right_split.setStretchFactor(0, 3)
-        right_split.setStretchFactor(1, 2)
-        rl.addWidget(right_split)
-        if not results_panel_shows_cautions():
-            rl.addWidget(CautionsLabel())
+        self.chart_panel = self.results_panel = self.risk_view = None
+        self.results_page = QWidget()
+        self.results_layout = QVBoxLayout(self.results_page)
+        self.results_layout.setContentsMargins(0, 0, 0, 0)
+        self.loading_label = QLabel("Loading the charts…")
+        self.loading_label.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.results_layout.addWidget(self.loading_label)
         self.right_tabs = QTabWidget()
-        self.right_tabs.addTab(results_page, "Results")
-        if self.risk_view is not None:
-            self.right_tabs.addTab(self.risk_view, "Risk")
+        self.right_tabs.addTab(self.results_page, "Results")
+        if not self._deferred:
+            self.build_panels()
 
         left = QWidget()
         ll = QVBoxLayout(left)
@@ -139,7 +136,7 @@ class MainWindow(QMainWindow):
         self.splitter.setStretchFactor(0, 0)
         self.splitter.setStretchFactor(1, 3)
         self.splitter.setStretchFactor(2, 4)
-        self.splitter.setSizes([370, 600, 630])
+        self.splitter.setSizes([370, 680, 670])
         self.setCentralWidget(self.splitter)
 
         bar = self.statusBar()
@@ -155,6 +152,36 @@ class MainWindow(QMainWindow):
         bar.addPermanentWidget(self.cancel_button)
         self.progress.hide()
         self.cancel_button.hide()
+
+    def build_panels(self) -> None:
+        """Create the result panels (chart, results, risk); deferred at start-up so the
+        window shows before pyqtgraph and the engine are imported."""
+        if self.chart_panel is not None:
+            return
+        self.chart_panel = make_chart_panel()
+        self.results_panel = make_results_panel()
+        self.risk_view = make_risk_view()
+        right_split = QSplitter(Qt.Orientation.Vertical)
+        right_split.addWidget(self.chart_panel)
+        right_split.addWidget(self.results_panel)
+        right_split.setStretchFactor(0, 1)
+        right_split.setStretchFactor(1, 1)
+        right_split.setSizes([470, 430])
+        self.right_split = right_split
+        self.loading_label.hide()
+        self.results_layout.addWidget(right_split)
+        if not results_panel_shows_cautions():
+            self.results_layout.addWidget(CautionsLabel())
+        if self.risk_view is not None:
+            self.right_tabs.addTab(self.risk_view, "Risk")
+        self.apply_preferences()
+
+    def finish_startup(self, path: str | None) -> None:
+        """The second half of a deferred start: panels, then the file."""
+        self.build_panels()
+        if path is not None:
+            self.open_path(path)
+        self.startup_done = True
 
     def _action(self, text: str, slot, shortcut=None, tip: str = "") -> QAction:
         action = QAction(text, self)
@@ -224,6 +251,8 @@ class MainWindow(QMainWindow):
         self.last_message = message
         self.message_label.setText(message)
         self.message_label.setToolTip(message)
+        self.editor.show_notice(message if not message.startswith(("Opened", "Saved",
+                                                                    "Exported")) else "")
 
     def _update_modified(self) -> None:
         if not (shiboken6.isValid(self) and shiboken6.isValid(self.undo_stack)):
@@ -251,7 +280,8 @@ class MainWindow(QMainWindow):
         for panel in (self.chart_panel, self.results_panel, self.risk_view):
             if panel is not None and hasattr(panel, "set_currency"):
                 panel.set_currency(currency)
-        self.autosave_timer.setInterval(max(self.prefs.autosave_seconds, 10) * 1000)
+        if hasattr(self, "autosave_timer"):
+            self.autosave_timer.setInterval(max(self.prefs.autosave_seconds, 10) * 1000)
 
     # ------------------------------------------------------------------ documents
     def set_document(self, doc: Document, dirty: bool = False) -> None:
@@ -393,6 +423,14 @@ class MainWindow(QMainWindow):
             return True
         return False
 
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().showEvent(event)
+        if not self._sized:  # give the editor its width once the window has its own
+            self._sized = True
+            width = max(self.splitter.width(), 1)
+            left = min(380, width // 5)
+            self.splitter.setSizes([left, int(width * 0.40), width - left - int(width * 0.40)])
+
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt's name
         if self.maybe_save():
             self.cancel_fleet()
@@ -456,6 +494,8 @@ class MainWindow(QMainWindow):
                 except StudyError as exc:
                     self.report(friendly(exc))
         self.current_result = result
+        if self.chart_panel is None:
+            return
         for panel in (self.results_panel, self.chart_panel, self.risk_view):
             if panel is not None:
                 panel.set_result(result)
@@ -473,11 +513,12 @@ class MainWindow(QMainWindow):
                 self.select_asset(key)
             return
         if event in ("study", "year"):
-            self.register.update_row(key)
             if key == self.current_key:
                 self.refresh_current()
             else:
                 self.select_asset(key)
+            if self.chart_panel is None:
+                self.register.update_row(key)
         elif event == "result":
             self.register.update_row(key)
             if key == self.current_key and self.current_result is None:
@@ -637,10 +678,12 @@ class MainWindow(QMainWindow):
         except ImportError:
             export = None
         try:
-            if export is not None and hasattr(export, "export_result"):
-                export.export_result(result, path)
-            elif path.lower().endswith(".xlsx"):
-                raise StudyError(path, "XLSX export is not available in this build; use .csv")
+            if path.lower().endswith(".xlsx"):
+                if export is None:
+                    raise StudyError(path, "XLSX export is not available in this build; use .csv")
+                export.export_xlsx(result, path)
+            elif export is not None:
+                export.export_csv(result, path, table="alternatives")
             else:
                 write_tables_csv(result, path)
         except StudyError as exc:

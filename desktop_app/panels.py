@@ -61,6 +61,12 @@ class CautionsLabel(QLabel):
 
 def make_chart_panel(parent: QWidget | None = None) -> QWidget:
     try:
+        import pyqtgraph as pg
+
+        pg.setConfigOptions(useOpenGL=False)  # software rendering only
+    except ImportError:
+        pass
+    try:
         from desktop_app.charts import ChartPanel
     except ImportError:
         return _StandIn("Chart", parent)

@@ -22,7 +22,7 @@ from desktop_app.document import Document
 
 KEY_ROLE = Qt.ItemDataRole.UserRole + 1
 SORT_ROLE = Qt.ItemDataRole.UserRole + 2
-COLUMNS = ["Site / asset", "Recommendation", "Study year"]
+COLUMNS = ["Site / asset", "Recommendation", "Year"]
 STATE_COLOURS = {"replace now": "#b03a2e", "keep": "#1e7a46", "not yet studied": "#6c757d"}
 
 
@@ -129,9 +129,12 @@ class RegisterPane(QWidget):
         if parent is not None and parent.text() != entry.site:
             self.rebuild()  # the asset moved to another site (its title changed)
             return
-        if name.text() != entry.name:
-            name.setText(entry.name)
+        if name.text() == entry.name and rec.text() == state.recommendation and \
+                est.text() == state.estimates:
+            return  # nothing changed: leave the model (and the view) alone
+        name.setText(entry.name)
         name.setData(entry.name.lower(), SORT_ROLE)
+        name.setToolTip(f"{entry.site}: {entry.name}")
         rec.setText(state.recommendation)
         rec.setData(state.sort_key, SORT_ROLE)
         colour = STATE_COLOURS.get(state.recommendation,

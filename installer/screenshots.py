@@ -53,7 +53,7 @@ def render(out_dir: Path) -> list[Path]:
     app = create_app(["tenure-screenshots"])
     app.setStyle("Fusion")
     window = build_window(None)
-    window.resize(1600, 940)
+    window.resize(1800, 1000)
     window.show()
     _settle(app, window)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -62,7 +62,7 @@ def render(out_dir: Path) -> list[Path]:
     # 1. the whole window on the first asset
     window.select_asset(keys[0])
     _settle(app, window)
-    shots.append(_save(window, out_dir / "window.png", 1600))
+    shots.append(_save(window, out_dir / "window.png"))
     # 2. the register alone
     shots.append(_save(window.register, out_dir / "register.png"))
     # 3. the editor of a challenger (year table)
@@ -84,7 +84,7 @@ def render(out_dir: Path) -> list[Path]:
     life.setText("2.5")
     life.editingFinished.emit()
     _settle(app)
-    shots.append(_save(window, out_dir / "validation.png", 1600))
+    shots.append(_save(window, out_dir / "validation.png"))
     window.undo_stack.clear()
     window._forced_dirty = False
     window.close()

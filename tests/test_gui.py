@@ -404,3 +404,30 @@ def test_demo_fallback_is_a_valid_study_file():
     assert len(studies) >= 3
     assert json.loads(FALLBACK_DEMO.read_text(encoding="utf-8"))["format"] == "tenure-study"
     assert replace(studies[0]) == studies[0]
+
+
+def test_export_tables_to_csv_and_xlsx(qtbot, tmp_path, monkeypatch):
+    window = make_window(qtbot)
+    for name in ("tables.csv", "tables.xlsx"):
+        target = tmp_path / name
+        monkeypatch.setattr(QFileDialog, "getSaveFileName",
+                            staticmethod(lambda *a, t=target, **k: (str(t), "")))
+        window.export_tables()
+        assert target.exists() and target.stat().st_size > 0, window.last_message
+    text = (tmp_path / "tables.csv").read_text(encoding="utf-8-sig")
+    assert window.current_entry().study.defender.name in text
+
+
+def test_workbook_edit_save_reopen(qtbot, tmp_path):
+    pytest.importorskip("core.workbook")
+    demo = pytest.importorskip("core.demo")
+    book = tmp_path / "fleet.tenure"
+    demo.build_demo(book)
+    window = make_window(qtbot, book)
+    assert window.doc.kind == "workbook" and len(window.doc.sites()) >= 2
+    key = window.current_key
+    type_into(alt_editor(window).price_edit, "4,321")
+    assert window.save()
+    again = make_window(qtbot, book)
+    assert again.doc.entry(key).study.defender.price == 4321.0
+    assert again.doc.entry(key).study == window.doc.entry(key).study
