@@ -31,6 +31,7 @@ import sys
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
+from html import escape
 from pathlib import Path
 from typing import Any
 
@@ -159,8 +160,10 @@ class _Legend:
         wanted = [(id(item), label) for item, label in self._pending]
         if wanted != self._shown:
             self.item.clear()
+            longest = max((len(label) for _item, label in self._pending), default=0)
+            self.item.setColumnCount(3 if longest <= 32 else 2 if longest <= 56 else 1)
             for item, label in self._pending:
-                self.item.addItem(item, label)
+                self.item.addItem(item, escape(label))
             self._shown = wanted
 
     def labels(self) -> list[str]:
@@ -242,16 +245,17 @@ class _Plot(pg.PlotWidget):
         t.show()
         return t
 
-    def set_title(self, text: str) -> None:
-        """The plot title (unchanged text is not re-laid out)."""
-        if self._texts.get("title") != text:
-            self._texts["title"] = text
-            self.getPlotItem().setTitle(text, color="k", size="11pt")
+    def set_title(self, text: str, note: str = "") -> None:
+        """The plot title (plain text) and an optional caveat line under it."""
+        html = escape(text) + (_note(escape(note)) if note else "")
+        if self._texts.get("title") != html:
+            self._texts["title"] = html
+            self.getPlotItem().setTitle(html, color="k", size="11pt")
 
     def set_axis_label(self, axis: str, text: str) -> None:
         if self._texts.get(axis) != text:
             self._texts[axis] = text
-            self.getPlotItem().setLabel(axis, text, color="k")
+            self.getPlotItem().setLabel(axis, escape(text), color="k", **{"font-size": "9pt"})
 
     def fit_left_axis(self, *arrays: np.ndarray) -> None:
         """Fix the value axis width to its widest tick label (Qt lays it out late otherwise)."""
@@ -726,7 +730,7 @@ class ChartPanel(QWidget):
         """(short name for read-outs, axis title) for the sign toggle."""
         unit = self._unit()
         if self.signed():
-            return "AW", f"Annual worth, AW ({unit}; costs < 0)"
+            return "AW", f"Annual worth, AW ({unit}; costs negative)"
         return "EAC", f"Equivalent annual cost, EAC = -AW ({unit})"
 
     def _unit(self) -> str:
@@ -756,8 +760,25 @@ class ChartPanel(QWidget):
         plot.legend.commit()
         plot.getPlotItem().showAxis("left")
         plot.getPlotItem().showAxis("bottom")
-        plot.getPlotItem().enableAutoRange()
-        plot.fit_left_axis(*(y for _x, y in self._series[key].values()))
+        values = [y for _x, y in self._series[key].values()]
+        item = plot.getPlotItem()
+        item.enableAutoRange()
+        if key in ("aw", "parts"):
+            # Room for the ESL labels: below the curves for EAC, above them for signed AW.
+            finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
+            finite = finite[np.isfinite(finite)]
+            if finite.size:
+                lo, hi = float(finite.min()), float(finite.max())
+                span = (hi - lo) or max(abs(hi), 1.0)
+                if self.signed():
+                    hi += 0.12 * span
+                else:
+                    lo -= 0.12 * span
+                item.setYRange(lo, hi, padding=0.04)
+        if key == "marginal" and "Defender marginal cost" in self._series[key]:
+            n = len(self._series[key]["Defender marginal cost"][0])
+            item.setXRange(0.4, n + 0.6, padding=0.0)
+        plot.fit_left_axis(*values)
 
     # Views ------------------------------------------------------------------
     def _draw_aw(self) -> None:
@@ -840,7 +861,7 @@ class ChartPanel(QWidget):
         aw, after_aw = self._data(alt, "annual_worth")
         note = ""
         if not (after_cr and after_op and after_aw) and self.basis() == AFTER:
-            note = _note("The after-tax result has no capital-recovery and operating split: before-tax figures shown.")
+            note = ("The after-tax result has no capital-recovery and operating split: before-tax figures shown.")
         if cr is None or op is None or aw is None or not (after_cr and after_op and after_aw):
             cr = np.asarray(alt.capital_recovery, dtype=float)
             op = np.asarray(alt.operating, dtype=float)
@@ -886,7 +907,7 @@ class ChartPanel(QWidget):
                                    f"{name}, {years_text(y)}: operating {self._money(op_v[j])}"))
         plot.targets = targets
         plot.set_title(f"{name}: capital recovery and operating parts, "
-                      f"{self._basis_words(after)}{note}")
+                      f"{self._basis_words(after)}", note)
         plot.set_axis_label("left", axis_title)
         plot.set_axis_label("bottom", "Years kept (retention period k)")
         self._finish("parts")
@@ -907,7 +928,7 @@ class ChartPanel(QWidget):
         note = ""
         if mc is None:
             mc = np.asarray(d.marginal_cost, dtype=float)
-            note = _note("The after-tax result has no marginal costs: before-tax figures shown.")
+            note = ("The after-tax result has no marginal costs: before-tax figures shown.")
         after = after_mc
         rec = r.recommendation if after else r.before_tax_recommendation
         best = r.alternative(rec.best_challenger)
@@ -954,11 +975,11 @@ class ChartPanel(QWidget):
                                    f"({self._money(level)})", bar_width=0.6))
         plot.targets = targets
         plot.set_title(f"One more year? {d.name}'s marginal cost by year against {best.name}, "
-                      f"{self._basis_words(after)}{note}")
+                      f"{self._basis_words(after)}", note)
         unit = self._unit()
         plot.set_axis_label("left", (f"Marginal cost of the year, MC ({unit})"
                                      if not self.signed() else
-                                     f"Marginal AW of the year, -MC ({unit}; costs < 0)"))
+                                     f"Marginal AW of the year, -MC ({unit}; costs negative)"))
         plot.set_axis_label("bottom", f"Year of keeping {d.name} (j)")
         self._finish("marginal")
 
@@ -981,7 +1002,7 @@ class ChartPanel(QWidget):
         plot.set_message("")
         note = ""
         if self.basis() == AFTER and not after:
-            note = _note("The after-tax result has no study-period options: before-tax figures shown.")
+            note = ("The after-tax result has no study-period options: before-tax figures shown.")
         sign = self._sign()
         colour_of = {a.name: PALETTE[i % len(PALETTE)] for i, a in enumerate(r.alternatives)}
         groups: list[str | None] = [a.name for a in r.challengers
@@ -1050,8 +1071,8 @@ class ChartPanel(QWidget):
             plot.hide_labels()
         plot.targets = targets
         self._series["options"] = series
-        plot.set_title(f"Study-period options over {period} years, {self._basis_words(after)}"
-                      f"{note}")
+        plot.set_title(f"Study-period options over {period} years, {self._basis_words(after)}",
+                       note)
         plot.set_axis_label("left", axis_title)
         plot.set_axis_label("bottom", f"Years keeping {r.study.defender.name} before replacing (j)")
         self._finish("options")
