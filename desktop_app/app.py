@@ -19,12 +19,25 @@ def _configure_rendering() -> None:
     QCoreApplication.setAttribute(Qt.ApplicationAttribute.AA_UseSoftwareOpenGL, True)
 
 
+_QUIET = ("propagateSizeHints",)
+
+
+def _qt_messages(mode, context, message: str) -> None:
+    """Qt's own messages go to stderr, minus the offscreen plugin's harmless notices."""
+    if any(q in message for q in _QUIET):
+        return
+    sys.stderr.write(message + "\n")
+
+
 def create_app(argv: list[str] | None = None):
     """The QApplication (created once), configured for Tenure."""
     from PySide6.QtWidgets import QApplication
 
     app = QApplication.instance()
     if app is None:
+        from PySide6.QtCore import qInstallMessageHandler
+
+        qInstallMessageHandler(_qt_messages)
         _configure_rendering()
         app = QApplication(list(argv if argv is not None else sys.argv[:1]))
     app.setOrganizationName("Tenure")

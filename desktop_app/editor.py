@@ -488,6 +488,8 @@ class AlternativeEditor(_StudyView):
         self.table = QTableView()
         self.table.setModel(self.model)
         self.table.verticalHeader().setVisible(False)
+        self.table.verticalHeader().setDefaultSectionSize(
+            self.table.fontMetrics().height() + 8)
         self.table.setAlternatingRowColors(True)
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.DoubleClicked
                                    | QAbstractItemView.EditTrigger.EditKeyPressed

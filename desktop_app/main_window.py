@@ -179,9 +179,31 @@ class MainWindow(QMainWindow):
     def finish_startup(self, path: str | None) -> None:
         """The second half of a deferred start: panels, then the file."""
         self.build_panels()
-        if path is not None:
+        if not self.offer_untitled_recovery() and path is not None:
             self.open_path(path)
         self.startup_done = True
+
+    def offer_untitled_recovery(self) -> bool:
+        """After a crash with unsaved, never-saved work: offer it back.  True if restored."""
+        data = recovery.read_recovery(None)
+        if data is None:
+            return False
+        answer = QMessageBox.question(
+            self, APP_NAME, f"Unsaved new work from {data.get('saved_at', 'earlier')} was "
+            "recovered after the window closed unexpectedly.\n\nRestore it?",
+            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No)
+        recovery.discard_recovery(None)
+        if answer != QMessageBox.StandardButton.Yes:
+            return False
+        try:
+            doc = Document.from_recovery(data)
+        except (StudyError, KeyError, TypeError) as exc:
+            self.report(f"The recovered work could not be read ({exc})")
+            return False
+        doc.path = None
+        self.set_document(doc, dirty=True)
+        self.report("Recovered unsaved work: save it to keep it")
+        return True
 
     def _action(self, text: str, slot, shortcut=None, tip: str = "") -> QAction:
         action = QAction(text, self)
@@ -330,14 +352,14 @@ class MainWindow(QMainWindow):
         self.set_document(doc, dirty=dirty)
         self.prefs.add_recent(str(path))
         self._update_recent_menu()
-        self.report(f"Opened {path}")
+        self.report(f"Opened {Path(path).name}")
+        self.message_label.setToolTip(str(path))
         return True
 
     def new_document(self) -> None:
         if not self.maybe_save():
             return
-        study = default_study("Unassigned site — New asset".replace("Unassigned site — ", ""),
-                              self.prefs.default_marr)
+        study = default_study("New asset", self.prefs.default_marr)
         doc = from_studies([study], None, "json", year=this_year())
         self.set_document(doc)
         self.report("New study file: edit the estimates, then Save")
@@ -428,8 +450,9 @@ class MainWindow(QMainWindow):
         if not self._sized:  # give the editor its width once the window has its own
             self._sized = True
             width = max(self.splitter.width(), 1)
-            left = min(380, width // 5)
-            self.splitter.setSizes([left, int(width * 0.40), width - left - int(width * 0.40)])
+            left = min(420, int(width * 0.23))
+            middle = int(width * 0.39)
+            self.splitter.setSizes([left, middle, width - left - middle])
 
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt's name
         if self.maybe_save():

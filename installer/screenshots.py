@@ -36,13 +36,40 @@ def _settle(app, window=None) -> None:
             app.processEvents()
 
 
-def _save(widget, path: Path, scale_to: int | None = None) -> Path:
-    from PySide6.QtCore import Qt
+def _save(widget, path: Path, scale_to: int | None = None, height: int | None = None) -> Path:
+    from PySide6.QtCore import QRect, Qt
 
-    pixmap = widget.grab()
+    pixmap = widget.grab(QRect(0, 0, widget.width(), height)) if height else widget.grab()
     if scale_to and pixmap.width() > scale_to:
         pixmap = pixmap.scaledToWidth(scale_to, Qt.TransformationMode.SmoothTransformation)
     pixmap.save(str(path), "PNG")
+    return path
+
+
+def make_icon(path: Path, size: int = 128) -> Path:
+    """The window icon: a rising annual-cost curve with its lowest point marked."""
+    from PySide6.QtCore import QPointF, QRectF, Qt
+    from PySide6.QtGui import QColor, QImage, QPainter, QPainterPath, QPen
+
+    image = QImage(size, size, QImage.Format.Format_ARGB32)
+    image.fill(Qt.GlobalColor.transparent)
+    p = QPainter(image)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing)
+    p.setBrush(QColor("#0b4f6c"))
+    p.setPen(Qt.PenStyle.NoPen)
+    p.drawRoundedRect(QRectF(4, 4, size - 8, size - 8), size * 0.18, size * 0.18)
+    s = size / 128.0
+    curve = QPainterPath(QPointF(24 * s, 40 * s))
+    curve.cubicTo(QPointF(40 * s, 96 * s), QPointF(72 * s, 96 * s), QPointF(104 * s, 44 * s))
+    p.setPen(QPen(QColor("#f2f2f2"), 9 * s, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+    p.setBrush(Qt.BrushStyle.NoBrush)
+    p.drawPath(curve)
+    p.setPen(Qt.PenStyle.NoPen)
+    p.setBrush(QColor("#f5a623"))
+    p.drawEllipse(QPointF(60 * s, 82 * s), 11 * s, 11 * s)
+    p.end()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    image.save(str(path), "PNG")
     return path
 
 
@@ -52,6 +79,9 @@ def render(out_dir: Path) -> list[Path]:
 
     app = create_app(["tenure-screenshots"])
     app.setStyle("Fusion")
+    icon = ROOT / "resources" / "icons" / "tenure.png"
+    if not icon.exists():
+        make_icon(icon)
     window = build_window(None)
     window.resize(1800, 1000)
     window.show()
@@ -64,7 +94,7 @@ def render(out_dir: Path) -> list[Path]:
     _settle(app, window)
     shots.append(_save(window, out_dir / "window.png"))
     # 2. the register alone
-    shots.append(_save(window.register, out_dir / "register.png"))
+    shots.append(_save(window.register, out_dir / "register.png", height=340))
     # 3. the editor of a challenger (year table)
     ed = window.editor
     ed.tabs.setCurrentIndex(1)

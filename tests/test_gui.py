@@ -431,3 +431,35 @@ def test_workbook_edit_save_reopen(qtbot, tmp_path):
     again = make_window(qtbot, book)
     assert again.doc.entry(key).study.defender.price == 4321.0
     assert again.doc.entry(key).study == window.doc.entry(key).study
+
+
+def test_untitled_work_is_offered_back_at_start(qtbot, monkeypatch):
+    window = make_window(qtbot)
+    window.new_document()
+    type_into(alt_editor(window).price_edit, "23,456")
+    assert window.autosave() is not None
+    monkeypatch.setattr(QMessageBox, "question",
+                        staticmethod(lambda *a, **k: QMessageBox.StandardButton.Yes))
+    again = MainWindow(Preferences(), deferred=True)
+    qtbot.addWidget(again, before_close_func=lambda w: w.discard_changes())
+    again.finish_startup(str(FALLBACK_DEMO))
+    assert again.isWindowModified() and again.doc.path is None
+    assert again.current_entry().study.defender.price == 23456.0
+
+
+def test_preferences_dialog_keeps_values_in_qsettings(qtbot):
+    from desktop_app.prefs import PreferencesDialog
+
+    prefs = Preferences()
+    dialog = PreferencesDialog(prefs)
+    qtbot.addWidget(dialog)
+    dialog.marr.setValue(12.5)
+    dialog.currency.setText("£")
+    dialog.page.setCurrentText("Letter")
+    dialog.apply()
+    again = Preferences()
+    assert again.default_marr == 0.125 and again.currency == "£" and again.page_size == "Letter"
+    window = make_window(qtbot)
+    window.new_document()
+    assert window.current_entry().study.marr == 0.125
+    assert alt_editor(window).price_label.text() == "Market value today (£)"
