@@ -64,12 +64,11 @@ def cmd_study(args: argparse.Namespace) -> int:
     if args.json and len(studies) > 1:
         # A fleet: one vectorised pass (core.fleet, same results as run_study), written
         # compact, one study per line (the indenting encoder is pure Python, ~5x slower).
-        from core.fleet import run_fleet_json
+        from core.fleet import fleet_json_text
 
-        docs = run_fleet_json(studies)
+        text = fleet_json_text(studies)
         sys.stdout.write('{"studies": [\n')
-        sys.stdout.write(",\n".join(json.dumps(d, ensure_ascii=False, allow_nan=False)
-                                    for d in docs))
+        sys.stdout.write(text)
         sys.stdout.write("\n]}\n")
         return 0
     if len(studies) > 1:
@@ -89,6 +88,26 @@ def cmd_study(args: argparse.Namespace) -> int:
 
         sys.stdout.write("\n\n".join(format_study(r) for r in results))
         sys.stdout.write("\n")
+    return 0
+
+
+def cmd_export(args: argparse.Namespace) -> int:
+    from core.export import TABLES, export_csv, export_xlsx
+
+    out = Path(args.output)
+    suffix = out.suffix.lower()
+    if suffix not in (".csv", ".xlsx"):
+        raise StudyError("-o", "the output must end in .csv or .xlsx")
+    if args.table not in TABLES:
+        raise StudyError("--table", f"must be one of {', '.join(TABLES)}")
+    from core.study import run_study
+
+    results = [run_study(s) for s in _select(load_studies(args.file), args.study)]
+    if suffix == ".xlsx":
+        export_xlsx(results, out)
+    else:
+        export_csv(results, out, table=args.table)
+    print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to {out}")
     return 0
 
 
@@ -122,6 +141,20 @@ def build_parser() -> argparse.ArgumentParser:
     study.add_argument("--study", metavar="TITLE", default=None,
                        help="only the study with this title")
     study.set_defaults(func=cmd_study)
+    export = sub.add_parser(
+        "export", help="write a study's results and tables to CSV or XLSX",
+        description="Run the study (or every study of a workbook) and write its tables: an XLSX "
+                    "workbook holds one sheet per table; a CSV holds the one --table. Text "
+                    "cells that a spreadsheet could run as a formula are escaped.")
+    export.add_argument("file", metavar="FILE", help="study JSON or .tenure workbook")
+    export.add_argument("-o", "--output", required=True, metavar="OUT",
+                        help="OUT.xlsx or OUT.csv")
+    export.add_argument("--table", default="alternatives",
+                        help="for CSV: summary, annual_worth, alternatives (default), "
+                             "study_period_options or warnings")
+    export.add_argument("--study", metavar="TITLE", default=None,
+                        help="only the study with this title")
+    export.set_defaults(func=cmd_export)
     for module in ("core.memo.cli", "core.demo"):
         try:
             importlib.import_module(module).register(sub)

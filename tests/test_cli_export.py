@@ -1,0 +1,47 @@
+"""`tenure export`: results and tables to CSV/XLSX from the command line."""
+
+from __future__ import annotations
+
+import csv
+import json
+from pathlib import Path
+
+import openpyxl
+
+from core.cli import main
+
+STUDY = {
+    "format": "tenure-study", "version": 1, "title": "=Bay 4 hoist", "marr": 0.08,
+    "defender": {"name": "Hoist H-4", "market_value": 9000, "max_life": 3,
+                 "market_values": {"decline_rate": 0.2},
+                 "operating_costs": {"first": 4000, "gradient": 900}},
+    "challengers": [{"name": "Hoist 5 t", "first_cost": 30000, "max_life": 6,
+                     "market_values": {"decline_rate": 0.15},
+                     "operating_costs": {"first": 1200, "gradient": 150}}],
+}
+
+
+def _write(tmp_path: Path) -> Path:
+    path = tmp_path / "hoist.json"
+    path.write_text(json.dumps(STUDY), encoding="utf-8")
+    return path
+
+
+def test_export_csv_and_xlsx(tmp_path: Path) -> None:
+    src = _write(tmp_path)
+    assert main(["export", str(src), "-o", str(tmp_path / "aw.csv"), "--table", "annual_worth"]) == 0
+    rows = list(csv.reader((tmp_path / "aw.csv").read_text(encoding="utf-8-sig").splitlines()))
+    assert rows[0] == ["study", "retention_years", "Hoist H-4", "Hoist 5 t"]
+    assert rows[1][0] == "'=Bay 4 hoist"  # formula injection escaped (OWASP CSV injection advice)
+    assert len(rows) == 1 + 6
+    assert main(["export", str(src), "-o", str(tmp_path / "all.xlsx")]) == 0
+    book = openpyxl.load_workbook(tmp_path / "all.xlsx")
+    assert "summary" in book.sheetnames
+
+
+def test_export_refuses_bad_output(tmp_path: Path, capsys) -> None:
+    src = _write(tmp_path)
+    assert main(["export", str(src), "-o", str(tmp_path / "out.txt")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == ["error: -o: the output must end in .csv or .xlsx"]
+    assert main(["export", str(src), "-o", str(tmp_path / "o.csv"), "--table", "nope"]) == 2
