@@ -19,6 +19,9 @@ through ``core.study`` unchanged (their hooks are per study).
 
 from __future__ import annotations
 
+import json
+import os
+import sys
 from collections.abc import Sequence
 from typing import Any
 
@@ -30,6 +33,9 @@ from core.factors import ap, pa
 from core.results import AlternativeResult, Recommendation, StudyResult, _list, _r
 from core.study import CENT, decide, money, run_study, years
 from core.studyfile import fingerprint
+
+#: Fleets at least this large are split over two processes where fork() is available.
+PARALLEL_MIN = 1000
 
 
 def _plain(study: Study) -> bool:
@@ -333,3 +339,60 @@ def _run_all(studies: Sequence[Study], with_json: bool
         elif not with_json and results[k] is None:
             results[k] = run_study(study)
     return results, docs
+
+
+def _dumps(doc: dict[str, Any]) -> str:
+    return json.dumps(doc, ensure_ascii=False, allow_nan=False)
+
+
+def fleet_json_text(studies: Sequence[Study], processes: int | None = None) -> str:
+    """The §6 objects of ``studies`` as compact JSON texts joined by ",\\n", in order.
+
+    On Linux with two or more CPUs and at least ``PARALLEL_MIN`` studies, the second half
+    is computed in a forked child process while this process computes the first half (the
+    child only reads the already-parsed studies and writes its text to a pipe).  Any trouble
+    in the child falls back to computing that half here, so the result never depends on it.
+
+    >>> from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+    >>> d = Alternative("Old", "defender", 10.0, 1, MarketValues(values=(5.0,)),
+    ...                 OperatingCosts(values=(2.0,)))
+    >>> c = Alternative("New", "challenger", 20.0, 1, MarketValues(values=(15.0,)),
+    ...                 OperatingCosts(values=(1.0,)))
+    >>> text = fleet_json_text([Study("A", 0.0, d, (c,)), Study("B", 0.0, d, (c,))], processes=2)
+    >>> [json.loads(line.rstrip(","))["title"] for line in text.split("\\n")]
+    ['A', 'B']
+    """
+    if processes is None:
+        processes = 2 if (len(studies) >= PARALLEL_MIN and sys.platform.startswith("linux")
+                          and (os.cpu_count() or 1) >= 2) else 1
+    if processes < 2 or len(studies) < 2 or not hasattr(os, "fork"):
+        return ",\n".join(_dumps(d) for d in run_fleet_json(studies))
+    half = (len(studies) + 1) // 2
+    head, tail = studies[:half], studies[half:]
+    read_end, write_end = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # child: compute the tail, send "1" + text, leave without any cleanup
+        status = 1
+        try:
+            os.close(read_end)
+            data = b"1" + ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8")
+            view = memoryview(data)
+            while view:
+                view = view[os.write(write_end, view):]
+            status = 0
+        except BaseException:  # noqa: BLE001  (the parent recomputes this half)
+            pass
+        finally:
+            os._exit(status)
+    os.close(write_end)
+    try:
+        first = ",\n".join(_dumps(d) for d in run_fleet_json(head))
+        with os.fdopen(read_end, "rb") as pipe:
+            data = pipe.read()
+    finally:
+        _, status = os.waitpid(pid, 0)
+    if status == 0 and data[:1] == b"1":
+        second = data[1:].decode("utf-8")
+    else:
+        second = ",\n".join(_dumps(d) for d in run_fleet_json(tail))
+    return first + ",\n" + second
