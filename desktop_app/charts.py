@@ -1131,7 +1131,7 @@ def _rect_to_path(rect: Any) -> None:
     parent = rect.parentNode
     ancestor = parent
     while ancestor is not None and getattr(ancestor, "tagName", None) is not None:
-        if ancestor.tagName == "pattern":
+        if ancestor.tagName in ("pattern", "mask", "defs", "clipPath"):
             return
         ancestor = ancestor.parentNode
     try:

@@ -249,3 +249,24 @@ def test_export_button_writes_the_chosen_file(chart, result, tmp_path, monkeypat
 
 def pg_point(x, y):
     return QPointF(float(x), float(y))
+
+
+def test_svg_export_leaves_no_untransformed_rectangles(chart, result_period, tmp_path):
+    # pyqtgraph's SVG fix-up transforms <path> and <polyline> only; charts turns rects into paths.
+    from xml.dom import minidom
+
+    chart.set_result(result_period)
+    chart.set_view("options")
+    doc = minidom.parse(str(chart.export(tmp_path / "options.svg")))
+
+    def in_defs(node):
+        while node is not None and getattr(node, "tagName", None):
+            if node.tagName in ("pattern", "mask", "defs"):
+                return True
+            node = node.parentNode
+        return False
+
+    stray = [r for r in doc.getElementsByTagName("rect")
+             if not in_defs(r) and r.getAttribute("width") != "100%"]
+    assert stray == []
+    assert all(" Z" not in p.getAttribute("d") for p in doc.getElementsByTagName("path"))
