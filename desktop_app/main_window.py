@@ -84,6 +84,7 @@ class MainWindow(QMainWindow):
         self.last_message = ""
         self._forced_dirty = False
         self._job: FleetJob | None = None
+        self._current_job: FleetJob | None = None
         self._jobs: list[FleetJob] = []
         self.pool = QThreadPool.globalInstance()
         self.undo_stack = QUndoStack(self)
@@ -458,6 +459,7 @@ class MainWindow(QMainWindow):
         if self.maybe_save():
             self.cancel_fleet()
             self.autosave_timer.stop()
+            self.pool.waitForDone(3000)  # let a running recompute stop before the views go
             event.accept()
         else:
             event.ignore()
@@ -510,7 +512,11 @@ class MainWindow(QMainWindow):
         if entry is not None and entry.study is not None:
             result = self.doc.cached_result(entry.key)
             if result is None and entry.study.uncertainty is not None:
-                self._compute_async([(entry.key, entry.study)])
+                # Monte Carlo trials can take a while: compute off the GUI thread and keep
+                # showing the previous result until the new one arrives.
+                self._compute_current(entry.key, entry.study)
+                self.report(f"Recomputing with {entry.study.uncertainty.trials:,} risk trials…")
+                return
             elif result is None:
                 try:
                     result = self.doc.result(entry.key)
@@ -544,7 +550,9 @@ class MainWindow(QMainWindow):
                 self.register.update_row(key)
         elif event == "result":
             self.register.update_row(key)
-            if key == self.current_key and self.current_result is None:
+            entry = self.current_entry()
+            if key == self.current_key and entry is not None and (
+                    self.current_result is None or self.current_result.study != entry.study):
                 self.show_result()
 
     def commit(self, new: Study, text: str, merge_key: object = None) -> bool:
@@ -624,8 +632,33 @@ class MainWindow(QMainWindow):
         if items:
             self._compute_async(items, show=True)
 
+    def _compute_current(self, key: str, study: Study) -> FleetJob:
+        """One study on the pool (a study with risk trials); a newer edit cancels the older."""
+        if self._current_job is not None:
+            self._current_job.cancel()
+        job = FleetJob([(key, study)])
+        doc = self.doc
+        job.signals.result.connect(lambda k, result: doc.store_result(k, result))
+        job.signals.failed.connect(lambda k, msg: self.report(f"{k}: {msg}"))
+        job.signals.finished.connect(lambda _c, j=job: self._current_finished(j))
+        self._current_job = job
+        self._jobs.append(job)
+        self.pool.start(job)
+        return job
+
+    def _current_finished(self, job: FleetJob) -> None:
+        if job in self._jobs:
+            self._jobs.remove(job)
+        if job is self._current_job:
+            self._current_job = None
+            entry = self.current_entry()
+            if entry is not None and self.doc.cached_result(entry.key) is not None:
+                self.report("")
+                self.show_result()
+
     def _compute_async(self, items: list[tuple[str, Study]], show: bool = False) -> FleetJob:
-        self.cancel_fleet()
+        if self._job is not None:
+            self._job.cancel()
         job = FleetJob(items)
         doc = self.doc
         job.signals.result.connect(lambda key, result: doc.store_result(key, result))
@@ -659,8 +692,9 @@ class MainWindow(QMainWindow):
             self.show_result()
 
     def cancel_fleet(self) -> None:
-        if self._job is not None:
-            self._job.cancel()
+        for job in (self._job, self._current_job):
+            if job is not None:
+                job.cancel()
 
     def wait_for_jobs(self, msecs: int = 10000) -> bool:
         """Wait for the worker pool (tests, benchmarks, shutdown)."""

@@ -463,3 +463,45 @@ def test_preferences_dialog_keeps_values_in_qsettings(qtbot):
     window.new_document()
     assert window.current_entry().study.marr == 0.125
     assert alt_editor(window).price_label.text() == "Market value today (£)"
+
+
+def test_register_sorts_by_recommendation(qtbot):
+    from PySide6.QtCore import Qt
+
+    window = make_window(qtbot)
+    window.register.view.sortByColumn(1, Qt.SortOrder.AscendingOrder)
+    states = [window.doc.state(k).sort_key for k in window.register.visible_keys()]
+    by_site: dict[str, list] = {}
+    for k, key in zip(window.register.visible_keys(), states, strict=True):
+        by_site.setdefault(window.doc.entry(k).site, []).append(key)
+    assert all(v == sorted(v) for v in by_site.values())
+
+
+def test_memo_action_and_risk_tab_are_wired(qtbot, monkeypatch):
+    memo = pytest.importorskip("desktop_app.memo_dialog")
+    window = make_window(qtbot)
+    opened = []
+    monkeypatch.setattr(memo.IssueMemoDialog, "exec",
+                        lambda self: opened.append(self.result.study.title) or 0)
+    window.memo_action.trigger()
+    assert opened == [window.current_entry().study.title]
+    if window.risk_view is not None:
+        tabs = [window.right_tabs.tabText(i) for i in range(window.right_tabs.count())]
+        assert "Risk" in tabs
+
+
+def test_study_with_risk_trials_recomputes_off_the_gui_thread(qtbot, tmp_path):
+    pytest.importorskip("core.risk")
+    from core.estimates import Distribution, Uncertainty
+
+    study = replace(press_brake_study(), uncertainty=Uncertainty(
+        trials=2000, seed=7, inputs=(("Servo brake.first_cost",
+                                      Distribution("triangular", (80000.0, 96000.0, 120000.0))),)))
+    path = tmp_path / "risky.json"
+    path.write_text(dump_study_document([study]), encoding="utf-8")
+    window = make_window(qtbot, path)
+    assert window.current_result is not None and window.current_result.risk is not None
+    type_into(alt_editor(window).price_edit, "25,000")
+    qtbot.waitUntil(lambda: window.current_result is not None
+                    and window.current_result.study.defender.price == 25000.0, timeout=20000)
+    assert window.current_result.risk is not None
