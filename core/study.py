@@ -12,6 +12,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from core.annual_worth import annual_worth_schedule, economic_life
+from core.errors import StudyError
 from core.estimates import Alternative, Study
 from core.factors import ap, pa, pf
 from core.results import AlternativeResult, Basis, Recommendation, StudyOption, StudyResult
@@ -166,6 +167,9 @@ def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis
 
     options = study_period_options(study, aw, rate, period)
     feasible = [o for o in options if o.feasible and o.annual_worth is not None]
+    if not feasible:
+        raise StudyError("study_period", f"no option fills {years(period)}: the defender lasts "
+                         f"at most {years(defender.max_life)} and no challenger covers the rest")
     top = feasible[0]
     for option in feasible[1:]:
         if round(option.annual_worth, 2) > round(top.annual_worth, 2):

@@ -45,3 +45,20 @@ def test_export_refuses_bad_output(tmp_path: Path, capsys) -> None:
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["error: -o: the output must end in .csv or .xlsx"]
     assert main(["export", str(src), "-o", str(tmp_path / "o.csv"), "--table", "nope"]) == 2
+
+
+def test_unfillable_study_period_is_a_user_error() -> None:
+    # A Study built in code (the window does this) bypasses the file check; decide must still
+    # refuse with a StudyError rather than fail inside.
+    import dataclasses
+
+    import pytest
+
+    from core.errors import StudyError
+    from core.study import run_study
+    from core.studyfile import parse_study
+
+    body = {k: v for k, v in STUDY.items() if k not in ("format", "version")}
+    study = dataclasses.replace(parse_study(body), study_period=20)
+    with pytest.raises(StudyError, match="no option fills 20 years"):
+        run_study(study)
