@@ -13,8 +13,10 @@ Not a timed test: it prints numbers and whether the targets are met.
                 fleet in one numpy pass), and, for information, the full result objects
                 (core.fleet.run_fleet) and per-study core.study.run_study.
    Both must agree on every ESL and every decision.  Target: engine >= 30x naive on the fleet.
-2. `tenure study FILE --json` as a subprocess on one study and on the fleet file.
+2. `tenure study FILE --json` as a subprocess on one study and on the fleet file
+   (a fleet goes through core.fleet.fleet_json_text: two processes on Linux).
    Target: fleet wall time <= 3x the one-study wall time (start-up dominates one study).
+   The machine's load is printed: other work on the CPUs moves every number.
 """
 
 from __future__ import annotations
@@ -237,6 +239,17 @@ def main() -> int:
     ratio = t_naive / t_core
     print(f"target engine >= 30x naive on the fleet: {ratio:.1f}x -> "
           f"{'met' if ratio >= 30 else 'NOT met'}")
+
+    # Where the fleet CLI run spends its time, in this process (no start-up).
+    from core.fleet import fleet_json_text
+    from core.studyfile import loads_study_document
+
+    text = json.dumps(doc)
+    t_parse, _ = best_of(lambda: loads_study_document(text), 1)
+    t_json1, _ = best_of(lambda: fleet_json_text(studies, processes=1), 1)
+    t_json2, _ = best_of(lambda: fleet_json_text(studies, processes=2), 1)
+    print(f"\nfleet CLI phases in-process: parse {t_parse:.3f} s; results as JSON text "
+          f"{t_json1:.3f} s in one process, {t_json2:.3f} s in two")
 
     with tempfile.TemporaryDirectory() as tmp:
         fleet_file = Path(tmp) / "fleet.json"
