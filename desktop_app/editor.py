@@ -212,7 +212,7 @@ class StudySettings(_StudyView):
         self.tax_mode.setObjectName("tax_mode")
         self.tax_mode.currentIndexChanged.connect(self._tax_changed)
         tax_row.addWidget(self.tax_mode)
-        right.addRow("Basis", tax_row)
+        right.addRow("Tax", tax_row)
         self.tax_rate = self.bind(
             "Tax rate", lambda s: fmt_percent(s.tax.rate) if s.tax else "",
             self._set_tax_rate)
@@ -231,7 +231,7 @@ class StudySettings(_StudyView):
         self.infl_rate = self.bind(
             "Inflation rate", lambda s: fmt_percent(s.inflation.rate) if s.inflation else "",
             self._set_infl_rate)
-        right.addRow("Inflation (% a year)", self.infl_rate)
+        right.addRow("Inflation rate (%)", self.infl_rate)
         self.year: int | None = None
 
     def set_study(self, study: Study | None, year: int | None) -> None:
@@ -769,6 +769,14 @@ class StudyEditor(QWidget):
         self.placeholder.setAlignment(Qt.AlignmentFlag.AlignCenter)
         layout.addWidget(self.placeholder)
         self.placeholder.hide()
+
+    def clear_errors(self) -> None:
+        """Forget refusals shown for the previous asset (red fields, the inline notice)."""
+        self.show_notice("")
+        for view in [self.settings, *self.editors()]:
+            for b in view.bindings:
+                b.edit.setStyleSheet("")
+                b.edit.setToolTip("")
 
     def show_notice(self, message: str) -> None:
         """The last refusal or note, shown inline above the alternatives."""

@@ -486,6 +486,8 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------------ assets
     def select_asset(self, key: str | None) -> None:
+        if key != self.current_key:
+            self.editor.clear_errors()
         self.current_key = key
         if key is not None:
             self.register.select(key)

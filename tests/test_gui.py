@@ -56,6 +56,9 @@ def isolated(tmp_path, monkeypatch):
     monkeypatch.setattr(QMessageBox, "exec", lambda self: refuse(self, self.text()))
     for name in ("getOpenFileName", "getSaveFileName"):
         monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
+    from PySide6.QtWidgets import QInputDialog
+
+    monkeypatch.setattr(QInputDialog, "getText", staticmethod(refuse))
     yield tmp_path
 
 
@@ -505,3 +508,23 @@ def test_study_with_risk_trials_recomputes_off_the_gui_thread(qtbot, tmp_path):
     qtbot.waitUntil(lambda: window.current_result is not None
                     and window.current_result.study.defender.price == 25000.0, timeout=20000)
     assert window.current_result.risk is not None
+
+
+def test_add_and_remove_asset_with_undo(qtbot, monkeypatch):
+    from PySide6.QtWidgets import QInputDialog
+
+    window = make_window(qtbot)
+    n = len(window.doc.entries)
+    monkeypatch.setattr(QInputDialog, "getText",
+                        staticmethod(lambda *a, **k: ("Millbrook — Spare compressor", True)))
+    window.add_asset()
+    assert len(window.doc.entries) == n + 1
+    entry = window.current_entry()
+    assert (entry.site, entry.name) == ("Millbrook", "Spare compressor")
+    assert window.doc.state(entry.key).recommendation != "…"
+    window.remove_asset()
+    assert len(window.doc.entries) == n
+    window.undo_stack.undo()
+    assert any(e.name == "Spare compressor" for e in window.doc.entries)
+    window.undo_stack.undo()
+    assert len(window.doc.entries) == n
