@@ -396,3 +396,96 @@ def fleet_json_text(studies: Sequence[Study], processes: int | None = None) -> s
     else:
         second = ",\n".join(_dumps(d) for d in run_fleet_json(tail))
     return first + ",\n" + second
+
+
+def _parse_items(items: list[Any], start: int) -> list[Study]:
+    from core.studyfile import parse_study
+
+    return [parse_study(obj, f"$.studies[{k}]") for k, obj in enumerate(items, start=start)]
+
+
+def study_file_json_text(path: str | os.PathLike[str]) -> str | None:
+    """Parse, run and write a large multi-study JSON file in two processes; None otherwise.
+
+    Returns None (the caller then takes the ordinary path, which reports any problem) unless
+    ``path`` is a readable UTF-8 study JSON file of the form {"format", "version",
+    "studies": [...]} with at least ``PARALLEL_MIN`` studies, on Linux with two or more CPUs.
+    Then a forked child parses and computes the second half while this process does the
+    first; refusals come out exactly as ``parse_study_document`` gives them (the first bad
+    study in file order, then a repeated title).
+    """
+    from pathlib import Path
+
+    from core.errors import StudyError
+    from core.studyfile import FORMAT, VERSION
+
+    if not (sys.platform.startswith("linux") and hasattr(os, "fork")
+            and (os.cpu_count() or 1) >= 2):
+        return None
+    file = Path(path)
+    try:
+        if file.suffix.lower() == ".tenure" or not file.is_file():
+            return None
+        raw = file.read_bytes()
+        if raw.startswith(b"SQLite format 3\x00"):
+            return None
+        obj = json.loads(raw.decode("utf-8-sig"), parse_constant=float)
+    except (OSError, ValueError, RecursionError):
+        return None
+    if not (isinstance(obj, dict) and set(obj) == {"format", "version", "studies"}
+            and obj["format"] == FORMAT and type(obj["version"]) is int
+            and obj["version"] == VERSION and isinstance(obj["studies"], list)
+            and len(obj["studies"]) >= PARALLEL_MIN):
+        return None
+    items = obj["studies"]
+    half = (len(items) + 1) // 2
+    read_end, write_end = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # child: parse and run the tail; send E+error, or 1+titles NUL text
+        status = 1
+        try:
+            os.close(read_end)
+            try:
+                tail = _parse_items(items[half:], half)
+            except StudyError as exc:
+                data = b"E" + json.dumps([exc.path, exc.message]).encode("utf-8")
+            else:
+                data = (b"1" + json.dumps([s.title for s in tail]).encode("utf-8") + b"\0"
+                        + ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8"))
+            view = memoryview(data)
+            while view:
+                view = view[os.write(write_end, view):]
+            status = 0
+        except BaseException:  # noqa: BLE001  (the parent redoes this half)
+            pass
+        finally:
+            os._exit(status)
+    os.close(write_end)
+    data = b""
+    try:
+        head = _parse_items(items[:half], 0)
+        first = ",\n".join(_dumps(d) for d in run_fleet_json(head))
+        with os.fdopen(read_end, "rb") as pipe:
+            data = pipe.read()
+    except BaseException:
+        os.kill(pid, 9)
+        raise
+    finally:
+        _, status = os.waitpid(pid, 0)
+    if status == 0 and data[:1] == b"E":
+        where, message = json.loads(data[1:].decode("utf-8"))
+        raise StudyError(where, message)
+    if status == 0 and data[:1] == b"1":
+        titles_raw, _, text = data[1:].partition(b"\0")
+        tail_titles = json.loads(titles_raw.decode("utf-8"))
+        second = text.decode("utf-8")
+    else:
+        tail = _parse_items(items[half:], half)
+        tail_titles = [s.title for s in tail]
+        second = ",\n".join(_dumps(d) for d in run_fleet_json(tail))
+    seen: set[str] = set()
+    for k, title in enumerate([s.title for s in head] + tail_titles):
+        if title in seen:
+            raise StudyError(f"$.studies[{k}].title", f"'{title}' is used twice")
+        seen.add(title)
+    return first + ",\n" + second

@@ -9,6 +9,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import random
+import sys
 
 import numpy as np
 import pytest
@@ -152,3 +153,88 @@ def test_fleet_json_equals_to_json_of_run_study() -> None:
         assert got == ref
         assert list(got) == list(ref)
         assert [list(a) for a in got["alternatives"]] == [list(a) for a in ref["alternatives"]]
+
+
+def _fleet_file(write_json, n: int, mutate=None, name: str = "fleet.json"):
+    from conftest import BASE_STUDY
+
+    studies = []
+    for k in range(n):
+        s = json.loads(json.dumps(BASE_STUDY))
+        s["title"] = f"Millbrook asset {k}"
+        s["challengers"][0]["first_cost"] = 50000 + 1000 * k
+        studies.append(s)
+    if mutate is not None:
+        mutate(studies)
+    return write_json({"format": "tenure-study", "version": 1, "studies": studies}, name)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="fork path is Linux only")
+def test_two_process_file_path_equals_serial(monkeypatch, write_json) -> None:
+    # Source: run_study(s).to_json() per study (reference) and parse_study_document's refusals.
+    from core import fleet
+    from core.errors import StudyError
+    from core.studyfile import load_study_file
+
+    monkeypatch.setattr(fleet, "PARALLEL_MIN", 4)
+    monkeypatch.setattr(fleet.os, "cpu_count", lambda: 2)
+    path = _fleet_file(write_json, 9)
+    text = fleet.study_file_json_text(path)
+    assert text is not None
+    docs = [json.loads(line.rstrip(",")) for line in text.split("\n")]
+    ref = [run_study(s).to_json() for s in load_study_file(path)]
+    assert [d["title"] for d in docs] == [r["title"] for r in ref]
+    for got, want in zip(docs, ref, strict=True):
+        got["recommendation"].pop("replacement_value")
+        want["recommendation"].pop("replacement_value")
+        assert got == want
+    # Small files and single studies take the ordinary path.
+    assert fleet.study_file_json_text(_fleet_file(write_json, 3, name="small.json")) is None
+    assert fleet.study_file_json_text(write_json(document(), "one.json")) is None
+
+    def bad(where: int):
+        def mutate(studies):
+            studies[where]["defender"]["max_life"] = 2.5
+        return mutate
+
+    for where in (1, 7):  # a refusal in either half names its own study
+        with pytest.raises(StudyError) as info:
+            fleet.study_file_json_text(_fleet_file(write_json, 9, bad(where), f"bad{where}.json"))
+        assert info.value.path == f"$.studies[{where}].defender.max_life"
+
+    def both(studies):
+        studies[2]["marr"] = "x"
+        studies[8]["marr"] = "y"
+
+    with pytest.raises(StudyError) as info:
+        fleet.study_file_json_text(_fleet_file(write_json, 9, both, "both.json"))
+    assert info.value.path == "$.studies[2].marr"
+
+    def twice(studies):
+        studies[7]["title"] = studies[1]["title"]
+
+    with pytest.raises(StudyError) as info:
+        fleet.study_file_json_text(_fleet_file(write_json, 9, twice, "twice.json"))
+    assert info.value.path == "$.studies[7].title"
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="fork path is Linux only")
+def test_cli_two_process_path(monkeypatch, capsys, write_json) -> None:
+    # Source: DESIGN.md §6 (one JSON object; refusals: exit 2, one error line).
+    from core import fleet
+
+    monkeypatch.setattr(fleet, "PARALLEL_MIN", 4)
+    monkeypatch.setattr(fleet.os, "cpu_count", lambda: 2)
+    path = _fleet_file(write_json, 6)
+    assert main(["study", str(path), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert [s["title"] for s in out["studies"]] == [f"Millbrook asset {k}" for k in range(6)]
+
+    def bad(studies):
+        studies[5]["challengers"] = []
+
+    assert main(["study", str(_fleet_file(write_json, 6, bad, "bad.json")), "--json"]) == 2
+    captured = capsys.readouterr()
+    assert captured.out == ""
+    assert captured.err.splitlines() == [
+        "error: $.studies[5].challengers: a study needs at least one challenger"]
