@@ -60,13 +60,18 @@ def _select(studies: list[Study], title: str | None) -> list[Study]:
 
 
 def cmd_study(args: argparse.Namespace) -> int:
-    studies = _select(load_studies(args.file), args.study)
-    if args.json and len(studies) > 1:
+    text = None
+    if args.json and args.study is None:  # a large fleet file: parsed and run in two processes
+        from core.fleet import study_file_json_text
+
+        text = study_file_json_text(args.file)
+    studies = _select(load_studies(args.file), args.study) if text is None else []
+    if text is not None or (args.json and len(studies) > 1):
         # A fleet: one vectorised pass (core.fleet, same results as run_study), written
         # compact, one study per line (the indenting encoder is pure Python, ~5x slower).
         from core.fleet import fleet_json_text
 
-        text = fleet_json_text(studies)
+        text = fleet_json_text(studies) if text is None else text
         sys.stdout.write('{"studies": [\n')
         sys.stdout.write(text)
         sys.stdout.write("\n]}\n")
