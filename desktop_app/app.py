@@ -63,6 +63,12 @@ def initial_path(path: str | None, prefs) -> str | None:
     return demo_path()
 
 
+def demo_path_or_none() -> str | None:
+    from desktop_app.sources import demo_path
+
+    return demo_path()
+
+
 def build_window(path: str | None, deferred: bool = False):
     """The main window on ``path`` (else the last file, else the demo).
 
@@ -77,10 +83,13 @@ def build_window(path: str | None, deferred: bool = False):
     window = MainWindow(prefs, deferred=deferred)
     target = initial_path(path, prefs)
     window.startup_path = target
+    if path is None and target is not None and target != demo_path_or_none():
+        window.startup_fallback = demo_path_or_none()  # the last file may have gone bad
     if deferred:
         pass
     elif target is not None:
-        window.open_path(target)
+        if not window.open_path(target) and getattr(window, "startup_fallback", None):
+            window.open_path(window.startup_fallback)
     return window
 
 

@@ -77,6 +77,8 @@ class MainWindow(QMainWindow):
         super().__init__(parent)
         self._deferred = deferred
         self.startup_done = not deferred
+        self.startup_path: str | None = None
+        self.startup_fallback: str | None = None
         self.prefs = prefs or Preferences()
         self.doc = Document([], None, "new")
         self.current_key: str | None = None
@@ -181,7 +183,9 @@ class MainWindow(QMainWindow):
         """The second half of a deferred start: panels, then the file."""
         self.build_panels()
         if not self.offer_untitled_recovery() and path is not None:
-            self.open_path(path)
+            fallback = getattr(self, "startup_fallback", None)
+            if not self.open_path(path) and fallback:
+                self.open_path(fallback)
         self.startup_done = True
 
     def offer_untitled_recovery(self) -> bool:

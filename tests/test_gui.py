@@ -528,3 +528,18 @@ def test_add_and_remove_asset_with_undo(qtbot, monkeypatch):
     assert any(e.name == "Spare compressor" for e in window.doc.entries)
     window.undo_stack.undo()
     assert len(window.doc.entries) == n
+
+
+def test_a_last_file_gone_bad_falls_back_to_the_demo(qtbot, tmp_path, monkeypatch):
+    from desktop_app.app import build_window
+
+    bad = tmp_path / "broken.json"
+    bad.write_text("{not json", encoding="utf-8")
+    Preferences().add_recent(str(bad))
+    warned = []
+    monkeypatch.setattr(QMessageBox, "warning", staticmethod(lambda *a, **k: warned.append(a[2])))
+    window = build_window(None)
+    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
+    window.wait_for_jobs()
+    assert warned and "not valid JSON" in warned[0]
+    assert window.doc.path == demo_path() and window.doc.entries
