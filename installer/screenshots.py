@@ -94,7 +94,25 @@ def render(out_dir: Path) -> list[Path]:
     _settle(app, window)
     shots.append(_save(window, out_dir / "window.png"))
     # 2. the register alone
+    # the register with every state: one asset studied last year, one not yet studied
+    from desktop_app.commands import SetStudyCommand, SetYearCommand
+    from desktop_app.document import this_year
+
+    doc = window.doc
+    if len(keys) > 3:
+        old_key, new_key = keys[2], keys[-1]
+        window.undo_stack.push(SetYearCommand(doc, old_key, doc.entry(old_key).study_year,
+                                              this_year() - 1))
+        window.undo_stack.push(SetStudyCommand(doc, new_key, doc.entry(new_key).study, None,
+                                               "screenshot"))
+        window.undo_stack.push(SetYearCommand(doc, new_key, doc.entry(new_key).study_year, None))
+        window.select_asset(keys[0])
+        _settle(app)
     shots.append(_save(window.register, out_dir / "register.png", height=340))
+    while window.undo_stack.canUndo():
+        window.undo_stack.undo()
+    window.select_asset(keys[0])
+    _settle(app)
     # 3. the editor of a challenger (year table)
     ed = window.editor
     ed.tabs.setCurrentIndex(1)
