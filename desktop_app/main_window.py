@@ -10,6 +10,7 @@ cancel.
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import importlib
 import json
@@ -266,6 +267,9 @@ class MainWindow(QMainWindow):
         a.addAction(self.start_study_action)
         a.addAction(self._action("Add &challenger", self.editor.add_challenger))
         a.addAction(self._action("Re&move challenger", self.editor.remove_challenger))
+        self.history_action = self._action("&Import cost history…", self.import_history,
+                                           tip="Fit estimates from recorded costs (workbooks)")
+        a.addAction(self.history_action)
         a.addSeparator()
         a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
 
@@ -322,6 +326,7 @@ class MainWindow(QMainWindow):
         self.register.set_document(doc)
         workbook = doc.kind == "workbook"
         self.add_asset_action.setEnabled(not workbook)
+        self.history_action.setEnabled(workbook)
         self.remove_asset_action.setEnabled(not workbook)
         if self.current_key is None:
             self.select_asset(doc.entries[0].key if doc.entries else None)
@@ -725,6 +730,50 @@ class MainWindow(QMainWindow):
         if hasattr(dialog, "page_size"):
             dialog.page_size.setCurrentText(self.prefs.page_size)
         dialog.exec()
+
+    def import_history(self) -> None:
+        """The cost-history dialog; fitted estimates go to the defender through the undo stack."""
+        if self.doc.kind != "workbook" or self.doc.path is None:
+            self.report("Import cost history: open a workbook first (history is kept there)")
+            return
+        try:
+            from desktop_app.history_dialog import CostHistoryDialog
+        except ImportError:
+            self.report("Import cost history: not available in this build")
+            return
+        dialog = CostHistoryDialog(self.doc.path, self.current_key, self)
+        dialog.exec()
+        costs, values = dialog.accepted_estimates()
+        tag = None
+        with contextlib.suppress(AttributeError, RuntimeError):
+            tag = dialog.fit_asset.currentData()
+        self.apply_fitted_estimates(tag or self.current_key, costs, values)
+
+    def apply_fitted_estimates(self, key: str | None, costs, values) -> bool:
+        if key is None or (costs is None and values is None):
+            return False
+        try:
+            entry = self.doc.entry(key)
+        except KeyError:
+            return False
+        if entry.study is None:
+            self.report(f"{entry.name}: start its study first, then import the history again")
+            return False
+        self.select_asset(key)
+        from dataclasses import replace as _replace
+
+        defender = entry.study.defender
+        changes = {}
+        if costs is not None:
+            changes["operating_costs"] = costs
+        if values is not None:
+            changes["market_values"] = values
+        new = _replace(entry.study, defender=_replace(defender, **changes))
+        if self.commit(new, "Apply fitted estimates", None):
+            self.report(f"{defender.name}: estimates fitted from cost history applied (undo "
+                        "restores the previous ones)")
+            return True
+        return False
 
     def export_tables(self) -> None:
         result = self.current_result

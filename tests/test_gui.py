@@ -543,3 +543,15 @@ def test_a_last_file_gone_bad_falls_back_to_the_demo(qtbot, tmp_path, monkeypatc
     window.wait_for_jobs()
     assert warned and "not valid JSON" in warned[0]
     assert window.doc.path == demo_path() and window.doc.entries
+
+
+def test_fitted_estimates_apply_to_the_defender_with_undo(qtbot):
+    window = make_window(qtbot)
+    key = window.current_key
+    before = window.current_entry().study
+    assert window.apply_fitted_estimates(key, OperatingCosts(first=20000.0, gradient=4000.0),
+                                         MarketValues(decline_rate=0.25))
+    d = window.current_entry().study.defender
+    assert d.operating_costs.gradient == 4000.0 and d.market_values.decline_rate == 0.25
+    window.undo_stack.undo()
+    assert window.current_entry().study == before
