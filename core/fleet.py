@@ -179,7 +179,19 @@ def compute(st: dict[str, np.ndarray]) -> dict[str, Any]:
     price, rate, mask = st["price"], st["rate"], st["mask"]
     first, counts = st["first"], st["counts"]
     C = st["O"] + st["X"]
-    sch = annual_worth_schedule(price, st["S"], C, rate)
+    n_studies = len(first)
+    if int(counts.min()) == int(counts.max()):
+        # Equal-sized studies (the usual fleet): view the stack as (studies, alternatives, N)
+        # so the factor tables are computed once per study rate, not once per alternative.
+        k, n_years = int(counts[0]), C.shape[1]
+        sch3 = annual_worth_schedule(price.reshape(n_studies, k),
+                                     st["S"].reshape(n_studies, k, n_years),
+                                     C.reshape(n_studies, k, n_years), rate[first][:, None])
+        sch = type(sch3)(**{f: getattr(sch3, f).reshape(-1, n_years)
+                            for f in ("annual_worth", "capital_recovery", "operating",
+                                      "marginal_cost", "present_worth")})
+    else:
+        sch = annual_worth_schedule(price, st["S"], C, rate)
     aw = sch.annual_worth
     n = aw.shape[1]
     year_row = np.arange(1, n + 1, dtype=float)
@@ -187,7 +199,6 @@ def compute(st: dict[str, np.ndarray]) -> dict[str, Any]:
     esl = np.argmax(rounded, axis=1) + 1
     at_esl = aw[np.arange(aw.shape[0]), esl - 1]
     at_esl_r = np.round(at_esl, 2)
-    n_studies = len(first)
     k_max = int(counts.max()) - 1
     ch_rows = first[:, None] + 1 + np.arange(k_max)[None, :]
     ch_valid = np.arange(k_max)[None, :] < (counts - 1)[:, None]

@@ -80,6 +80,11 @@ def test_fleet_equals_run_study_on_random_studies() -> None:
     studies = [_random_study(rng, k) for k in range(300)]
     for a, b in zip(run_fleet(studies), [run_study(s) for s in studies], strict=True):
         _same(a, b)
+    # Equal-sized studies take the (studies, alternatives, years) path.
+    three = [s for s in studies if len(s.challengers) == 2]
+    assert len(three) > 20
+    for a, b in zip(run_fleet(three), [run_study(s) for s in three], strict=True):
+        _same(a, b)
 
 
 def test_fleet_falls_back_for_hooked_studies() -> None:
