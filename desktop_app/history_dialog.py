@@ -70,6 +70,12 @@ from core.history import (
 from core.workbook import Asset, Workbook, WorkbookInUse
 from desktop_app.charts import MoneyAxis, guard_signal_refcount_bug
 
+try:  # the workbook this process already has open for writing, if any, else a new writer
+    from core.workbook.model import _writer
+except ImportError:  # pragma: no cover - older core
+    def _writer(path: Any) -> Any:
+        return Workbook.open(path, write=True)
+
 __all__ = ["CostHistoryDialog", "guess_columns"]
 
 PREVIEW_ROWS = 20
@@ -144,6 +150,9 @@ class CostHistoryDialog(QDialog):
         self.cost_fits: dict[str, TrendFit] = {}
         self.value_fit: TrendFit | None = None
         self._accepted: tuple[OperatingCosts | None, MarketValues | None] = (None, None)
+        self.today = _dt.date.today()  # for "is the latest year of age complete yet?"
+        self._partial: tuple[str, int] | None = None
+        self._fitted_tag: str | None = None
         self.assets: dict[str, Asset] = {}
         self.study_year: dict[str, int] = {}
         self.setWindowTitle(f"Import cost history — {self.workbook_path.name}")
@@ -281,6 +290,11 @@ class CostHistoryDialog(QDialog):
         head.addSpacing(16)
         head.addWidget(QLabel("Age now (whole years in service):"))
         head.addWidget(self.age_now)
+        head.addSpacing(16)
+        self.partial_box = QCheckBox()
+        self.partial_box.setVisible(False)
+        self.partial_box.toggled.connect(self._refit)
+        head.addWidget(self.partial_box)
         head.addStretch(1)
 
         # operating cost
@@ -651,9 +665,11 @@ class CostHistoryDialog(QDialog):
         rows = [h for h in self.report.accepted if h.tag == tag]
         asset = self.assets.get(tag)
         year = self.study_year.get(tag, _dt.date.today().year)
-        self.age_now.blockSignals(True)
-        self.age_now.setValue(max(0, (asset.age_in(year) if asset else None) or 0))
-        self.age_now.blockSignals(False)
+        if tag != self._fitted_tag:  # a new asset: its age now; else keep the user's entry
+            self._fitted_tag = tag
+            self.age_now.blockSignals(True)
+            self.age_now.setValue(max(0, (asset.age_in(year) if asset else None) or 0))
+            self.age_now.blockSignals(False)
         since = (f"in service since {asset.in_service.isoformat()}"
                  if asset and asset.in_service else "no in-service date")
         self.fit_info.setText(
@@ -661,6 +677,9 @@ class CostHistoryDialog(QDialog):
             "study. Costs are summed per year of age (work orders of one year add up); "
             "resale quotes of one age are averaged.")
         ages, totals = yearly_totals(rows)
+        self._offer_partial(tag, ages)
+        if self._partial is not None and self.partial_box.isChecked() and len(ages):
+            ages, totals = ages[:-1], totals[:-1]
         self.cost_note.setText("")
         for model in ("arithmetic", "geometric"):
             try:
@@ -705,6 +724,36 @@ class CostHistoryDialog(QDialog):
                 f"{len(fit.ages)} ages, k = whole years in service.")
             self._draw(self.value_plot, self.value_resid, fit, "Years in service")
         self._update_buttons()
+
+    def _year_of_age_end(self, tag: str, age: int) -> _dt.date | None:
+        """The day year of age ``age`` of ``tag`` ends, as the mapping counts years."""
+        asset = self.assets.get(tag)
+        if asset is None or asset.in_service is None or self.report is None:
+            return None
+        start = asset.in_service
+        if self.mapping().year is not None:  # calendar years: year of age 1 = in-service year
+            return _dt.date(start.year + age - 1, 12, 31)
+        if self.mapping().age is not None:
+            return None  # ages given: taken as complete years
+        try:
+            return start.replace(year=start.year + age)
+        except ValueError:  # 29 February
+            return start.replace(year=start.year + age, day=28)
+
+    def _offer_partial(self, tag: str, ages: Any) -> None:
+        """Offer to leave out the latest year of age when it has not ended yet (default: out)."""
+        end = self._year_of_age_end(tag, int(ages[-1])) if len(ages) else None
+        incomplete = end is not None and end > self.today
+        key = (tag, int(ages[-1])) if incomplete else None
+        if key != self._partial:
+            self._partial = key
+            self.partial_box.blockSignals(True)
+            self.partial_box.setChecked(incomplete)
+            self.partial_box.blockSignals(False)
+        self.partial_box.setVisible(incomplete)
+        if incomplete:
+            self.partial_box.setText(f"Leave out year of age {int(ages[-1])} "
+                                     f"(runs to {end.isoformat()}, not complete yet)")
 
     def cost_model(self) -> str:
         return "geometric" if self.geo_radio.isChecked() else "arithmetic"
@@ -852,7 +901,7 @@ class CostHistoryDialog(QDialog):
             fits.append(fit)
         year = self.study_year.get(tag, _dt.date.today().year)
         try:
-            with Workbook.open(self.workbook_path, write=True) as wb, wb.transaction():
+            with _writer(self.workbook_path) as wb, wb.transaction():
                 wb.add_history(self.report.accepted, replace=self.replace_box.isChecked())
                 for fit in fits:
                     wb.save_fit(tag, year, fit)

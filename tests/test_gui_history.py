@@ -66,6 +66,7 @@ def write_csv(path):
 def make_dialog(qtbot, workbook, tmp_path):
     dialog = CostHistoryDialog(workbook, TAG)
     qtbot.addWidget(dialog)
+    dialog.today = dt.date(2026, 12, 2)  # every year of age of the file has ended
     assert dialog.load_file(write_csv(tmp_path / "work orders.csv"))
     return dialog
 
@@ -207,6 +208,7 @@ def test_year_column_fixed_asset(qtbot, workbook, tmp_path, warnings):
         f"{y},{4000 + 500 * (y - 2021)}\n" for y in range(2021, 2026)), encoding="utf-8")
     dialog = CostHistoryDialog(workbook, TAG)
     qtbot.addWidget(dialog)
+    dialog.today = dt.date(2026, 12, 2)
     assert dialog.load_file(path)
     m = dialog.mapping()
     assert m.tag is None and m.default_tag == TAG and m.year == "Year" and m.amount == (
@@ -217,3 +219,33 @@ def test_year_column_fixed_asset(qtbot, workbook, tmp_path, warnings):
     assert dialog.cost_fits["arithmetic"].params["gradient"] == pytest.approx(500.0)
     assert dialog.value_fit is None and not dialog.value_box.isEnabled()
     assert dt.date(2020, 8, 17) == dialog.assets[TAG].in_service
+
+
+def test_incomplete_latest_year_left_out_by_default(qtbot, workbook, tmp_path, warnings):
+    dialog = CostHistoryDialog(workbook, TAG)
+    qtbot.addWidget(dialog)
+    dialog.today = dt.date(2026, 6, 1)  # year of age 6 runs to 2026-08-17
+    assert dialog.load_file(write_csv(tmp_path / "wo.csv"))
+    dialog.check()
+    assert dialog.partial_box.isChecked() and "year of age 6" in dialog.partial_box.text()
+    assert dialog.cost_fits["arithmetic"].ages == (1.0, 2.0, 3.0, 4.0, 5.0)
+    dialog.age_now.setValue(5)
+    dialog.partial_box.setChecked(False)
+    assert dialog.cost_fits["arithmetic"].ages == (1.0, 2.0, 3.0, 4.0, 5.0, 6.0)
+    assert dialog.age_now.value() == 5  # the user's entry stays
+
+
+def test_save_is_one_transaction(qtbot, workbook, tmp_path, warnings, monkeypatch):
+    dialog = make_dialog(qtbot, workbook, tmp_path)
+    dialog.check()
+    with Workbook.open(workbook) as wb:
+        before = len(wb.history(TAG))
+
+    def broken(self, *a, **k):
+        raise OSError("disk full")
+
+    monkeypatch.setattr(Workbook, "save_fit", broken)
+    assert not dialog.save()
+    assert "disk full" in warnings[-1][1]
+    with Workbook.open(workbook) as wb:
+        assert len(wb.history(TAG)) == before  # the rows were rolled back with the fit
