@@ -212,6 +212,7 @@ class Document:
             return cached
         result = run_study(entry.study)
         self._results[key] = result
+        self._emit("result", key)
         return result
 
     def store_result(self, key: str, result: StudyResult) -> None:

@@ -88,6 +88,7 @@ class MainWindow(QMainWindow):
         self._forced_dirty = False
         self._job: FleetJob | None = None
         self._current_job: FleetJob | None = None
+        self._showing = False
         self._jobs: list[FleetJob] = []
         self.pool = QThreadPool.globalInstance()
         self.undo_stack = QUndoStack(self)
@@ -319,11 +320,11 @@ class MainWindow(QMainWindow):
         self.cancel_fleet()
         self.doc.unsubscribe(self._on_doc_event)
         self.doc = doc
-        doc.subscribe(self._on_doc_event)
+        self.current_key = None
         self.undo_stack.clear()
         self._forced_dirty = dirty
-        self.current_key = None
-        self.register.set_document(doc)
+        self.register.set_document(doc)  # the register observes the document first
+        doc.subscribe(self._on_doc_event)
         workbook = doc.kind == "workbook"
         self.add_asset_action.setEnabled(not workbook)
         self.history_action.setEnabled(workbook)
@@ -529,10 +530,13 @@ class MainWindow(QMainWindow):
                 self.report(f"Recomputing with {entry.study.uncertainty.trials:,} risk trials…")
                 return
             elif result is None:
+                self._showing = True
                 try:
-                    result = self.doc.result(entry.key)
+                    result = self.doc.result(entry.key)  # the register hears "result"
                 except StudyError as exc:
                     self.report(friendly(exc))
+                finally:
+                    self._showing = False
         self.current_result = result
         if self.chart_panel is None:
             return
@@ -541,12 +545,10 @@ class MainWindow(QMainWindow):
                 panel.set_result(result)
         self.memo_action.setEnabled(result is not None)
         self.export_action.setEnabled(result is not None)
-        if entry is not None:
-            self.register.update_row(entry.key)
 
     def _on_doc_event(self, event: str, key: str | None) -> None:
+        """The document changed (the register, which observes it too, has already updated)."""
         if event == "assets":
-            self.register.rebuild()
             if self.current_entry() is None:
                 self.select_asset(self.doc.entries[0].key if self.doc.entries else None)
             elif key is not None:
@@ -557,10 +559,7 @@ class MainWindow(QMainWindow):
                 self.refresh_current()
             else:
                 self.select_asset(key)
-            if self.chart_panel is None:
-                self.register.update_row(key)
-        elif event == "result":
-            self.register.update_row(key)
+        elif event == "result" and not self._showing:
             entry = self.current_entry()
             if key == self.current_key and entry is not None and (
                     self.current_result is None or self.current_result.study != entry.study):

@@ -86,8 +86,18 @@ class RegisterPane(QWidget):
 
     # ------------------------------------------------------------------ document
     def set_document(self, doc: Document) -> None:
+        """Show ``doc`` and observe it: rows follow its "study", "year", "result" events."""
+        if self.doc is not None:
+            self.doc.unsubscribe(self._on_doc_event)
         self.doc = doc
+        doc.subscribe(self._on_doc_event)
         self.rebuild()
+
+    def _on_doc_event(self, event: str, key: str | None) -> None:
+        if event == "assets":
+            self.rebuild()
+        elif key is not None:
+            self.update_row(key)
 
     def rebuild(self) -> None:
         doc = self.doc
