@@ -84,19 +84,21 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     x_c: list[int] = []
     x_v: list[float] = []
     dec_r, dec_d, grad_r, grad_f, grad_g, grow_r, grow_f, grow_g = ([] for _ in range(8))
+    sv_add, sv_more, ov_add, ov_more = sv_r.append, sv_v.extend, ov_r.append, ov_v.extend
     for r, a in enumerate(alts):
-        k = a.max_life
         mv = a.market_values
-        if mv.values is not None:
-            sv_r.append(r)
-            sv_v.extend(mv.values[:k])
+        values = mv.values
+        if values is not None:
+            sv_add(r)
+            sv_more(values if len(values) == a.max_life else values[:a.max_life])
         else:
             dec_r.append(r)
             dec_d.append(mv.decline_rate or 0.0)
         oc = a.operating_costs
-        if oc.values is not None:
-            ov_r.append(r)
-            ov_v.extend(oc.values[:k])
+        values = oc.values
+        if values is not None:
+            ov_add(r)
+            ov_more(values if len(values) == a.max_life else values[:a.max_life])
         elif oc.growth is not None:
             grow_r.append(r)
             grow_f.append(0.0 if oc.first is None else oc.first)
@@ -105,11 +107,12 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
             grad_r.append(r)
             grad_f.append(0.0 if oc.first is None else oc.first)
             grad_g.append(0.0 if oc.gradient is None else oc.gradient)
-        for extra in a.extra_costs:
-            if 1 <= extra.year <= k:
-                x_r.append(r)
-                x_c.append(extra.year - 1)
-                x_v.append(extra.amount)
+        if a.extra_costs:
+            for extra in a.extra_costs:
+                if 1 <= extra.year <= a.max_life:
+                    x_r.append(r)
+                    x_c.append(extra.year - 1)
+                    x_v.append(extra.amount)
     if sv_r:
         S[_scatter_index(sv_r, life)] = sv_v
     if dec_r:
