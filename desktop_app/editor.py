@@ -765,9 +765,18 @@ class StudyEditor(QWidget):
         self.tabs = QTabWidget()
         self.tabs.currentChanged.connect(self._tab_opened)
         layout.addWidget(self.tabs, 1)
-        self.placeholder = QLabel("This asset has no study yet. Use Asset ▸ Start study.")
-        self.placeholder.setAlignment(Qt.AlignmentFlag.AlignCenter)
-        layout.addWidget(self.placeholder)
+        self.placeholder = QWidget()
+        pl = QVBoxLayout(self.placeholder)
+        note = QLabel("This asset has no study yet.")
+        note.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.start_button = QPushButton("Start this year's study")
+        self.start_button.setToolTip("Begin from default estimates (Asset ▸ Start or restudy "
+                                     "this year); replace them with this asset's own")
+        pl.addStretch(1)
+        pl.addWidget(note)
+        pl.addWidget(self.start_button, 0, Qt.AlignmentFlag.AlignCenter)
+        pl.addStretch(2)
+        layout.addWidget(self.placeholder, 1)
         self.placeholder.hide()
 
     def clear_errors(self) -> None:

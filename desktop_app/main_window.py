@@ -109,6 +109,7 @@ class MainWindow(QMainWindow):
         self.register = RegisterPane()
         self.register.asset_selected.connect(self.select_asset)
         self.editor = StudyEditor(self.commit, self.report, self.set_year)
+        self.editor.start_button.clicked.connect(lambda _c=False: self.start_study())
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setWidget(self.editor)

@@ -374,7 +374,7 @@ def test_new_document_and_not_yet_studied_asset(qtbot):
         window.doc, entry.key, entry.study, None, "clear"))
     assert window.doc.state(entry.key).recommendation == "not yet studied"
     assert window.editor.placeholder.isVisibleTo(window.editor)
-    window.start_study()
+    window.editor.start_button.click()
     assert window.current_entry().study is not None
     assert window.current_entry().study_year == this_year()
 
