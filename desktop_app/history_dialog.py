@@ -131,6 +131,21 @@ def _money(value: float, symbol: str) -> str:
     return ("-" if value < 0 and text.strip("0,") else "") + symbol + text
 
 
+def _cell(value: Any) -> QTableWidgetItem:
+    """A preview cell: blanks empty, midnight datetimes as dates, numbers right-aligned."""
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return QTableWidgetItem("")
+    if isinstance(value, _dt.datetime) and value.time() == _dt.time():
+        value = value.date()
+    item = QTableWidgetItem(value.isoformat() if isinstance(value, _dt.date) else str(value))
+    number = isinstance(value, (int, float)) or (
+        isinstance(value, str) and value.strip().replace(",", "").replace(".", "", 1)
+        .lstrip("-").isdigit())
+    if number:
+        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+    return item
+
+
 class CostHistoryDialog(QDialog):
     """Import a cost-history file into a workbook and propose estimates from its trends."""
 
@@ -277,6 +292,7 @@ class CostHistoryDialog(QDialog):
         page = QWidget()
         self.fit_asset = QComboBox()
         self.fit_asset.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+        self.fit_asset.setMinimumContentsLength(32)
         self.fit_asset.currentIndexChanged.connect(self._refit)
         self.age_now = QSpinBox()
         self.age_now.setRange(0, 100)
@@ -290,12 +306,10 @@ class CostHistoryDialog(QDialog):
         head.addSpacing(16)
         head.addWidget(QLabel("Age now (whole years in service):"))
         head.addWidget(self.age_now)
-        head.addSpacing(16)
+        head.addStretch(1)
         self.partial_box = QCheckBox()
         self.partial_box.setVisible(False)
         self.partial_box.toggled.connect(self._refit)
-        head.addWidget(self.partial_box)
-        head.addStretch(1)
 
         # operating cost
         self.cost_box = QGroupBox("Operating cost by year of age")
@@ -366,6 +380,7 @@ class CostHistoryDialog(QDialog):
         boxes.addWidget(self.value_box, 1)
         layout = QVBoxLayout(page)
         layout.addLayout(head)
+        layout.addWidget(self.partial_box)
         layout.addWidget(self.fit_info)
         layout.addLayout(boxes, 1)
         return page
@@ -452,14 +467,15 @@ class CostHistoryDialog(QDialog):
         self.path_edit.setText(str(path))
         try:
             frame = read_table(path, sheet)
-        except StudyError as exc:
-            self._error("Cannot read the file", str(exc))
-            return False
+            if len(frame.columns) == 0:
+                raise StudyError(str(path), "the table has no columns")
         except Exception as exc:  # noqa: BLE001 - the user sees a message, never a traceback
-            self._error("Cannot read the file", f"{path}: {type(exc).__name__}: {exc}")
-            return False
-        if len(frame.columns) == 0:
-            self._error("Cannot read the file", f"{path}: the table has no columns")
+            text = str(exc) if isinstance(exc, StudyError) else (
+                f"{path}: {type(exc).__name__}: {exc}")
+            if self.file_path is not None:
+                self.file_info.setText(f"Could not read {path.name}; still showing "
+                                       f"{self.file_path.name}.")
+            self._error("Cannot read the file", text)
             return False
         first_load = self.file_path != path
         self.file_path, self.frame, self.report = path, frame, None
@@ -502,9 +518,7 @@ class CostHistoryDialog(QDialog):
             item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
             self.preview.setItem(r, 0, item)
             for c, value in enumerate(row.tolist()):
-                text = "" if value is None or (isinstance(value, float) and np.isnan(value)) \
-                    else str(value)
-                self.preview.setItem(r, c + 1, QTableWidgetItem(text))
+                self.preview.setItem(r, c + 1, _cell(value))
         more = len(frame) - len(head)
         self.file_info.setText(
             f"{self.file_path.name}: {len(frame)} data rows, {len(frame.columns)} columns"
@@ -699,11 +713,14 @@ class CostHistoryDialog(QDialog):
             self.geo_radio.setChecked(True)
         elif arith is not None:
             self.arith_radio.setChecked(True)
+        for plot in (self.cost_plot, self.cost_resid):
+            plot.setVisible(bool(self.cost_fits))
         self.cost_box.setEnabled(bool(self.cost_fits))
         self.cost_box.setChecked(bool(self.cost_fits))
         if not self.cost_fits:
-            self.cost_note.setText(f"No operating-cost fit: {self.cost_note.text() or 'no rows'}"
-                                   .replace("operating cost fit: ", ""))
+            reason = (self.cost_note.text().replace("operating cost fit: ", "") if len(ages)
+                      else f"no operating or maintenance costs of {tag} in this file.")
+            self.cost_note.setText(f"No operating-cost fit: {reason}")
         self._model_changed()
 
         q_ages, q_values = yearly_totals(rows, ("resale",))
@@ -711,7 +728,10 @@ class CostHistoryDialog(QDialog):
         try:
             self.value_fit = fit_market_values(q_ages, q_values, tag=tag)
         except StudyError as exc:
-            self.value_note.setText("No market-value fit: " + exc.message)
+            self.value_note.setText("No market-value fit: " + (
+                exc.message if len(q_ages) else f"no resale quotes of {tag} in this file."))
+        for plot in (self.value_plot, self.value_resid):
+            plot.setVisible(self.value_fit is not None)
         self.value_box.setEnabled(self.value_fit is not None)
         self.value_box.setChecked(self.value_fit is not None)
         if self.value_fit is not None:
@@ -783,7 +803,8 @@ class CostHistoryDialog(QDialog):
         else:
             eq = (f"Fitted C_j = a + G(j−1) (least squares): a = {_money(p['first'], c)}/yr, "
                   f"G = {_money(p['gradient'], c)}/yr per year of age; R² {fit.r_squared:.3f}")
-        self.cost_note.setText(f"{eq}; {n} years of age, j = 1 is the first year in service.")
+        self.cost_note.setText(f"{eq}; {n} years of age, j = 1 is the first year in service. "
+                               "Dots: data; line: fit; ◇: the proposed first-year cost.")
 
     def _propose_costs(self, *_: Any) -> None:
         fit = self.cost_fits.get(self.cost_model())
@@ -813,7 +834,8 @@ class CostHistoryDialog(QDialog):
         y = np.asarray(fit.values, dtype=float)
         lo, hi = float(x.min()), float(x.max())
         costs = fit.quantity == "operating_costs"
-        lo = min(lo, 1.0) if costs else min(lo, 0.0)
+        if not costs and lo <= 3.0:
+            lo = 0.0  # show the fitted price P at k = 0 when the quotes start young
         if costs:
             hi = max(hi, float(self.age_now.value() + 1))
         xs = np.linspace(lo, hi + (0.0 if costs else 1.0), 60)
