@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
+import sqlite3
 from pathlib import Path
 from typing import Any
 
@@ -67,7 +68,7 @@ from core.history import (
     read_table,
     yearly_totals,
 )
-from core.workbook import Asset, Workbook, WorkbookInUse
+from core.workbook import Asset, HistoryRow, Workbook, WorkbookInUse
 from desktop_app.charts import MoneyAxis, guard_signal_refcount_bug
 
 try:  # the workbook this process already has open for writing, if any, else a new writer
@@ -629,6 +630,10 @@ class CostHistoryDialog(QDialog):
         except StudyError as exc:
             self._error("Cannot import with these columns", str(exc))
             return None
+        except Exception as exc:  # noqa: BLE001 - a message, never a traceback
+            self._error("Cannot import with these columns",
+                        f"{self.file_path}: {type(exc).__name__}: {exc}")
+            return None
         self.report = report
         table = self.rejected_table
         table.setRowCount(len(report.rejected))
@@ -922,9 +927,12 @@ class CostHistoryDialog(QDialog):
             fit["accepted"] = {"decline_rate": values.decline_rate}
             fits.append(fit)
         year = self.study_year.get(tag, _dt.date.today().year)
+        rows = self._rows_to_add()
+        if rows is None:
+            return False
         try:
             with _writer(self.workbook_path) as wb, wb.transaction():
-                wb.add_history(self.report.accepted, replace=self.replace_box.isChecked())
+                wb.add_history(rows, replace=self.replace_box.isChecked())
                 for fit in fits:
                     wb.save_fit(tag, year, fit)
         except WorkbookInUse as exc:
@@ -932,16 +940,47 @@ class CostHistoryDialog(QDialog):
                         f"{exc}\nClose it in the other program and press Save again; "
                         "nothing was saved and your choices are kept.")
             return False
-        except (StudyError, OSError) as exc:
+        except (StudyError, OSError, sqlite3.Error) as exc:
             self._error("Cannot save to the workbook",
                         f"{exc}\nNothing was saved; your choices are kept.")
             return False
         self._accepted = (costs, values)
-        self._set_status(f"Saved {len(self.report.accepted)} rows and {len(fits)} fit(s) "
+        self._set_status(f"Saved {len(rows)} rows and {len(fits)} fit(s) "
                          f"to {self.workbook_path.name}.")
         self.estimatesAccepted.emit(costs, values)
         self.accept()
         return True
+
+    def _rows_to_add(self) -> list[HistoryRow] | None:
+        """The accepted rows to store; asks when this file's rows are already in the workbook.
+
+        None when the user cancels or the workbook cannot be read.
+        """
+        rows = list(self.report.accepted)
+        if self.replace_box.isChecked():
+            return rows
+        try:
+            with Workbook.open(self.workbook_path, write=False) as wb:
+                have = {(h.tag, h.kind, h.age, h.amount, h.source, h.source_row)
+                        for tag in {r.tag for r in rows} for h in wb.history(tag)}
+        except (StudyError, OSError, sqlite3.Error) as exc:
+            self._error("Cannot read the workbook", f"{exc}\nNothing was saved.")
+            return None
+        fresh = [r for r in rows
+                 if (r.tag, r.kind, r.age, r.amount, r.source, r.source_row) not in have]
+        if len(fresh) == len(rows):
+            return rows
+        answer = QMessageBox.question(
+            self, "Already imported",
+            f"{len(rows) - len(fresh)} of the {len(rows)} rows of {self.report.source} are "
+            "already in the workbook (same row, asset, year of age and amount).\n\n"
+            "Yes: skip those and add the others.\nNo: add every row again.\n"
+            "Cancel: save nothing.",
+            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No
+            | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Yes)
+        if answer == QMessageBox.StandardButton.Cancel:
+            return None
+        return fresh if answer == QMessageBox.StandardButton.Yes else rows
 
     # ------------------------------------------------------------------ navigation
     def _next(self) -> None:

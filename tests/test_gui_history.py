@@ -177,8 +177,12 @@ def test_bad_file_and_locked_workbook_are_messages(qtbot, workbook, tmp_path, wa
     assert dialog.frame is not None and dialog.check() is not None
     dialog.set_estimates(first=8000.0)
 
-    def in_use(*a, **k):
-        raise WorkbookInUse(workbook, "in use by pid 4242 on another-host")
+    real_open = Workbook.open
+
+    def in_use(path, write=False, **k):
+        if write:
+            raise WorkbookInUse(workbook, "in use: open for writing by process 4242 elsewhere")
+        return real_open(path, write=write, **k)
 
     monkeypatch.setattr(Workbook, "open", staticmethod(in_use))
     count = len(warnings)
@@ -249,3 +253,20 @@ def test_save_is_one_transaction(qtbot, workbook, tmp_path, warnings, monkeypatc
     assert "disk full" in warnings[-1][1]
     with Workbook.open(workbook) as wb:
         assert len(wb.history(TAG)) == before  # the rows were rolled back with the fit
+
+
+def test_second_import_of_the_same_file_asks(qtbot, workbook, tmp_path, warnings, monkeypatch):
+    first = make_dialog(qtbot, workbook, tmp_path)
+    first.check()
+    assert first.save()
+    with Workbook.open(workbook) as wb:
+        count = len(wb.history(TAG))
+    asked = []
+    monkeypatch.setattr(QMessageBox, "question", staticmethod(
+        lambda *a, **k: asked.append(a[2]) or QMessageBox.StandardButton.Yes))
+    again = make_dialog(qtbot, workbook, tmp_path)
+    again.check()
+    assert again.save()
+    assert asked and "11 of the 11 rows" in asked[0]
+    with Workbook.open(workbook) as wb:
+        assert len(wb.history(TAG)) == count  # the duplicates were skipped
