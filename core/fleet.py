@@ -55,7 +55,8 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study).
 
     Keys: price, life, rate (M,); S, O (operating C_j), X (extra X_j), mask (M, N) with
-    mask[m, k-1] = k <= max_life; counts (alternatives per study) and first (defender row).
+    mask[m, k-1] = k <= max_life (cells past it hold finite filler: read them through the
+    mask); counts (alternatives per study) and first (defender row).
     """
     alts = []
     counts_l = []
@@ -125,9 +126,7 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
         Op[grow_r] = np.array(grow_f)[:, None] * np.power(1.0 + np.array(grow_g)[:, None], ages)
     if x_r:
         np.add.at(X, (np.array(x_r), np.array(x_c)), np.array(x_v))
-    mask = years_row[None, :] <= life[:, None]
-    S = np.where(mask, S, 0.0)
-    Op = np.where(mask, Op, 0.0)
+    mask = years_row[None, :] <= life[:, None]  # cells past max_life hold finite filler
     first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
     return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask,
             "counts": counts, "first": first}
