@@ -156,7 +156,7 @@ class CostHistoryDialog(QDialog):
                  parent: QWidget | None = None) -> None:
         super().__init__(parent)
         guard_signal_refcount_bug()
-        pg.setConfigOptions(useOpenGL=False, antialias=True)
+        pg.setConfigOptions(useOpenGL=False)  # software rendering only
         self.workbook_path = Path(workbook_path)
         self.asset_tag = asset_tag
         self.currency = "€"
@@ -845,7 +845,7 @@ class CostHistoryDialog(QDialog):
             hi = max(hi, float(self.age_now.value() + 1))
         xs = np.linspace(lo, hi + (0.0 if costs else 1.0), 60)
         plot.clear()
-        plot.plot(xs, fit.fitted(xs), pen=pg.mkPen("#1f5fa8", width=2))
+        plot.plot(xs, fit.fitted(xs), pen=pg.mkPen("#1f5fa8", width=2), antialias=True)
         plot.plot(x, y, pen=None, symbol="o", symbolSize=7, symbolBrush="#d9822b",
                   symbolPen=pg.mkPen("#7a4410"))
         if costs:
