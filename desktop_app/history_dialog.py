@@ -669,6 +669,10 @@ class CostHistoryDialog(QDialog):
     def select_asset(self, tag: str) -> None:
         self.fit_asset.setCurrentIndex(self.fit_asset.findData(tag))
 
+    def fitted_tag(self) -> str | None:
+        """The asset whose estimates the Fit page proposes (the one to apply them to)."""
+        return self.fit_asset.currentData()
+
     def _refit(self, *_: Any) -> None:
         tag = self.fit_asset.currentData()
         self.cost_fits, self.value_fit = {}, None

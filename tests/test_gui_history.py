@@ -137,7 +137,7 @@ def test_save_writes_history_and_fits_and_returns_edits(qtbot, workbook, tmp_pat
         assert dialog.save()
     expected = (OperatingCosts(first=9000.0, gradient=750.0), MarketValues(decline_rate=0.16))
     assert tuple(blocker.args) == expected
-    assert dialog.accepted_estimates() == expected
+    assert dialog.accepted_estimates() == expected and dialog.fitted_tag() == TAG
     assert not warnings
     with Workbook.open(workbook) as wb:
         rows = wb.history(TAG)
