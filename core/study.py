@@ -9,7 +9,6 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
 
 from core.annual_worth import annual_worth_schedule, economic_life
 from core.errors import StudyError
@@ -203,6 +202,8 @@ def solve_replacement_value(best_aw: Callable[[float], float], target: float,
     >>> round(solve_replacement_value(lambda p: -0.2 * p - 100.0, -300.0, 0.0), 6)
     1000.0
     """
+    from scipy.optimize import brentq  # imported here: scipy is slow to load at start-up
+
     def gap(p: float) -> float:
         return best_aw(p) - target
 

@@ -161,7 +161,7 @@ class _Legend:
         if wanted != self._shown:
             self.item.clear()
             longest = max((len(label) for _item, label in self._pending), default=0)
-            self.item.setColumnCount(3 if longest <= 32 else 2 if longest <= 56 else 1)
+            self.item.setColumnCount(3 if longest <= 20 else 2 if longest <= 32 else 1)
             for item, label in self._pending:
                 self.item.addItem(item, escape(label))
             self._shown = wanted
@@ -838,8 +838,8 @@ class ChartPanel(QWidget):
         self._series["aw"] = series
         what, better = (("Annual worth", "higher") if self.signed()
                         else ("Equivalent annual cost", "lower"))
-        plot.set_title(f"{what} by retention period, {self._basis_words(any_after)} "
-                       f"({better} is better; stars: economic service life)")
+        plot.set_title(f"{what} by retention period, {self._basis_words(any_after)}",
+                       f"{better} is better; a star marks each economic service life")
         plot.set_axis_label("left", axis_title)
         plot.set_axis_label("bottom", "Years kept (retention period k)")
         self._finish("aw")
@@ -974,8 +974,9 @@ class ChartPanel(QWidget):
                                    f"{self._money(values[j])}\n{verdict} than {best.name} "
                                    f"({self._money(level)})", bar_width=0.6))
         plot.targets = targets
-        plot.set_title(f"One more year? {d.name}'s marginal cost by year against {best.name}, "
-                      f"{self._basis_words(after)}", note)
+        plot.set_title(f"One more year? Marginal cost of {d.name}",
+                       f"against the EAC of {best.name}, {self._basis_words(after)}"
+                       + (f"; {note}" if note else ""))
         unit = self._unit()
         plot.set_axis_label("left", (f"Marginal cost of the year, MC ({unit})"
                                      if not self.signed() else

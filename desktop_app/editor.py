@@ -138,7 +138,7 @@ class _StudyView(QWidget):
         self.study: Study | None = None
         self.commit = commit
         self.report = report
-        self.currency = "€"
+        self.currency = "£"
         self.bindings: list[LineBinding] = []
 
     def bind(self, label: str, getter: Callable[[Study], str],
@@ -737,7 +737,7 @@ class StudyEditor(QWidget):
         super().__init__(parent)
         self.commit, self.report = commit, report
         self.study: Study | None = None
-        self.currency = "€"
+        self.currency = "£"
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         box = QGroupBox("Study")

@@ -79,6 +79,17 @@ def _safe_name(title: str) -> str:
     return re.sub(r"[^\w\- .]+", "_", title).strip() or "memo"
 
 
+def _preferences() -> tuple[str, str]:
+    """(currency, page size) from the window's preferences, with the memo's defaults."""
+    try:
+        from desktop_app.prefs import Preferences
+
+        prefs = Preferences()
+        return prefs.currency or "GBP", prefs.page_size
+    except Exception:
+        return "GBP", "A4"
+
+
 class IssueMemoDialog(QDialog):
     """Identity, passphrase, sign-off names, page size; issue on a worker; open the PDF."""
 
@@ -106,8 +117,10 @@ class IssueMemoDialog(QDialog):
         form.addRow("Save memo as", self._with_browse(self.out_edit, self._browse_out))
         self.page_size = QComboBox()
         self.page_size.addItems(["A4", "Letter"])
+        prefs = _preferences()
+        self.page_size.setCurrentText(prefs[1])
         form.addRow("Page size", self.page_size)
-        self.currency = QLineEdit("GBP")
+        self.currency = QLineEdit(prefs[0])
         form.addRow("Currency", self.currency)
         self.organisation = QLineEdit()
         form.addRow("Organisation", self.organisation)

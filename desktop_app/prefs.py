@@ -48,7 +48,7 @@ class Preferences:
 
     @property
     def currency(self) -> str:
-        return str(self.store.value("prefs/currency", "€") or "€")
+        return str(self.store.value("prefs/currency", "£") or "£")
 
     @currency.setter
     def currency(self, value: str) -> None:
@@ -124,6 +124,6 @@ class PreferencesDialog(QDialog):
 
     def apply(self) -> None:
         self.prefs.default_marr = round(self.marr.value() / 100.0, 6)
-        self.prefs.currency = self.currency.text().strip() or "€"
+        self.prefs.currency = self.currency.text().strip() or "£"
         self.prefs.page_size = self.page.currentText()
         self.prefs.autosave_seconds = self.autosave.value()

@@ -193,7 +193,7 @@ def test_table_cell_edits_merge_into_one_undo_step(qtbot):
     model = ed.model
     before = window.current_entry().study
     assert model.headerData(1, __import__("PySide6.QtCore").QtCore.Qt.Orientation.Horizontal) \
-        == "Market value (€)"
+        == "Market value (£)"
     assert model.setData(model.index(0, 1), "15,000")
     assert model.setData(model.index(0, 1), "15,500")
     assert window.undo_stack.count() == 1
