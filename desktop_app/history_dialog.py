@@ -159,7 +159,7 @@ class CostHistoryDialog(QDialog):
         pg.setConfigOptions(useOpenGL=False)  # software rendering only
         self.workbook_path = Path(workbook_path)
         self.asset_tag = asset_tag
-        self.currency = "€"
+        self.currency = "£"
         self.frame: Any = None
         self.file_path: Path | None = None
         self.report: ImportReport | None = None

@@ -742,11 +742,12 @@ class MainWindow(QMainWindow):
             self.report("Import cost history: not available in this build")
             return
         dialog = CostHistoryDialog(self.doc.path, self.current_key, self)
+        dialog.set_currency(self.prefs.currency)
         dialog.exec()
         costs, values = dialog.accepted_estimates()
         tag = None
         with contextlib.suppress(AttributeError, RuntimeError):
-            tag = dialog.fit_asset.currentData()
+            tag = dialog.fitted_tag()
         self.apply_fitted_estimates(tag or self.current_key, costs, values)
 
     def apply_fitted_estimates(self, key: str | None, costs, values) -> bool:
