@@ -252,6 +252,8 @@ def run_study(study: Study) -> StudyResult:
     >>> round(r.recommendation.replacement_value, 2)
     18062.4
     """
+    if not study.challengers:
+        raise StudyError("challengers", "a study needs at least one challenger")
     rate = study_rate(study)
     arrays = {alt.name: alternative_arrays(study, alt) for alt in study.alternatives}
     schedules = {name: annual_worth_schedule(p, s, c, rate) for name, (p, s, c) in arrays.items()}

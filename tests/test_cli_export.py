@@ -62,3 +62,17 @@ def test_unfillable_study_period_is_a_user_error() -> None:
     study = dataclasses.replace(parse_study(body), study_period=20)
     with pytest.raises(StudyError, match="no option fills 20 years"):
         run_study(study)
+
+
+def test_study_without_challenger_built_in_code_is_a_user_error() -> None:
+    import dataclasses
+
+    import pytest
+
+    from core.errors import StudyError
+    from core.study import run_study
+    from core.studyfile import parse_study
+
+    body = {k: v for k, v in STUDY.items() if k not in ("format", "version")}
+    with pytest.raises(StudyError, match="at least one challenger"):
+        run_study(dataclasses.replace(parse_study(body), challengers=()))
