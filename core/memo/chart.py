@@ -147,9 +147,9 @@ def aw_chart(
                 ly += 9
             lx = ex
             anchor = "end" if ex > left + pw - 50 else ("start" if ex < left + 40 else "middle")
-            if ly > bottom + ph - 8:  # no room above: put the label beside the marker
-                ly = ey - 2.5
-                lx, anchor = (ex - 7, "end") if ex > left + 40 else (ex + 7, "start")
+            if ly > bottom + ph - 8:  # no room above: put the label under the marker
+                ly = ey - 13
+                lx = ex + 4 if anchor == "end" else ex
             label_spots.append((lx, ly))
             d.add(String(lx, ly, f"ESL {esl}", fontName=FB(), fontSize=7,
                          fillColor=color, textAnchor=anchor))

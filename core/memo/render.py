@@ -393,7 +393,7 @@ class _Builder:
         with_tax = all(isinstance(d, dict) and isinstance(d.get("economic_life"), int)
                        for d in ats.values())
         self.h("Key figures")
-        rows = [["Rank", "Alternative", "Role", f"Price ({cur})", "Max life",
+        rows = [["#", "Alternative", "Role", f"Price ({cur})", "Max life",
                  "ESL", f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
         if with_tax:
             rows[0][5:] = ["ESL before tax", f"EAC before tax ({cur}/yr)", "ESL after tax",
@@ -422,9 +422,14 @@ class _Builder:
                         extra=[("ALIGN", (0, 0), (0, -1), "CENTER")]))
         rec = r.recommendation
         facts = [["Basis of the recommendation", rec.basis],
-                 ["Interest rate used for AW", pct(getattr(r, "rate", r.study.marr))
+                 ["Interest rate used for AW" + (" before tax" if r.study.tax else ""),
+                  pct(getattr(r, "rate", r.study.marr))
                   + ("" if getattr(r, "rate", r.study.marr) == r.study.marr
                      else f" (MARR {pct(r.study.marr)}, adjusted for inflation)")]]
+        if r.study.tax is not None:
+            facts.append(["After-tax MARR and tax rate",
+                          f"{pct(r.study.tax.after_tax_marr)} after tax; effective tax rate "
+                          f"{pct(r.study.tax.rate)}"])
         if rec.best_challenger:
             facts.append(["Best challenger", rec.best_challenger])
         if rec.replacement_value is not None:
