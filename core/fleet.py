@@ -6,7 +6,8 @@ and the no-study-period decisions of every plain before-tax study in a handful o
 calls over padded arrays:
 
     alternatives stacked to shape (M, N), N = the longest max_life, a mask k <= max_life;
-    AW, CR, MC from ``annual_worth_schedule`` on the whole stack;
+    AW and CR on the whole stack with ``annual_worth_schedule``'s steps (factor tables once
+    per study; MC only for the result objects);
     ESL_m = first argmax of round(AW_m, 2) over the valid k (ties to the shorter life);
     RV = max_k [AW_D,k + P_D (A/P,i,k) - AW_c*] / (A/P,i,k)
 
@@ -27,9 +28,7 @@ from typing import Any
 
 import numpy as np
 
-from core.annual_worth import annual_worth_schedule
 from core.estimates import Study
-from core.factors import ap, pa
 from core.results import AlternativeResult, Recommendation, StudyResult, _list, _r
 from core.study import CENT, decide, money, run_study, years
 from core.studyfile import fingerprint
@@ -171,69 +170,157 @@ def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
                           check)
 
 
-def compute(st: dict[str, np.ndarray]) -> dict[str, Any]:
+#: Studies per block in ``compute``: the block's temporaries stay near 300 kB, so they are
+#: reused from the allocator's free lists and stay in cache, instead of being fresh
+#: (page-faulting) multi-megabyte arrays over the whole fleet.
+BLOCK_STUDIES = 500
+
+
+def _check_rates(rate: np.ndarray) -> None:
+    """The checks of ``core.factors`` (finite, greater than -1) on every rate at once."""
+    if not np.all(np.isfinite(rate)):
+        raise ValueError("interest rate must be a finite number")
+    if np.any(rate <= -1.0):
+        raise ValueError("interest rate must be greater than -1 (-100 %)")
+
+
+def _factor_tables(rate: np.ndarray, periods: np.ndarray) -> tuple[np.ndarray, ...]:
+    """(P/F,i,k), (P/A,i,k), (A/P,i,k), (A/F,i,k) for k in ``periods``, one row per rate.
+
+    The same floating-point steps as ``core.factors.pf/pa/ap/af`` (so every value is
+    bit-for-bit theirs), but with two powers instead of four: for i != 0 the (1+i)^-k of
+    (P/A) is the (P/F) table itself.  Rates are checked by the caller (``_check_rates``).
+    """
+    disc = np.power(1.0 + rate[:, None], -periods)
+    zero = np.abs(rate) < 1e-12
+    safe = np.where(zero, 1.0, rate)[:, None]
+    annuity = np.subtract(1.0, disc)
+    annuity /= safe
+    fund = np.power(1.0 + safe, periods)
+    fund -= 1.0
+    fund /= safe
+    if zero.any():
+        annuity[zero] = periods
+        fund[zero] = periods
+    cap = np.divide(1.0, annuity)
+    sink = np.divide(1.0, fund, out=fund)
+    return disc, annuity, cap, sink
+
+
+def _marginal_cost(price: np.ndarray, S: np.ndarray, C: np.ndarray,
+                   rate: np.ndarray) -> np.ndarray:
+    """MC_j = (S_{j-1} - S_j) + i S_{j-1} + C_j, S_0 = P: ``annual_worth_schedule``'s steps."""
+    S_prev = np.concatenate([price[:, None], S[:, :-1]], axis=1)
+    return (S_prev - S) + rate[:, None] * S_prev + C
+
+
+def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
     """Every AW schedule, ESL, best challenger, RV and no-period decision of a stacked fleet.
 
-    ``st`` comes from ``stack``.  One ``annual_worth_schedule`` call over the (M, N) stack,
-    then masked reductions per alternative (ESL) and per study (best challenger, RV, the
+    ``st`` comes from ``stack``.  Block by block of ``BLOCK_STUDIES`` studies: the factor
+    tables once per study (its MARR), then AW_k = -[P(A/P) - S_k(A/F)] - [sum C_j(P/F)](A/P)
+    for every alternative with the floating-point steps of ``annual_worth_schedule`` (so each
+    AW is bit-for-bit run_study's), then masked reductions per alternative (ESL: first
+    argmax of round(AW, 2) over k <= max_life) and per study (best challenger, RV, the
     keep-or-replace test round(AW_c*, 2) > round(AW_D*, 2), the planned replacement year).
+    Only what the decision needs is kept; ``full`` also keeps the capital-recovery and
+    operating parts (keys "capital_recovery", "operating") for the result objects.
     """
     price, rate, mask = st["price"], st["rate"], st["mask"]
     first, counts = st["first"], st["counts"]
-    C = st["O"] + st["X"]
+    S, Op, X = st["S"], st["O"], st["X"]
+    m, n = S.shape
     n_studies = len(first)
-    if int(counts.min()) == int(counts.max()):
-        # Equal-sized studies (the usual fleet): view the stack as (studies, alternatives, N)
-        # so the factor tables are computed once per study rate, not once per alternative.
-        k, n_years = int(counts[0]), C.shape[1]
-        sch3 = annual_worth_schedule(price.reshape(n_studies, k),
-                                     st["S"].reshape(n_studies, k, n_years),
-                                     C.reshape(n_studies, k, n_years), rate[first][:, None])
-        sch = type(sch3)(**{f: getattr(sch3, f).reshape(-1, n_years)
-                            for f in ("annual_worth", "capital_recovery", "operating",
-                                      "marginal_cost", "present_worth")})
-    else:
-        sch = annual_worth_schedule(price, st["S"], C, rate)
-    aw = sch.annual_worth
-    n = aw.shape[1]
-    year_row = np.arange(1, n + 1, dtype=float)
-    rounded = np.where(mask, np.round(aw, 2), -np.inf)
-    esl = np.argmax(rounded, axis=1) + 1
-    at_esl = aw[np.arange(aw.shape[0]), esl - 1]
-    at_esl_r = np.round(at_esl, 2)
+    periods = np.arange(1, n + 1, dtype=float)
+    study_rate = rate[first]
+    _check_rates(study_rate)
+    study_of = np.repeat(np.arange(n_studies), counts)
+    starts = first.tolist() + [m]
+    aw = np.empty((m, n))
+    cr_all = np.empty((m, n)) if full else None
+    op_all = np.empty((m, n)) if full else None
+    esl = np.empty(m, dtype=np.intp)
+    at_esl = np.empty(m)
+    best_rows = np.empty(n_studies, dtype=np.intp)
+    target = np.empty(n_studies)
+    rv = np.empty(n_studies)
+    planned = np.empty(n_studies, dtype=np.intp)
+    mc_next = np.empty(n_studies)
+    replace = np.empty(n_studies, dtype=bool)
     k_max = int(counts.max()) - 1
-    ch_rows = first[:, None] + 1 + np.arange(k_max)[None, :]
-    ch_valid = np.arange(k_max)[None, :] < (counts - 1)[:, None]
-    ch_rows = np.where(ch_valid, ch_rows, first[:, None])
-    ch_score = np.where(ch_valid, at_esl_r[ch_rows], -np.inf)
-    best_rows = ch_rows[np.arange(n_studies), np.argmax(ch_score, axis=1)]
-    target = at_esl[best_rows]                                   # AW_c* of each study
-    d_aw = aw[first]
-    d_mask = mask[first]
-    d_rate = rate[first]
-    cap = ap(d_rate[:, None], year_row)
-    rv = np.where(d_mask, (d_aw + price[first, None] * cap - target[:, None]) / cap,
-                  -np.inf).max(axis=1)
-    annuity = pa(d_rate[:, None], year_row)
-    keep_vals = np.where(d_mask, np.round(d_aw * annuity - target[:, None] * annuity, 2),
-                         -np.inf)
-    planned = np.where(keep_vals.max(axis=1) > 0.0, np.argmax(keep_vals, axis=1) + 1, 0)
-    return {"schedule": sch, "C": C, "esl": esl, "at_esl": at_esl, "best_rows": best_rows,
-            "target": target, "rv": rv, "planned": planned, "mc_next": -d_aw[:, 0],
-            "replace": np.round(target, 2) > np.round(at_esl[first], 2),
-            "neg_s": np.any(mask & (st["S"] < 0), axis=1).tolist(),
-            "neg_c": np.any(mask & (C < 0), axis=1).tolist()}
+    ch_offset = 1 + np.arange(k_max)
+    for s0 in range(0, n_studies, BLOCK_STUDIES):
+        s1 = min(s0 + BLOCK_STUDIES, n_studies)
+        r0, r1 = starts[s0], starts[s1]
+        rows = slice(r0, r1)
+        disc, annuity, cap, sink = _factor_tables(study_rate[s0:s1], periods)
+        sid = study_of[rows] - s0
+        cap_r = cap[sid]
+        cr = np.multiply(price[rows, None], cap_r)  # CR_k = P(A/P,i,k) - S_k(A/F,i,k)
+        work = np.multiply(S[rows], sink[sid])
+        np.subtract(cr, work, out=cr)
+        c = np.add(Op[rows], X[rows])              # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
+        np.multiply(c, disc[sid], out=work)
+        np.cumsum(work, axis=1, out=work)
+        np.negative(work, out=work)
+        np.multiply(work, cap_r, out=work)
+        aw_b = aw[rows]                             # AW_k = -CR_k + OP_k
+        np.negative(cr, out=aw_b)
+        np.add(aw_b, work, out=aw_b)
+        if full:
+            cr_all[rows] = cr
+            op_all[rows] = work
+        # ESL: round(AW, 2) with np.round's own steps (x 100, rint, / 100), in place.
+        np.multiply(aw_b, 100.0, out=c)
+        np.rint(c, out=c)
+        c /= 100.0
+        mask_b = mask[rows]
+        np.copyto(c, -np.inf, where=~mask_b)
+        esl_b = np.argmax(c, axis=1)
+        at_b = aw_b[np.arange(r1 - r0), esl_b]
+        esl[rows] = esl_b + 1
+        at_esl[rows] = at_b
+        at_r = np.round(at_b, 2)
+        # Best challenger of each study: the highest rounded AW* (first on ties).
+        d_rows = first[s0:s1] - r0
+        ch_valid = np.arange(k_max)[None, :] < (counts[s0:s1] - 1)[:, None]
+        ch_rows = np.where(ch_valid, d_rows[:, None] + ch_offset, d_rows[:, None])
+        ch_score = np.where(ch_valid, at_r[ch_rows], -np.inf)
+        best = ch_rows[np.arange(s1 - s0), np.argmax(ch_score, axis=1)]
+        best_rows[s0:s1] = best + r0
+        tgt = at_b[best]                            # AW_c* of each study
+        target[s0:s1] = tgt
+        d_aw = aw_b[d_rows]
+        d_mask = mask_b[d_rows]
+        rv[s0:s1] = np.where(d_mask, (d_aw + price[r0 + d_rows, None] * cap - tgt[:, None]) / cap,
+                             -np.inf).max(axis=1)
+        keep_vals = np.where(d_mask, np.round(d_aw * annuity - tgt[:, None] * annuity, 2),
+                             -np.inf)
+        planned[s0:s1] = np.where(keep_vals.max(axis=1) > 0.0, np.argmax(keep_vals, axis=1) + 1,
+                                  0)
+        mc_next[s0:s1] = -d_aw[:, 0]
+        replace[s0:s1] = np.round(tgt, 2) > at_r[d_rows]
+    out = {"annual_worth": aw, "esl": esl, "at_esl": at_esl, "best_rows": best_rows,
+           "target": target, "rv": rv, "planned": planned, "mc_next": mc_next,
+           "replace": replace}
+    if full:
+        out["capital_recovery"], out["operating"] = cr_all, op_all
+    return out
 
 
 def _run_plain(studies: Sequence[Study], with_json: bool = False
                ) -> tuple[list[StudyResult], list[dict[str, Any]] | None]:
     st = stack(studies)
-    core = compute(st)
+    core = compute(st, full=True)
     price, rate, life, first = st["price"], st["rate"], st["life"], st["first"]
-    sch, esl, at_esl, best_rows = core["schedule"], core["esl"], core["at_esl"], core["best_rows"]
+    esl, at_esl, best_rows = core["esl"], core["at_esl"], core["best_rows"]
     rv, planned, mc_next = core["rv"], core["planned"], core["mc_next"]
-    neg_s, neg_c = core["neg_s"], core["neg_c"]
-    aw = sch.annual_worth
+    aw, cr, operating = core["annual_worth"], core["capital_recovery"], core["operating"]
+    C = st["O"] + st["X"]
+    mc = _marginal_cost(price, st["S"], C, rate)
+    mask = st["mask"]
+    neg_s = np.any(mask & (st["S"] < 0), axis=1).tolist()
+    neg_c = np.any(mask & (C < 0), axis=1).tolist()
     n_cols = aw.shape[1]
     # Python lists: indexing numpy scalars one by one costs more than the numpy pass itself.
     esl_l, at_l, best_l = esl.tolist(), at_esl.tolist(), best_rows.tolist()
@@ -244,8 +331,8 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
         # Round every list of every alternative in one pass (results._list on the whole
         # stack), then cut each alternative's cells: the values AlternativeResult.to_json gives.
         flat = {key: _list(matrix) for key, matrix in (
-            ("annual_worth", aw), ("capital_recovery", sch.capital_recovery),
-            ("operating_annual_worth", sch.operating), ("marginal_cost", sch.marginal_cost),
+            ("annual_worth", aw), ("capital_recovery", cr),
+            ("operating_annual_worth", operating), ("marginal_cost", mc),
             ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", st["X"]))}
     out: list[StudyResult] = []
     docs: list[dict[str, Any]] = []
@@ -279,8 +366,8 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
                     name=alt.name, role=alt.role, price=price_l[r], max_life=k,
                     market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
                     extra_costs=st["X"][r, :k], annual_worth=aw[r, :k],
-                    capital_recovery=sch.capital_recovery[r, :k], operating=sch.operating[r, :k],
-                    marginal_cost=sch.marginal_cost[r, :k], economic_life=esl_d[alt.name],
+                    capital_recovery=cr[r, :k], operating=operating[r, :k],
+                    marginal_cost=mc[r, :k], economic_life=esl_d[alt.name],
                     annual_worth_at_economic_life=at_d[alt.name], rank=rank[alt.name]))
         result = StudyResult(study=study, rate=rate_l[start], alternatives=tuple(results),
                              recommendation=rec, before_tax_recommendation=rec,
