@@ -116,8 +116,10 @@ class LineBinding:
             self.show(study)
             return
         if self.owner.commit(new, f"Change {self.label}", self.merge):
-            self.edit.setStyleSheet("")
-            self.edit.setToolTip("")
+            if self.edit.styleSheet():  # clearing an empty style sheet still re-polishes
+                self.edit.setStyleSheet("")
+            if self.edit.toolTip():
+                self.edit.setToolTip("")
         else:
             self.refuse(None)
 
@@ -243,9 +245,11 @@ class StudySettings(_StudyView):
         with QSignalBlocker(self.period_mode), QSignalBlocker(self.period_years):
             self.period_mode.setCurrentIndex(0 if study.study_period is None else 1)
             longest = study.defender.max_life + max(c.max_life for c in study.challengers)
-            self.period_years.setMaximum(max(longest, 1))
-            self.period_years.setValue(study.study_period or
-                                       max(c.max_life for c in study.challengers))
+            if self.period_years.maximum() != max(longest, 1):
+                self.period_years.setMaximum(max(longest, 1))
+            period = study.study_period or max(c.max_life for c in study.challengers)
+            if self.period_years.value() != period:
+                self.period_years.setValue(period)
             self.period_years.setEnabled(study.study_period is not None)
         with QSignalBlocker(self.tax_mode):
             self.tax_mode.setCurrentIndex(0 if study.tax is None else 1)
@@ -257,7 +261,9 @@ class StudySettings(_StudyView):
                 (1 if study.inflation.estimates == "constant" else 2))
         self.infl_rate.setEnabled(study.inflation is not None)
         with QSignalBlocker(self.year_spin):
-            self.year_spin.setValue(year if year is not None else self.year_spin.minimum())
+            value = year if year is not None else self.year_spin.minimum()
+            if self.year_spin.value() != value:
+                self.year_spin.setValue(value)
 
     # -- handlers
     def _period_changed(self) -> None:
@@ -338,6 +344,9 @@ class YearTableModel(QAbstractTableModel):
             return
         if not same_shape:
             self.beginResetModel()
+        else:
+            old = (self.s, self.c, self.x, self.labels, self.generated(MARKET),
+                   self.generated(OPERATING))
         self.alt = alt
         if alt is not None:
             self.s = alt.market_value_array()
@@ -349,7 +358,15 @@ class YearTableModel(QAbstractTableModel):
                     k = e.year - 1
                     self.labels[k] = e.label if not self.labels[k] else f"{self.labels[k]}; {e.label}"
         if same_shape:  # keep the selection and the current cell: only the values changed
-            self.dataChanged.emit(self.index(0, 0), self.index(self.rowCount() - 1, 4))
+            # Announce only the cells that changed (a price edit moves the market values
+            # alone): the view then repaints and re-reads those, not the whole table.
+            for col, new_col, old_col in ((MARKET, self.s, old[0]), (OPERATING, self.c, old[1]),
+                                          (EXTRA, self.x, old[2]), (LABEL, self.labels, old[3])):
+                rows = [r for r in range(len(new_col)) if new_col[r] != old_col[r]]
+                if rows:
+                    self.dataChanged.emit(self.index(rows[0], col), self.index(rows[-1], col))
+            if self.generated(MARKET) != old[4] or self.generated(OPERATING) != old[5]:
+                self.dataChanged.emit(self.index(0, MARKET), self.index(self.rowCount() - 1, OPERATING))
         else:
             self.endResetModel()
 

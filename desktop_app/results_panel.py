@@ -255,9 +255,10 @@ class ResultsPanel(QWidget):
     def _set_badge(self, text: str, key: str) -> None:
         bg, fg = BADGE_COLOURS[key]
         self.badge.setText(text)
-        self.badge.setStyleSheet(
-            f"background: {bg}; color: {fg}; font-size: 15pt; font-weight: bold; "
-            f"padding: 6px 14px; border-radius: 6px;")
+        style = (f"background: {bg}; color: {fg}; font-size: 15pt; font-weight: bold; "
+                 f"padding: 6px 14px; border-radius: 6px;")
+        if self.badge.styleSheet() != style:  # a new style sheet re-polishes the widget
+            self.badge.setStyleSheet(style)
 
     def _render(self) -> None:
         r = self._result
@@ -341,21 +342,29 @@ class ResultsPanel(QWidget):
         else:
             order = list(r.ranking)
             rank = {a.name: a.rank for a in r.alternatives}
-        self.table.setRowCount(len(order))
+        if self.table.rowCount() != len(order):
+            self.table.setRowCount(len(order))
         right = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
         for row, alt in enumerate(order):
             esl, aw = figures[alt.name]
             cells = (str(rank[alt.name]), alt.name, alt.role, years_text(esl),
                      self._money(aw), self._money(-aw))
+            bold = rank[alt.name] == 1
             for col, text in enumerate(cells):
-                item = QTableWidgetItem(text)
-                if col in (0, 3, 4, 5):
-                    item.setTextAlignment(right)
-                if rank[alt.name] == 1:
+                # Cells are updated in place (and only when they change): a new item per
+                # cell on every edit made the table re-lay itself out and repaint whole.
+                item = self.table.item(row, col)
+                if item is None:
+                    item = QTableWidgetItem(text)
+                    if col in (0, 3, 4, 5):
+                        item.setTextAlignment(right)
+                    self.table.setItem(row, col, item)
+                elif item.text() != text:
+                    item.setText(text)
+                if item.font().bold() != bold:
                     font = item.font()
-                    font.setBold(True)
+                    font.setBold(bold)
                     item.setFont(font)
-                self.table.setItem(row, col, item)
         height = self.table.horizontalHeader().height() + 2 * self.table.frameWidth()
         height += sum(self.table.rowHeight(i) for i in range(self.table.rowCount()))
         self.table.setFixedHeight(height + 2)
