@@ -32,6 +32,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from html import escape
+from math import floor
 from pathlib import Path
 from typing import Any
 
@@ -136,22 +137,36 @@ class _FastGridAxis(pg.AxisItem):
             super().drawPicture(p, axisSpec, tickSpecs, textSpecs)
             return
         from_device, _ok = to_device.inverted()
+        sx, sy, dx, dy = to_device.m11(), to_device.m22(), to_device.dx(), to_device.dy()
         lines = []
-        p.save()
-        p.setRenderHint(p.RenderHint.Antialiasing, False)
+        cells: dict[int, tuple[QColor, list[QRectF]]] = {}
+        thin_pens: dict[int, bool] = {}
         for spec in tickSpecs:
             pen, p1, p2 = spec
-            thin = (pen.style() == Qt.PenStyle.SolidLine and pen.isCosmetic()
+            thin = thin_pens.get(id(pen))
+            if thin is None:
+                thin = thin_pens[id(pen)] = (
+                    pen.style() == Qt.PenStyle.SolidLine and pen.isCosmetic()
                     and pen.widthF() <= 1.0 and pen.brush().style() == Qt.BrushStyle.SolidPattern)
-            if thin and (p1.x() == p2.x() or p1.y() == p2.y()):
-                a, b = to_device.map(QPointF(p1)), to_device.map(QPointF(p2))
-                x0, x1 = sorted((int(np.floor(a.x())), int(np.floor(b.x()))))
-                y0, y1 = sorted((int(np.floor(a.y())), int(np.floor(b.y()))))
-                cell = QRectF(QPointF(x0, y0), QPointF(x1 + 1, y1 + 1))
-                p.fillRect(from_device.mapRect(cell), pen.color())
+            x1, y1, x2, y2 = p1.x(), p1.y(), p2.x(), p2.y()
+            if thin and (x1 == x2 or y1 == y2):
+                # The device pixels the line covers: the pixel row (or column) holding it.
+                c0, c1 = sorted((floor(sx * x1 + dx), floor(sx * x2 + dx)))
+                r0, r1 = sorted((floor(sy * y1 + dy), floor(sy * y2 + dy)))
+                color = pen.color()
+                cells.setdefault(color.rgba(), (color, []))[1].append(
+                    QRectF(c0, r0, c1 - c0 + 1, r1 - r0 + 1))
             else:
                 lines.append(spec)
-        p.restore()
+        if cells:
+            p.save()
+            p.setWorldTransform(from_device, True)  # the rectangles are in device pixels
+            p.setRenderHint(p.RenderHint.Antialiasing, False)
+            p.setPen(Qt.PenStyle.NoPen)
+            for color, rects in cells.values():
+                p.setBrush(color)
+                p.drawRects(rects)
+            p.restore()
         super().drawPicture(p, axisSpec, lines, textSpecs)
 
 
@@ -306,7 +321,15 @@ class _Plot(pg.PlotWidget):
         axis = self.getPlotItem().getAxis("left")
         metrics = QFontMetrics(axis.style.get("tickFont") or QFont())
         text_width = metrics.horizontalAdvance(format_money(-top * 1.25))
-        axis.setWidth(text_width + 36)
+        if axis.fixedWidth != text_width + 36:  # setWidth throws the axis picture away
+            axis.setWidth(text_width + 36)
+
+    def show_axes(self) -> None:
+        """Show both axes (showing a shown axis would make pyqtgraph redraw its picture)."""
+        item = self.getPlotItem()
+        for name in ("left", "bottom"):
+            if not item.getAxis(name).isVisible():
+                item.showAxis(name)
 
     def hide_labels(self, start: int = 0) -> None:
         for t in self.labels[start:]:
@@ -800,8 +823,7 @@ class ChartPanel(QWidget):
     def _finish(self, key: str) -> None:
         plot = self.plots[key]
         plot.legend.commit()
-        plot.getPlotItem().showAxis("left")
-        plot.getPlotItem().showAxis("bottom")
+        plot.show_axes()
         values = [y for _x, y in self._series[key].values()]
         item = plot.getPlotItem()
         item.enableAutoRange()
