@@ -826,7 +826,7 @@ class ChartPanel(QWidget):
         plot.show_axes()
         values = [y for _x, y in self._series[key].values()]
         item = plot.getPlotItem()
-        item.enableAutoRange()
+        y_range = x_range = None
         if key in ("aw", "parts"):
             # Room for the ESL labels: below the curves for EAC, above them for signed AW.
             finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
@@ -838,10 +838,20 @@ class ChartPanel(QWidget):
                     hi += 0.12 * span
                 else:
                     lo -= 0.12 * span
-                item.setYRange(lo, hi, padding=0.04)
+                y_range = (lo, hi)
         if key == "marginal" and "Defender marginal cost" in self._series[key]:
             n = len(self._series[key]["Defender marginal cost"][0])
-            item.setXRange(0.4, n + 0.6, padding=0.0)
+            x_range = (0.4, n + 0.6)
+        # Auto-range only the axes not fixed here: enabling both and then fixing one made
+        # pyqtgraph compute and apply a throw-away range first (every curve re-plotted twice).
+        if x_range is None:
+            item.enableAutoRange(axis="x")
+        if y_range is None:
+            item.enableAutoRange(axis="y")
+        if y_range is not None:
+            item.setYRange(*y_range, padding=0.04)
+        if x_range is not None:
+            item.setXRange(*x_range, padding=0.0)
         plot.fit_left_axis(*values)
 
     # Views ------------------------------------------------------------------
