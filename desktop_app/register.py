@@ -7,7 +7,7 @@ QSortFilterProxyModel for the filter box and column sorting.
 
 from __future__ import annotations
 
-from PySide6.QtCore import QSortFilterProxyModel, Qt, Signal
+from PySide6.QtCore import QSortFilterProxyModel, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QColor, QStandardItem, QStandardItemModel
 from PySide6.QtWidgets import (
     QAbstractItemView,
@@ -51,6 +51,7 @@ class RegisterPane(QWidget):
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.doc: Document | None = None
+        self._deferred: set[str] = set()
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         self.filter_edit = QLineEdit()
@@ -96,7 +97,21 @@ class RegisterPane(QWidget):
     def _on_doc_event(self, event: str, key: str | None) -> None:
         if event == "assets":
             self.rebuild()
+        elif event == "study" and key is not None and self.doc is not None \
+                and self.doc.cached_result(key) is None:
+            # The window usually computes the new result at once ("result" follows in the
+            # same call): showing "…" in between changed the row twice per edit, each
+            # change re-running the sort and filter.  Show "…" on the next turn of the
+            # event loop instead, if the result has not arrived by then.
+            if not self._deferred:
+                QTimer.singleShot(0, self._update_deferred)
+            self._deferred.add(key)
         elif key is not None:
+            self.update_row(key)
+
+    def _update_deferred(self) -> None:
+        keys, self._deferred = self._deferred, set()
+        for key in keys:
             self.update_row(key)
 
     def rebuild(self) -> None:
@@ -119,7 +134,7 @@ class RegisterPane(QWidget):
                     it.setData("", SORT_ROLE)
                 self.model.appendRow(row)
                 sites[entry.site] = site
-            items = [QStandardItem(entry.name), QStandardItem(), QStandardItem()]
+            items = [QStandardItem(), QStandardItem(), QStandardItem()]  # filled by update_row
             for it in items:
                 it.setData(entry.key, KEY_ROLE)
             site.appendRow(items)
@@ -142,22 +157,27 @@ class RegisterPane(QWidget):
         if name.text() == entry.name and rec.text() == state.recommendation and \
                 est.text() == state.estimates:
             return  # nothing changed: leave the model (and the view) alone
-        name.setText(entry.name)
-        name.setData(entry.name.lower(), SORT_ROLE)
-        name.setToolTip(f"{entry.site}: {entry.name}")
-        rec.setText(state.recommendation)
-        rec.setData(state.sort_key, SORT_ROLE)
-        colour = STATE_COLOURS.get(state.recommendation,
-                                   "#a05a00" if state.recommendation.startswith("replace in")
-                                   else "#333333")
-        rec.setForeground(QBrush(QColor(colour)))
-        est.setText(state.estimates)
-        est.setData((state.out_of_date, state.estimates), SORT_ROLE)
-        est.setForeground(QBrush(QColor("#b03a2e" if state.out_of_date else "#333333")))
-        est.setToolTip("The study year is older than this year: restudy with fresh estimates."
-                       if state.out_of_date else ("No study year recorded (study files carry "
-                                                  "none; workbooks do)." if state.estimates == "—"
-                                                  else "Estimates are this year's."))
+        # Each item is touched only if its own text changed: every setText/setData is a
+        # dataChanged the sorting proxy acts on (a price edit changes the state alone).
+        if name.text() != entry.name:
+            name.setText(entry.name)
+            name.setData(entry.name.lower(), SORT_ROLE)
+            name.setToolTip(f"{entry.site}: {entry.name}")
+        if rec.text() != state.recommendation:
+            rec.setText(state.recommendation)
+            rec.setData(state.sort_key, SORT_ROLE)
+            colour = STATE_COLOURS.get(state.recommendation,
+                                       "#a05a00" if state.recommendation.startswith("replace in")
+                                       else "#333333")
+            rec.setForeground(QBrush(QColor(colour)))
+        if est.text() != state.estimates:
+            est.setText(state.estimates)
+            est.setData((state.out_of_date, state.estimates), SORT_ROLE)
+            est.setForeground(QBrush(QColor("#b03a2e" if state.out_of_date else "#333333")))
+            est.setToolTip("The study year is older than this year: restudy with fresh estimates."
+                           if state.out_of_date else ("No study year recorded (study files carry "
+                                                      "none; workbooks do)." if state.estimates == "—"
+                                                      else "Estimates are this year's."))
 
     def update_all(self) -> None:
         for key in list(self._items):
