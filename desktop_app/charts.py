@@ -257,6 +257,9 @@ class _Plot(pg.PlotWidget):
             axis = item.getAxis(name)
             axis.setPen(pg.mkPen("k"))
             axis.setTextPen(pg.mkPen("k"))
+            # No units, so no SI prefix: without this the hidden top and right axes rebuild
+            # their (empty) label's text document on every range change.
+            axis.enableAutoSIPrefix(False)
         item.showGrid(x=True, y=True, alpha=0.15)
         item.setMenuEnabled(False)
         # An invisible border path ends in "Z", which pyqtgraph's SVG exporter cannot parse.
