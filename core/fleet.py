@@ -53,9 +53,11 @@ def _scatter_index(rows: list[int], life: np.ndarray) -> tuple[np.ndarray, np.nd
 def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study).
 
-    Keys: price, life, rate (M,); S, O (operating C_j), X (extra X_j), mask (M, N) with
+    Keys: price, life, rate (M,); S, O (operating C_j), mask (M, N) with
     mask[m, k-1] = k <= max_life (cells past it hold finite filler: read them through the
-    mask); counts (alternatives per study) and first (defender row).
+    mask); extras, the one-off costs X_j as (rows ascending, columns, amounts) arrays
+    (``extra_matrix`` makes the (M, N) X); counts (alternatives per study) and first
+    (defender row).
     """
     alts = []
     counts_l = []
@@ -74,7 +76,6 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     ages = years_row - 1.0
     S = np.zeros((m, n))
     Op = np.zeros((m, n))
-    X = np.zeros((m, n))
     # Gather explicit values as flat (row, column, value) lists: one numpy scatter each.
     sv_r: list[int] = []
     sv_v: list[float] = []
@@ -123,12 +124,30 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
         Op[grad_r] = np.array(grad_f)[:, None] + ages * np.array(grad_g)[:, None]
     if grow_r:
         Op[grow_r] = np.array(grow_f)[:, None] * np.power(1.0 + np.array(grow_g)[:, None], ages)
-    if x_r:
-        np.add.at(X, (np.array(x_r), np.array(x_c)), np.array(x_v))
+    # X_j stays sparse here (most cells are zero): rows ascending, as the loop found them.
+    extras = (np.array(x_r, dtype=np.intp), np.array(x_c, dtype=np.intp),
+              np.array(x_v, dtype=float))
     mask = years_row[None, :] <= life[:, None]  # cells past max_life hold finite filler
     first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
-    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "X": X, "mask": mask,
+    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "extras": extras,
+            "mask": mask,
             "counts": counts, "first": first}
+
+
+def _add_extras(target: np.ndarray, extras: tuple[np.ndarray, ...], r0: int, r1: int) -> None:
+    """Add the extra costs of rows r0..r1-1 into ``target`` (those rows, from row r0):
+    several in one cell add up in list order, as ``Alternative.extra_cost_array`` does."""
+    x_r, x_c, x_v = extras
+    a, b = np.searchsorted(x_r, (r0, r1))
+    if b > a:
+        np.add.at(target, (x_r[a:b] - r0, x_c[a:b]), x_v[a:b])
+
+
+def extra_matrix(st: dict[str, np.ndarray]) -> np.ndarray:
+    """The (M, N) extra costs X of a ``stack`` result (zero where there are none)."""
+    X = np.zeros(st["S"].shape)
+    _add_extras(X, st["extras"], 0, len(X))
+    return X
 
 
 def _warnings(study: Study, S: np.ndarray, rows: range, neg_s: np.ndarray,
@@ -228,7 +247,7 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
     """
     price, rate, mask = st["price"], st["rate"], st["mask"]
     first, counts = st["first"], st["counts"]
-    S, Op, X = st["S"], st["O"], st["X"]
+    S, Op, extras = st["S"], st["O"], st["extras"]
     m, n = S.shape
     n_studies = len(first)
     periods = np.arange(1, n + 1, dtype=float)
@@ -259,7 +278,9 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
         cr = np.multiply(price[rows, None], cap_r)  # CR_k = P(A/P,i,k) - S_k(A/F,i,k)
         work = np.multiply(S[rows], sink[sid])
         np.subtract(cr, work, out=cr)
-        c = np.add(Op[rows], X[rows])              # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
+        c = np.zeros((r1 - r0, n))                 # C_j + X_j of the block's rows
+        _add_extras(c, extras, r0, r1)
+        np.add(Op[rows], c, out=c)                 # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
         np.multiply(c, disc[sid], out=work)
         np.cumsum(work, axis=1, out=work)
         np.negative(work, out=work)
@@ -316,7 +337,8 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
     esl, at_esl, best_rows = core["esl"], core["at_esl"], core["best_rows"]
     rv, planned, mc_next = core["rv"], core["planned"], core["mc_next"]
     aw, cr, operating = core["annual_worth"], core["capital_recovery"], core["operating"]
-    C = st["O"] + st["X"]
+    X = extra_matrix(st)
+    C = st["O"] + X
     mc = _marginal_cost(price, st["S"], C, rate)
     mask = st["mask"]
     neg_s = np.any(mask & (st["S"] < 0), axis=1).tolist()
@@ -333,7 +355,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
         flat = {key: _list(matrix) for key, matrix in (
             ("annual_worth", aw), ("capital_recovery", cr),
             ("operating_annual_worth", operating), ("marginal_cost", mc),
-            ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", st["X"]))}
+            ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", X))}
     out: list[StudyResult] = []
     docs: list[dict[str, Any]] = []
     for s_i, study in enumerate(studies):
@@ -365,7 +387,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
                 results.append(AlternativeResult(
                     name=alt.name, role=alt.role, price=price_l[r], max_life=k,
                     market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
-                    extra_costs=st["X"][r, :k], annual_worth=aw[r, :k],
+                    extra_costs=X[r, :k], annual_worth=aw[r, :k],
                     capital_recovery=cr[r, :k], operating=operating[r, :k],
                     marginal_cost=mc[r, :k], economic_life=esl_d[alt.name],
                     annual_worth_at_economic_life=at_d[alt.name], rank=rank[alt.name]))
