@@ -91,6 +91,35 @@ def after_tax_annual_worth(price: ArrayLike, market_values: ArrayLike, costs: Ar
     ([-4750.0], [5000.0])
     """
     P = np.asarray(price, dtype=float)
+    B0 = np.asarray(book_value_0, dtype=float)
+    t = np.asarray(tax_rate, dtype=float)
+    i = np.asarray(rate, dtype=float)
+    n = np.shape(market_values)[-1]
+    years = np.arange(1, n + 1, dtype=float)
+    initial = P - t * (P - B0) if defender else P + 0.0 * (t + B0)
+    pw_running, tail, book, disposal = _after_tax_parts(
+        market_values, costs, allowance, book_value_0, tax_rate, rate, disposal_fraction,
+        full=True)
+    pw = -initial[..., None] + pw_running + tail
+    aw = pw * ap(i[..., None], years)
+    return AfterTaxSchedule(present_worth=pw, annual_worth=aw, book_value=book,
+                            disposal=disposal, initial=initial)
+
+
+def _after_tax_parts(market_values: ArrayLike, costs: ArrayLike, allowance: ArrayLike,
+                     book_value_0: ArrayLike, tax_rate: ArrayLike, rate: ArrayLike,
+                     disposal_fraction: ArrayLike, full: bool = False) -> tuple[FloatArray, ...]:
+    """The terms of after-tax PW_k that do not depend on the year-0 outlay.
+
+    PW_k = -initial + running_k + tail_k (see ``after_tax_annual_worth``), with
+    running_k = sum_{j<=k} [-(1-t)c_j + t D_j](P/F,i,j) and tail_k the after-tax
+    disposal at k discounted.  Returns (running, tail), and with ``full`` also the
+    book values and disposal proceeds.
+
+    >>> running, tail = _after_tax_parts([6000.0], [1000.0], [5000.0], 10000.0, 0.25, 0.10, 1.0)
+    >>> round(float(-10000.0 + running[0] + tail[0]), 2)
+    -4318.18
+    """
     S = np.asarray(market_values, dtype=float)
     C = np.asarray(costs, dtype=float)
     D = np.asarray(allowance, dtype=float)
@@ -102,15 +131,12 @@ def after_tax_annual_worth(price: ArrayLike, market_values: ArrayLike, costs: Ar
     years = np.arange(1, n + 1, dtype=float)
     t_col = t[..., None]
     v = pf(i[..., None], years)
-    initial = P - t * (P - B0) if defender else P + 0.0 * (t + B0)
     flows = -(1.0 - t_col) * C + t_col * D
     pw_running = np.cumsum(flows * v, axis=-1)
     book = B0[..., None] - np.cumsum(D, axis=-1) + (1.0 - h) * D
     disposal = S - t_col * (S - book)
-    pw = -initial[..., None] + pw_running + (disposal - t_col * (1.0 - h) * D) * v
-    aw = pw * ap(i[..., None], years)
-    return AfterTaxSchedule(present_worth=pw, annual_worth=aw, book_value=book,
-                            disposal=disposal, initial=initial)
+    tail = (disposal - t_col * (1.0 - h) * D) * v
+    return (pw_running, tail, book, disposal) if full else (pw_running, tail)
 
 
 @dataclass(frozen=True)
@@ -418,12 +444,19 @@ def analyse(study: Study, result: StudyResult) -> StudyResult:
     d_in = built[d_alt.name][1]
     k = np.arange(1, d_alt.max_life + 1)
 
+    # The replacement-value search asks for the defender's best AW at many trial market
+    # values; only the year-0 term depends on it, so the rest of after_tax_annual_worth
+    # is computed once (same operations in the same order: the same numbers).
+    sc = d_in["sched"]
+    running, tail = _after_tax_parts(d_in["S"], d_in["C"], sc.allowance, sc.book_value_0, t,
+                                     discount, sc.disposal_fraction)
+    ap_k = ap(decision, k)
+    b0, t_arr = np.asarray(sc.book_value_0, dtype=float), np.asarray(t, dtype=float)
+
     def defender_best(mv: float) -> float:
-        sc = d_in["sched"]
-        s = after_tax_annual_worth(mv, d_in["S"], d_in["C"], sc.allowance, sc.book_value_0, t,
-                                   discount, disposal_fraction=sc.disposal_fraction,
-                                   defender=True)
-        return float(np.max(s.present_worth * ap(decision, k)))
+        p = np.asarray(mv, dtype=float)
+        initial = p - t_arr * (p - b0)
+        return float(np.max((-initial[..., None] + running + tail) * ap_k))
 
     def rv(target: float) -> float | None:
         return solve_replacement_value(defender_best, target, float(d_alt.price))
