@@ -5,9 +5,10 @@
 and the no-study-period decisions of every plain before-tax study in a handful of numpy
 calls over padded arrays:
 
-    alternatives stacked to shape (M, N), N = the longest max_life, a mask k <= max_life;
-    AW and CR on the whole stack with ``annual_worth_schedule``'s steps (factor tables once
-    per study; MC only for the result objects);
+    alternatives stacked to shape (M, N), N = the longest max_life, a mask k <= max_life
+    (``stack`` reads the estimates; ``compute`` writes S, C and AW a block of studies at a
+    time, with ``annual_worth_schedule``'s floating-point steps; factor tables once per
+    study; MC and the full S, O, X only for the result objects);
     ESL_m = first argmax of round(AW_m, 2) over the valid k (ties to the shorter life);
     RV = max_k [AW_D,k + P_D (A/P,i,k) - AW_c*] / (A/P,i,k)
 
@@ -41,23 +42,64 @@ def _plain(study: Study) -> bool:
     return study.tax is None and study.inflation is None and study.uncertainty is None
 
 
-def _scatter_index(rows: list[int], life: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(row, column) indices of the first life[r] cells of each listed row, row by row."""
-    r = np.array(rows)
+def _explicit(rows: list[int], values: list[float], life: np.ndarray,
+              n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Flat (index r*n + j, value) arrays of the first life[r] values of each listed row."""
+    r = np.array(rows, dtype=np.intp)
     k = life[r]
-    starts = np.cumsum(k) - k
-    cols = np.arange(int(k.sum())) - np.repeat(starts, k)
-    return np.repeat(r, k), cols
+    where = np.repeat(r * n - (np.cumsum(k) - k), k)  # a running count plus a row offset
+    where += np.arange(where.size)
+    return where, np.fromiter(values, dtype=float, count=where.size)
+
+
+def _put(target: np.ndarray, explicit: tuple[np.ndarray, np.ndarray], r0: int, r1: int) -> None:
+    """Write the explicit values of rows r0..r1-1 into ``target`` (those rows, from row r0)."""
+    where, values = explicit
+    n = target.shape[1]
+    a, b = np.searchsorted(where, (r0 * n, r1 * n))
+    if b > a:
+        target.ravel()[where[a:b] - r0 * n] = values[a:b]
+
+
+def fill_rows(st: dict[str, Any], r0: int, r1: int) -> tuple[np.ndarray, np.ndarray]:
+    """S (market values) and O (operating costs) of rows r0..r1-1 of a ``stack`` result.
+
+    The steps of ``MarketValues.array`` and ``OperatingCosts.array``, row by row bit for
+    bit: S_k = P (1 - d)^k, C_j = first + (j-1) G, C_j = first (1 + g)^(j-1), or the
+    explicit values; each formula is written straight into its rows (``where=``).
+    """
+    n = st["mask"].shape[1]
+    rows = slice(r0, r1)
+    years_row = np.arange(1, n + 1, dtype=float)
+    ages = years_row - 1.0
+    S = np.zeros((r1 - r0, n))
+    Op = np.zeros((r1 - r0, n))
+    on = st["s_decline"][rows, None]
+    if on.any():
+        np.power(np.subtract(1.0, st["s_d"][rows, None]), years_row, out=S, where=on)
+        np.multiply(st["price"][rows, None], S, out=S, where=on)
+    _put(S, st["s_values"], r0, r1)
+    on = st["o_gradient"][rows, None]
+    if on.any():
+        np.multiply(ages, st["o_gg"][rows, None], out=Op, where=on)
+        np.add(st["o_gf"][rows, None], Op, out=Op, where=on)
+    on = st["o_growth"][rows, None]
+    if on.any():
+        np.power(np.add(1.0, st["o_wg"][rows, None]), ages, out=Op, where=on)
+        np.multiply(st["o_wf"][rows, None], Op, out=Op, where=on)
+    _put(Op, st["o_values"], r0, r1)
+    return S, Op
 
 
 def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     """Padded (M, N) arrays of every alternative of ``studies`` (defender first per study).
 
-    Keys: price, life, rate (M,); S, O (operating C_j), mask (M, N) with
-    mask[m, k-1] = k <= max_life (cells past it hold finite filler: read them through the
-    mask); extras, the one-off costs X_j as (rows ascending, columns, amounts) arrays
-    (``extra_matrix`` makes the (M, N) X); counts (alternatives per study) and first
-    (defender row).
+    Keys: price, life, rate (M,); mask (M, N) with mask[m, k-1] = k <= max_life; counts
+    (alternatives per study) and first (defender row).  The market values S and operating
+    costs O are kept as what ``fill_rows`` needs to write any run of rows (per-row formula
+    parameters, explicit values as flat (index r*N + j, value) arrays), and the one-off
+    costs X_j as (rows ascending, columns, amounts) arrays: ``matrices(st)`` gives the
+    (M, N) S, O and X (cells past max_life hold finite filler: read them through the mask).
     """
     alts = []
     counts_l = []
@@ -73,9 +115,6 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     counts = np.array(counts_l)
     rate = np.repeat(np.array([s.marr for s in studies], dtype=float), counts)
     years_row = np.arange(1, n + 1, dtype=float)
-    ages = years_row - 1.0
-    S = np.zeros((m, n))
-    Op = np.zeros((m, n))
     # Gather explicit values as flat (row, column, value) lists: one numpy scatter each.
     sv_r: list[int] = []
     sv_v: list[float] = []
@@ -114,24 +153,27 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
                     x_r.append(r)
                     x_c.append(extra.year - 1)
                     x_v.append(extra.amount)
-    if sv_r:
-        S[_scatter_index(sv_r, life)] = sv_v
-    if dec_r:
-        S[dec_r] = price[dec_r, None] * np.power(1.0 - np.array(dec_d)[:, None], years_row)
-    if ov_r:
-        Op[_scatter_index(ov_r, life)] = ov_v
-    if grad_r:
-        Op[grad_r] = np.array(grad_f)[:, None] + ages * np.array(grad_g)[:, None]
-    if grow_r:
-        Op[grow_r] = np.array(grow_f)[:, None] * np.power(1.0 + np.array(grow_g)[:, None], ages)
+    # S and O stay as per-row formula parameters plus flat explicit values: ``fill_rows``
+    # writes any run of rows (compute() a block at a time, in cache).
+    params = {"s_values": _explicit(sv_r, sv_v, life, n),
+              "o_values": _explicit(ov_r, ov_v, life, n)}
+    for key, rows, cols in (("s_decline", dec_r, (("s_d", dec_d),)),
+                            ("o_gradient", grad_r, (("o_gf", grad_f), ("o_gg", grad_g))),
+                            ("o_growth", grow_r, (("o_wf", grow_f), ("o_wg", grow_g)))):
+        on = np.zeros(m, dtype=bool)
+        on[rows] = True
+        params[key] = on
+        for name, values in cols:
+            col = np.zeros(m)
+            col[rows] = values
+            params[name] = col
     # X_j stays sparse here (most cells are zero): rows ascending, as the loop found them.
     extras = (np.array(x_r, dtype=np.intp), np.array(x_c, dtype=np.intp),
               np.array(x_v, dtype=float))
     mask = years_row[None, :] <= life[:, None]  # cells past max_life hold finite filler
     first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
-    return {"price": price, "life": life, "rate": rate, "S": S, "O": Op, "extras": extras,
-            "mask": mask,
-            "counts": counts, "first": first}
+    return {"price": price, "life": life, "rate": rate, "extras": extras, "mask": mask,
+            "counts": counts, "first": first, **params}
 
 
 def _add_extras(target: np.ndarray, extras: tuple[np.ndarray, ...], r0: int, r1: int) -> None:
@@ -143,11 +185,13 @@ def _add_extras(target: np.ndarray, extras: tuple[np.ndarray, ...], r0: int, r1:
         np.add.at(target, (x_r[a:b] - r0, x_c[a:b]), x_v[a:b])
 
 
-def extra_matrix(st: dict[str, np.ndarray]) -> np.ndarray:
-    """The (M, N) extra costs X of a ``stack`` result (zero where there are none)."""
-    X = np.zeros(st["S"].shape)
-    _add_extras(X, st["extras"], 0, len(X))
-    return X
+def matrices(st: dict[str, Any]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The (M, N) S, O and X (extra costs, zero where there are none) of a ``stack`` result."""
+    m = len(st["price"])
+    S, Op = fill_rows(st, 0, m)
+    X = np.zeros(S.shape)
+    _add_extras(X, st["extras"], 0, m)
+    return S, Op, X
 
 
 def _warnings(study: Study, S: np.ndarray, rows: range, neg_s: np.ndarray,
@@ -189,7 +233,8 @@ def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
                           check)
 
 
-#: Studies per block in ``compute``: the block's temporaries stay near 300 kB, so they are
+#: Studies per block in ``compute``: the block's S, C and temporaries stay near 300 kB each,
+#: so they are
 #: reused from the allocator's free lists and stay in cache, instead of being fresh
 #: (page-faulting) multi-megabyte arrays over the whole fleet.
 BLOCK_STUDIES = 500
@@ -247,8 +292,8 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
     """
     price, rate, mask = st["price"], st["rate"], st["mask"]
     first, counts = st["first"], st["counts"]
-    S, Op, extras = st["S"], st["O"], st["extras"]
-    m, n = S.shape
+    extras = st["extras"]
+    m, n = mask.shape
     n_studies = len(first)
     periods = np.arange(1, n + 1, dtype=float)
     study_rate = rate[first]
@@ -276,11 +321,12 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
         sid = study_of[rows] - s0
         cap_r = cap[sid]
         cr = np.multiply(price[rows, None], cap_r)  # CR_k = P(A/P,i,k) - S_k(A/F,i,k)
-        work = np.multiply(S[rows], sink[sid])
+        S, Op = fill_rows(st, r0, r1)
+        work = np.multiply(S, sink[sid])
         np.subtract(cr, work, out=cr)
         c = np.zeros((r1 - r0, n))                 # C_j + X_j of the block's rows
         _add_extras(c, extras, r0, r1)
-        np.add(Op[rows], c, out=c)                 # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
+        np.add(Op, c, out=c)                       # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
         np.multiply(c, disc[sid], out=work)
         np.cumsum(work, axis=1, out=work)
         np.negative(work, out=work)
@@ -337,11 +383,11 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
     esl, at_esl, best_rows = core["esl"], core["at_esl"], core["best_rows"]
     rv, planned, mc_next = core["rv"], core["planned"], core["mc_next"]
     aw, cr, operating = core["annual_worth"], core["capital_recovery"], core["operating"]
-    X = extra_matrix(st)
-    C = st["O"] + X
-    mc = _marginal_cost(price, st["S"], C, rate)
+    S, Op, X = matrices(st)
+    C = Op + X
+    mc = _marginal_cost(price, S, C, rate)
     mask = st["mask"]
-    neg_s = np.any(mask & (st["S"] < 0), axis=1).tolist()
+    neg_s = np.any(mask & (S < 0), axis=1).tolist()
     neg_c = np.any(mask & (C < 0), axis=1).tolist()
     n_cols = aw.shape[1]
     # Python lists: indexing numpy scalars one by one costs more than the numpy pass itself.
@@ -355,7 +401,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
         flat = {key: _list(matrix) for key, matrix in (
             ("annual_worth", aw), ("capital_recovery", cr),
             ("operating_annual_worth", operating), ("marginal_cost", mc),
-            ("market_values", st["S"]), ("operating_costs", st["O"]), ("extra_costs", X))}
+            ("market_values", S), ("operating_costs", Op), ("extra_costs", X))}
     out: list[StudyResult] = []
     docs: list[dict[str, Any]] = []
     for s_i, study in enumerate(studies):
@@ -386,7 +432,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
                 k = alt.max_life
                 results.append(AlternativeResult(
                     name=alt.name, role=alt.role, price=price_l[r], max_life=k,
-                    market_values=st["S"][r, :k], operating_costs=st["O"][r, :k],
+                    market_values=S[r, :k], operating_costs=Op[r, :k],
                     extra_costs=X[r, :k], annual_worth=aw[r, :k],
                     capital_recovery=cr[r, :k], operating=operating[r, :k],
                     marginal_cost=mc[r, :k], economic_life=esl_d[alt.name],
@@ -394,7 +440,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
         result = StudyResult(study=study, rate=rate_l[start], alternatives=tuple(results),
                              recommendation=rec, before_tax_recommendation=rec,
                              study_period_options=tuple(options),
-                             warnings=tuple(_warnings(study, st["S"], rows, neg_s, neg_c)),
+                             warnings=tuple(_warnings(study, S, rows, neg_s, neg_c)),
                              fingerprint=fingerprint(study))
         if not with_json:
             out.append(result)
