@@ -104,7 +104,7 @@ class RegisterPane(QWidget):
             # change re-running the sort and filter.  Show "…" on the next turn of the
             # event loop instead, if the result has not arrived by then.
             if not self._deferred:
-                QTimer.singleShot(0, self._update_deferred)
+                QTimer.singleShot(0, self, self._update_deferred)  # dropped if the pane goes
             self._deferred.add(key)
         elif key is not None:
             self.update_row(key)
