@@ -74,7 +74,8 @@ def make_icon(path: Path, size: int = 128) -> Path:
 
 
 def render(out_dir: Path) -> list[Path]:
-    _setup()
+    state = _setup()
+    from core.demo import build_demo
     from desktop_app.app import build_window, create_app
 
     app = create_app(["tenure-screenshots"])
@@ -82,7 +83,8 @@ def render(out_dir: Path) -> list[Path]:
     icon = ROOT / "resources" / "icons" / "tenure.png"
     if not icon.exists():
         make_icon(icon)
-    window = build_window(None)
+    # A fresh demo, not the user's own copy (which may hold their edits or an older demo).
+    window = build_window(str(build_demo(state / "Harrowgate demo fleet.tenure")))
     window.resize(1800, 1000)
     window.show()
     _settle(app, window)
