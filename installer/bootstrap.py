@@ -36,7 +36,7 @@ def _wanted_stamp() -> str:
 
 def ensure_environment() -> Path:
     """Create the virtual environment and install Tenure with its test extra."""
-    if sys.version_info < (3, 11):
+    if sys.version_info < (3, 11):  # noqa: UP036 (this script runs on whatever python3 is)
         sys.exit("error: python: Tenure needs Python 3.11 or newer")
     python = _venv_python()
     if not python.exists():
