@@ -30,9 +30,14 @@ from typing import Any
 import numpy as np
 
 from core.estimates import Study
-from core.results import AlternativeResult, Recommendation, StudyResult, _list, _r
-from core.study import CENT, decide, money, run_study, years
+from core.results import AlternativeResult, StudyResult, _list, _r
+from core.study import CENT, decide, no_period_recommendation, run_study
 from core.studyfile import fingerprint
+
+#: Studies per block in ``compute``: the block's S, C and temporaries stay near 300 kB each,
+#: so they are reused from the allocator's free lists and stay in cache, instead of being
+#: fresh (page-faulting) multi-megabyte arrays over the whole fleet.
+BLOCK_STUDIES = 500
 
 #: Fleets at least this large are split over two processes where fork() is available.
 PARALLEL_MIN = 1000
@@ -210,34 +215,6 @@ def _warnings(study: Study, S: np.ndarray, rows: range, neg_s: np.ndarray,
     if study.marr < 0:
         notes.append("MARR is negative.")
     return notes
-
-
-def _no_period_recommendation(study: Study, best: str, esl: dict[str, int],
-                              aw_at_esl: dict[str, float], rv: float, planned: int,
-                              check: dict) -> Recommendation:
-    """The sentence ``core.study.decide`` writes when there is no study period (kept equal by tests)."""
-    d_name = study.defender.name
-    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
-    if round(c_aw, 2) > round(d_best, 2):
-        reason = (f"Replace {d_name} now with {best}: its equivalent annual cost of "
-                  f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
-                  f"{money(c_aw - d_best)} a year less than the defender's best, "
-                  f"{money(-d_best)} over {years(esl[d_name])}.")
-        return Recommendation("replace", best, None, rv, "before-tax", reason, best, 0, check)
-    reason = (f"Keep {d_name}: its equivalent annual cost of {money(-d_best)} over "
-              f"its best remaining life of {years(esl[d_name])} is "
-              f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
-              f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
-              f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
-    return Recommendation("keep", None, None, rv, "before-tax", reason, best, max(planned, 1),
-                          check)
-
-
-#: Studies per block in ``compute``: the block's S, C and temporaries stay near 300 kB each,
-#: so they are
-#: reused from the allocator's free lists and stay in cache, instead of being fresh
-#: (page-faulting) multi-megabyte arrays over the whole fleet.
-BLOCK_STUDIES = 500
 
 
 def _check_rates(rate: np.ndarray) -> None:
@@ -418,7 +395,7 @@ def _run_plain(studies: Sequence[Study], with_json: bool = False
                  "challenger_annual_cost": -c_aw,
                  "keep_next_year": mc_l[s_i] < -c_aw - CENT}
         if study.study_period is None:
-            rec = _no_period_recommendation(study, best, esl_d, at_d, rv_i, planned_l[s_i], check)
+            rec = no_period_recommendation(study, best, esl_d, at_d, rv_i, planned_l[s_i], check)
             options: list = []
         else:
             aw_map = {nm: aw[r, :life[r]] for nm, r in zip(names, rows, strict=True)}

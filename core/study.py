@@ -114,6 +114,28 @@ def _best_challenger(study: Study, aw_at_esl: Mapping[str, float]) -> str:
     return best
 
 
+def no_period_recommendation(study: Study, best: str, esl: Mapping[str, int],
+                             aw_at_esl: Mapping[str, float], rv: float | None, planned: int,
+                             check: dict, basis: Basis = "before-tax") -> Recommendation:
+    """Keep or replace without a study period: the best challenger at its ESL against the
+    defender at its ESL (replace only when better by more than a cent), with its sentence."""
+    d_name = study.defender.name
+    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
+    tag = " (after tax)" if basis == "after-tax" else ""
+    if round(c_aw, 2) > round(d_best, 2):
+        reason = (f"Replace {d_name} now with {best}: its equivalent annual cost{tag} of "
+                  f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
+                  f"{money(c_aw - d_best)} a year less than the defender's best, "
+                  f"{money(-d_best)} over {years(esl[d_name])}.")
+        return Recommendation("replace", best, None, rv, basis, reason, best, 0, check)
+    reason = (f"Keep {d_name}: its equivalent annual cost{tag} of {money(-d_best)} over "
+              f"its best remaining life of {years(esl[d_name])} is "
+              f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
+              f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
+              f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
+    return Recommendation("keep", None, None, rv, basis, reason, best, max(planned, 1), check)
+
+
 def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis,
            replacement_value: Callable[[float], float | None] | None = None,
            ) -> tuple[Recommendation, list[StudyOption], dict[str, int]]:
@@ -134,7 +156,6 @@ def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis
     d_name = defender.name
     best = _best_challenger(study, aw_at_esl)
     c_aw = aw_at_esl[best]
-    d_best = aw_at_esl[d_name]
     rv = replacement_value(c_aw) if replacement_value is not None else None
 
     values = keep_values(aw[d_name], c_aw, rate)
@@ -147,21 +168,7 @@ def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis
     options: list[StudyOption] = []
     period = study.study_period
     if period is None:
-        replace = round(c_aw, 2) > round(d_best, 2)
-        if replace:
-            reason = (f"Replace {d_name} now with {best}: its equivalent annual cost{tag} of "
-                      f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
-                      f"{money(c_aw - d_best)} a year less than the defender's best, "
-                      f"{money(-d_best)} over {years(esl[d_name])}.")
-            rec = Recommendation("replace", best, None, rv, basis, reason, best, 0, check)
-        else:
-            planned = max(planned, 1)
-            reason = (f"Keep {d_name}: its equivalent annual cost{tag} of {money(-d_best)} over "
-                      f"its best remaining life of {years(esl[d_name])} is "
-                      f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
-                      f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
-                      f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
-            rec = Recommendation("keep", None, None, rv, basis, reason, best, planned, check)
+        rec = no_period_recommendation(study, best, esl, aw_at_esl, rv, planned, check, basis)
         return rec, options, esl
 
     options = study_period_options(study, aw, rate, period)
