@@ -24,8 +24,8 @@ from __future__ import annotations
 import json
 import os
 import sys
-from collections.abc import Sequence
-from typing import Any
+from collections.abc import Callable, Sequence
+from typing import Any, TypeVar
 
 import numpy as np
 
@@ -514,33 +514,51 @@ def fleet_json_text(studies: Sequence[Study], processes: int | None = None) -> s
         return ",\n".join(_dumps(d) for d in run_fleet_json(studies))
     half = (len(studies) + 1) // 2
     head, tail = studies[:half], studies[half:]
+
+    def child() -> bytes:
+        return ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8")
+
+    first, data = _split_work(child, lambda: ",\n".join(_dumps(d) for d in run_fleet_json(head)))
+    second = data.decode("utf-8") if data is not None else child().decode("utf-8")
+    return first + ",\n" + second
+
+
+T = TypeVar("T")
+
+
+def _split_work(child: Callable[[], bytes], parent: Callable[[], T]) -> tuple[T, bytes | None]:
+    """Run ``child`` in a forked process while this one runs ``parent``.
+
+    Returns the parent's result and the child's bytes, or None when the child failed (the
+    caller then does that half itself). The child leaves with ``os._exit``, running no
+    cleanup of the parent's state; if the parent's half raises, the child is killed.
+    """
     read_end, write_end = os.pipe()
     pid = os.fork()
-    if pid == 0:  # child: compute the tail, send "1" + text, leave without any cleanup
+    if pid == 0:
         status = 1
         try:
             os.close(read_end)
-            data = b"1" + ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8")
-            view = memoryview(data)
+            view = memoryview(b"1" + child())
             while view:
                 view = view[os.write(write_end, view):]
             status = 0
-        except BaseException:  # noqa: BLE001  (the parent recomputes this half)
+        except BaseException:  # noqa: BLE001  (the parent redoes this half)
             pass
         finally:
             os._exit(status)
     os.close(write_end)
+    data = b""
     try:
-        first = ",\n".join(_dumps(d) for d in run_fleet_json(head))
+        result = parent()
         with os.fdopen(read_end, "rb") as pipe:
             data = pipe.read()
+    except BaseException:
+        os.kill(pid, 9)
+        raise
     finally:
         _, status = os.waitpid(pid, 0)
-    if status == 0 and data[:1] == b"1":
-        second = data[1:].decode("utf-8")
-    else:
-        second = ",\n".join(_dumps(d) for d in run_fleet_json(tail))
-    return first + ",\n" + second
+    return result, (data[1:] if status == 0 and data[:1] == b"1" else None)
 
 
 def _parse_items(items: list[Any], start: int) -> list[Study]:
@@ -584,43 +602,24 @@ def study_file_json_text(path: str | os.PathLike[str]) -> str | None:
         return None
     items = obj["studies"]
     half = (len(items) + 1) // 2
-    read_end, write_end = os.pipe()
-    pid = os.fork()
-    if pid == 0:  # child: parse and run the tail; send E+error, or 1+titles NUL text
-        status = 1
+
+    def child() -> bytes:  # parse and run the tail: E+error, or titles NUL text
         try:
-            os.close(read_end)
-            try:
-                tail = _parse_items(items[half:], half)
-            except StudyError as exc:
-                data = b"E" + json.dumps([exc.path, exc.message]).encode("utf-8")
-            else:
-                data = (b"1" + json.dumps([s.title for s in tail]).encode("utf-8") + b"\0"
-                        + ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8"))
-            view = memoryview(data)
-            while view:
-                view = view[os.write(write_end, view):]
-            status = 0
-        except BaseException:  # noqa: BLE001  (the parent redoes this half)
-            pass
-        finally:
-            os._exit(status)
-    os.close(write_end)
-    data = b""
-    try:
+            tail = _parse_items(items[half:], half)
+        except StudyError as exc:
+            return b"E" + json.dumps([exc.path, exc.message]).encode("utf-8")
+        return (b"1" + json.dumps([s.title for s in tail]).encode("utf-8") + b"\0"
+                + ",\n".join(_dumps(d) for d in run_fleet_json(tail)).encode("utf-8"))
+
+    def parent() -> tuple[list[Study], str]:
         head = _parse_items(items[:half], 0)
-        first = ",\n".join(_dumps(d) for d in run_fleet_json(head))
-        with os.fdopen(read_end, "rb") as pipe:
-            data = pipe.read()
-    except BaseException:
-        os.kill(pid, 9)
-        raise
-    finally:
-        _, status = os.waitpid(pid, 0)
-    if status == 0 and data[:1] == b"E":
+        return head, ",\n".join(_dumps(d) for d in run_fleet_json(head))
+
+    (head, first), data = _split_work(child, parent)
+    if data is not None and data[:1] == b"E":
         where, message = json.loads(data[1:].decode("utf-8"))
         raise StudyError(where, message)
-    if status == 0 and data[:1] == b"1":
+    if data is not None and data[:1] == b"1":
         titles_raw, _, text = data[1:].partition(b"\0")
         tail_titles = json.loads(titles_raw.decode("utf-8"))
         second = text.decode("utf-8")
