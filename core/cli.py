@@ -116,7 +116,20 @@ def cmd_export(args: argparse.Namespace) -> int:
     return 0
 
 
+def _no_screen() -> bool:
+    """True on Linux/BSD when Qt has nowhere to draw (it would abort the process)."""
+    import os
+
+    if sys.platform.startswith(("win", "darwin")) or os.environ.get("QT_QPA_PLATFORM"):
+        return False
+    return not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
+
+
 def cmd_window(args: argparse.Namespace) -> int:
+    if _no_screen():
+        raise StudyError("tenure", "no screen to open the window on (neither DISPLAY nor "
+                         "WAYLAND_DISPLAY is set); use 'tenure study FILE' here, or set "
+                         "QT_QPA_PLATFORM=offscreen")
     try:
         app = importlib.import_module("desktop_app.app")
     except ImportError as exc:

@@ -76,3 +76,17 @@ def test_study_without_challenger_built_in_code_is_a_user_error() -> None:
     body = {k: v for k, v in STUDY.items() if k not in ("format", "version")}
     with pytest.raises(StudyError, match="at least one challenger"):
         run_study(dataclasses.replace(parse_study(body), challengers=()))
+
+
+def test_window_without_a_screen_is_a_clear_error(monkeypatch, capsys) -> None:
+    import sys
+
+    import pytest
+
+    if sys.platform.startswith(("win", "darwin")):
+        pytest.skip("always has a screen")
+    for name in ("QT_QPA_PLATFORM", "DISPLAY", "WAYLAND_DISPLAY"):
+        monkeypatch.delenv(name, raising=False)
+    assert main([]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("error: tenure: no screen")
