@@ -26,8 +26,8 @@ class _Parser(argparse.ArgumentParser):
         raise StudyError(self.prog, message)
 
 
-def load_studies(path: str | Path) -> list[Study]:
-    """Studies from a study JSON file or a workbook (the current year of each asset)."""
+def load_studies(path: str | Path, year: int | None = None) -> list[Study]:
+    """Studies from a study JSON file or a workbook (each asset's current year, or ``year``)."""
     file = Path(path)
     if not file.exists():
         raise StudyError(str(file), "no such file")
@@ -43,7 +43,15 @@ def load_studies(path: str | Path) -> list[Study]:
             workbook = importlib.import_module("core.workbook")
         except ImportError:
             raise StudyError(str(file), "workbooks are not supported by this build") from None
-        return workbook.studies_from_workbook(file)
+        if year is None:
+            return workbook.studies_from_workbook(file)
+        with workbook.Workbook.open(file, write=False) as wb:
+            studies = [wb.study(a.tag, year) for a in wb.assets() if year in wb.years(a.tag)]
+        if not studies:
+            raise StudyError("--year", f"{file.name} holds no study of {year}")
+        return studies
+    if year is not None:
+        raise StudyError("--year", "applies to workbooks only (a study file has no years)")
     from core.studyfile import load_study_file
 
     return load_study_file(file)
@@ -61,11 +69,12 @@ def _select(studies: list[Study], title: str | None) -> list[Study]:
 
 def cmd_study(args: argparse.Namespace) -> int:
     text = None
-    if args.json and args.study is None:  # a large fleet file: parsed and run in two processes
+    if args.json and args.study is None and args.year is None:
+        # a large fleet file: parsed and run in two processes
         from core.fleet import study_file_json_text
 
         text = study_file_json_text(args.file)
-    studies = _select(load_studies(args.file), args.study) if text is None else []
+    studies = _select(load_studies(args.file, args.year), args.study) if text is None else []
     if text is not None or (args.json and len(studies) > 1):
         # A fleet: one vectorised pass (core.fleet, same results as run_study), written
         # compact, one study per line (the indenting encoder is pure Python, ~5x slower).
@@ -107,7 +116,7 @@ def cmd_export(args: argparse.Namespace) -> int:
         raise StudyError("--table", f"must be one of {', '.join(TABLES)}")
     from core.study import run_study
 
-    results = [run_study(s) for s in _select(load_studies(args.file), args.study)]
+    results = [run_study(s) for s in _select(load_studies(args.file, args.year), args.study)]
     if suffix == ".xlsx":
         export_xlsx(results, out)
     else:
@@ -158,6 +167,9 @@ def build_parser() -> argparse.ArgumentParser:
                        help="print one JSON object {\"studies\": [...]} instead of tables")
     study.add_argument("--study", metavar="TITLE", default=None,
                        help="only the study with this title")
+    study.add_argument("--year", type=int, default=None, metavar="YEAR",
+                       help="for a workbook: the studies of this year (e.g. last year's), "
+                            "recomputed, instead of each asset's current one")
     study.set_defaults(func=cmd_study)
     export = sub.add_parser(
         "export", help="write a study's results and tables to CSV or XLSX",
@@ -172,6 +184,8 @@ def build_parser() -> argparse.ArgumentParser:
                              "study_period_options or warnings")
     export.add_argument("--study", metavar="TITLE", default=None,
                         help="only the study with this title")
+    export.add_argument("--year", type=int, default=None, metavar="YEAR",
+                        help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
     for module in ("core.memo.cli", "core.demo"):
         try:

@@ -90,3 +90,19 @@ def test_window_without_a_screen_is_a_clear_error(monkeypatch, capsys) -> None:
     assert main([]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("error: tenure: no screen")
+
+
+def test_last_years_studies_stay_readable(tmp_path: Path, capsys) -> None:
+    from core.demo import build_demo
+    from core.workbook import Workbook
+
+    book = build_demo(tmp_path / "demo.tenure")
+    with Workbook.open(book) as wb:
+        earlier = sorted({y for a in wb.assets() for y in wb.years(a.tag)[:-1]})
+    assert earlier, "the demo carries a year of history"
+    year = earlier[-1]
+    assert main(["study", str(book), "--year", str(year), "--json"]) == 0
+    studies = json.loads(capsys.readouterr().out)["studies"]
+    assert studies and all(s["recommendation"]["action"] in ("keep", "replace") for s in studies)
+    assert main(["study", str(book), "--year", "1900"]) == 2
+    assert capsys.readouterr().err.startswith("error: --year: ")
