@@ -272,6 +272,11 @@ class MainWindow(QMainWindow):
         self.history_action = self._action("&Import cost history…", self.import_history,
                                            tip="Fit estimates from recorded costs (workbooks)")
         a.addAction(self.history_action)
+        self.study_years_action = self._action("Study &years…", self.show_study_years,
+                                               tip="This asset's earlier studies and how "
+                                                   "the decision changed (read only)")
+        self.study_years_action.setEnabled(False)
+        a.addAction(self.study_years_action)
         a.addSeparator()
         a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
 
@@ -517,6 +522,8 @@ class MainWindow(QMainWindow):
         study = entry.study if entry else None
         self.editor.set_study(study, entry.study_year if entry else None)
         self.start_study_action.setEnabled(entry is not None)
+        self.study_years_action.setEnabled(entry is not None and self.doc.kind == "workbook"
+                                           and self.doc.path is not None)
         self.show_result()
 
     def show_result(self) -> None:
@@ -749,6 +756,15 @@ class MainWindow(QMainWindow):
         with contextlib.suppress(AttributeError, RuntimeError):
             tag = dialog.fitted_tag()
         self.apply_fitted_estimates(tag or self.current_key, costs, values)
+
+    def show_study_years(self) -> None:
+        """The read-only "Study years" dialog for the selected workbook asset."""
+        if self.doc.kind != "workbook" or self.doc.path is None or self.current_key is None:
+            self.report("Study years: open a workbook and select an asset first")
+            return
+        from desktop_app.study_years import StudyYearsDialog
+
+        StudyYearsDialog(self.doc.path, self.current_key, self).exec()
 
     def apply_fitted_estimates(self, key: str | None, costs, values) -> bool:
         if key is None or (costs is None and values is None):

@@ -78,3 +78,24 @@ def test_differences_words_challengers():
     before = {"marr": 0.1, "defender": {"name": "D"}, "challengers": [{"name": "A"}]}
     after = {"marr": 0.1, "defender": {"name": "D"}, "challengers": [{"name": "B"}]}
     assert differences(before, after) == ["Challenger removed: A", "Challenger added: B"]
+
+
+def test_window_menu_action(qtbot, demo, monkeypatch, tmp_path):
+    from desktop_app import study_years
+    from desktop_app.main_window import MainWindow
+    from desktop_app.prefs import Preferences
+
+    path, tag, years, _ = demo
+    copy = tmp_path / "w.tenure"
+    copy.write_bytes(path.read_bytes())
+    window = MainWindow(Preferences())
+    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
+    window.open_path(str(copy))
+    assert window.wait_for_jobs()
+    window.select_asset(tag)
+    assert window.study_years_action.isEnabled()
+    opened = []
+    monkeypatch.setattr(study_years.StudyYearsDialog, "exec",
+                        lambda self: opened.append(self.table.rowCount()) or 0)
+    window.study_years_action.trigger()
+    assert opened == [len(years)]
