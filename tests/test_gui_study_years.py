@@ -99,3 +99,21 @@ def test_window_menu_action(qtbot, demo, monkeypatch, tmp_path):
                         lambda self: opened.append(self.table.rowCount()) or 0)
     window.study_years_action.trigger()
     assert opened == [len(years)]
+
+
+def test_year_without_snapshot_is_recomputed(qtbot, demo, tmp_path):
+    from core.study import run_study
+
+    path, tag, years, _ = demo
+    copy = tmp_path / "r.tenure"
+    copy.write_bytes(path.read_bytes())
+    with Workbook.open(copy, write=True) as wb:
+        study = wb.study(tag, years[-1])
+        wb.save_study(tag, years[-1] + 1, study)  # no result snapshot
+    dialog = StudyYearsDialog(copy, tag)
+    qtbot.addWidget(dialog)
+    last = dialog.table.rowCount() - 1
+    assert last == len(years)
+    expected = run_study(study).recommendation.action  # core's own result
+    assert dialog.table.item(last, 1).text() == f"{expected.capitalize()} (recomputed)"
+    assert "No estimate changed" in dialog.differences_for(last)
