@@ -18,7 +18,7 @@ MoneyBasis = Literal["constant", "then-current"]
 DistributionKind = Literal["triangular", "uniform", "normal", "pert", "lognormal"]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class MarketValues:
     """End-of-year market values S_1..S_n: explicit, or S_k = P(1-d)^k from a decline rate d.
 
@@ -36,7 +36,7 @@ class MarketValues:
         return price * np.power(1.0 - rate, np.arange(1, life + 1, dtype=float))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class OperatingCosts:
     """Yearly operating costs C_1..C_n (positive = cost).
 
@@ -65,7 +65,7 @@ class OperatingCosts:
         return first + years * (0.0 if self.gradient is None else self.gradient)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class ExtraCost:
     """A one-off cost (overhaul, retrofit, compliance upgrade) at the end of ``year``."""
 
@@ -74,7 +74,7 @@ class ExtraCost:
     label: str = ""
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Depreciation:
     """Tax depreciation of one asset (used only when the study has ``tax``).
 
@@ -94,7 +94,7 @@ class Depreciation:
     rate: float | None = None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Alternative:
     """The defender (priced at today's market value) or a challenger (at first cost)."""
 
@@ -128,7 +128,7 @@ class Alternative:
         return self.operating_cost_array() + self.extra_cost_array()
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Tax:
     """One effective income-tax rate and the after-tax MARR."""
 
@@ -136,7 +136,7 @@ class Tax:
     after_tax_marr: float
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Inflation:
     """General inflation rate f and the money the estimates are stated in."""
 
@@ -144,7 +144,7 @@ class Inflation:
     estimates: MoneyBasis = "constant"
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Distribution:
     """A probability distribution for one uncertain input (parameters as in DESIGN.md §5)."""
 
@@ -152,7 +152,7 @@ class Distribution:
     params: tuple[float, ...]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Uncertainty:
     """Monte Carlo settings: trial count, seed, and the distribution of each addressed input."""
 
@@ -161,7 +161,7 @@ class Uncertainty:
     inputs: tuple[tuple[str, Distribution], ...]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Study:
     """One replacement study: a defender, one or more challengers, MARR and options."""
 

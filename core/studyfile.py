@@ -9,6 +9,7 @@ all refused.  ``study_to_dict`` gives back the §5 form, so a study round-trips.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import math
@@ -393,9 +394,8 @@ def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) ->
                 raise StudyError(f"{alt_path}.depreciation",
                                  "is required when the study has 'tax'")
     if "uncertainty" in data and data["uncertainty"] is not None:
-        study = Study(**{**study.__dict__,
-                         "uncertainty": _uncertainty(data["uncertainty"], f"{path}.uncertainty",
-                                                     study)})
+        study = dataclasses.replace(
+            study, uncertainty=_uncertainty(data["uncertainty"], f"{path}.uncertainty", study))
     return study
 
 
