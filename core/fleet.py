@@ -24,6 +24,7 @@ from __future__ import annotations
 import json
 import os
 import sys
+from array import array
 from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
 
@@ -47,14 +48,23 @@ def _plain(study: Study) -> bool:
     return study.tax is None and study.inflation is None and study.uncertainty is None
 
 
-def _explicit(rows: list[int], values: list[float], life: np.ndarray,
+def _buffer(values: array, dtype: type) -> np.ndarray:
+    """A numpy view of an ``array.array`` (a copy-free read of what the loop appended)."""
+    return np.frombuffer(values, dtype=dtype) if len(values) else np.zeros(0, dtype=dtype)
+
+
+def _rows(values: array) -> np.ndarray:
+    """An ``array("q")`` of counts or row numbers as numpy indices."""
+    return _buffer(values, np.int64).astype(np.intp, copy=False)
+
+
+def _explicit(rows: np.ndarray, values: np.ndarray, life: np.ndarray,
               n: int) -> tuple[np.ndarray, np.ndarray]:
     """Flat (index r*n + j, value) arrays of the first life[r] values of each listed row."""
-    r = np.array(rows, dtype=np.intp)
-    k = life[r]
-    where = np.repeat(r * n - (np.cumsum(k) - k), k)  # a running count plus a row offset
+    k = life[rows]
+    where = np.repeat(rows * n - (np.cumsum(k) - k), k)  # a running count plus a row offset
     where += np.arange(where.size)
-    return where, np.fromiter(values, dtype=float, count=where.size)
+    return where, values
 
 
 def _put(target: np.ndarray, explicit: tuple[np.ndarray, np.ndarray], r0: int, r1: int) -> None:
@@ -103,91 +113,103 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     (alternatives per study) and first (defender row).  The market values S and operating
     costs O are kept as what ``fill_rows`` needs to write any run of rows (per-row formula
     parameters, explicit values as flat (index r*N + j, value) arrays), and the one-off
-    costs X_j as (rows ascending, columns, amounts) arrays: ``matrices(st)`` gives the
-    (M, N) S, O and X (cells past max_life hold finite filler: read them through the mask).
+    costs X as (flat index r*N + j ascending, amount) arrays, several in one cell summed in
+    list order: ``matrices(st)`` gives the (M, N) S, O and X (cells past max_life hold
+    finite filler: read them through the mask).
+
+    One pass over the estimate objects appends every number to an ``array.array`` (which
+    stores the float itself, not a reference), so the numbers are read from the objects
+    once and reach numpy without a second walk over them.
     """
-    alts = []
-    counts_l = []
+    counts_b, rate_b, price_b, life_b = array("q"), array("d"), array("d"), array("q")
+    sv_r, sv_v, ov_r, ov_v = array("q"), array("d"), array("q"), array("d")
+    x_r, x_c, x_v = array("q"), array("q"), array("d")
+    dec_r, dec_d = array("q"), array("d")
+    grad_r, grad_f, grad_g = array("q"), array("d"), array("d")
+    grow_r, grow_f, grow_g = array("q"), array("d"), array("d")
+    r = 0
     for study in studies:
-        group = study.alternatives
-        alts.extend(group)
-        counts_l.append(len(group))
-    m = len(alts)
-    lives = [a.max_life for a in alts]
-    n = max(lives)
-    price = np.array([a.price for a in alts], dtype=float)
-    life = np.array(lives)
-    counts = np.array(counts_l)
-    rate = np.repeat(np.array([s.marr for s in studies], dtype=float), counts)
-    years_row = np.arange(1, n + 1, dtype=float)
-    # Gather explicit values as flat (row, column, value) lists: one numpy scatter each.
-    sv_r: list[int] = []
-    sv_v: list[float] = []
-    ov_r: list[int] = []
-    ov_v: list[float] = []
-    x_r: list[int] = []
-    x_c: list[int] = []
-    x_v: list[float] = []
-    dec_r, dec_d, grad_r, grad_f, grad_g, grow_r, grow_f, grow_g = ([] for _ in range(8))
-    sv_add, sv_more, ov_add, ov_more = sv_r.append, sv_v.extend, ov_r.append, ov_v.extend
-    for r, a in enumerate(alts):
-        mv = a.market_values
-        values = mv.values
-        if values is not None:
-            sv_add(r)
-            sv_more(values if len(values) == a.max_life else values[:a.max_life])
-        else:
-            dec_r.append(r)
-            dec_d.append(mv.decline_rate or 0.0)
-        oc = a.operating_costs
-        values = oc.values
-        if values is not None:
-            ov_add(r)
-            ov_more(values if len(values) == a.max_life else values[:a.max_life])
-        elif oc.growth is not None:
-            grow_r.append(r)
-            grow_f.append(0.0 if oc.first is None else oc.first)
-            grow_g.append(oc.growth)
-        else:
-            grad_r.append(r)
-            grad_f.append(0.0 if oc.first is None else oc.first)
-            grad_g.append(0.0 if oc.gradient is None else oc.gradient)
-        if a.extra_costs:
-            for extra in a.extra_costs:
-                if 1 <= extra.year <= a.max_life:
-                    x_r.append(r)
-                    x_c.append(extra.year - 1)
-                    x_v.append(extra.amount)
+        challengers = study.challengers
+        counts_b.append(1 + len(challengers))
+        rate_b.append(study.marr)
+        for a in (study.defender, *challengers):
+            k = a.max_life
+            life_b.append(k)
+            price_b.append(a.price)
+            mv = a.market_values
+            values = mv.values
+            if values is not None:
+                sv_r.append(r)
+                sv_v.extend(values if len(values) == k else values[:k])
+            else:
+                dec_r.append(r)
+                dec_d.append(mv.decline_rate or 0.0)
+            oc = a.operating_costs
+            values = oc.values
+            if values is not None:
+                ov_r.append(r)
+                ov_v.extend(values if len(values) == k else values[:k])
+            else:
+                growth = oc.growth
+                if growth is not None:
+                    grow_r.append(r)
+                    grow_f.append(oc.first or 0.0)
+                    grow_g.append(growth)
+                else:
+                    grad_r.append(r)
+                    grad_f.append(oc.first or 0.0)
+                    grad_g.append(oc.gradient or 0.0)
+            extras = a.extra_costs
+            if extras:
+                for extra in extras:
+                    year = extra.year
+                    if 1 <= year <= k:
+                        x_r.append(r)
+                        x_c.append(year - 1)
+                        x_v.append(extra.amount)
+            r += 1
+    m = r
+    life = _rows(life_b)
+    n = int(life.max())
+    counts = _rows(counts_b)
+    rate = np.repeat(_buffer(rate_b, np.float64), counts)
     # S and O stay as per-row formula parameters plus flat explicit values: ``fill_rows``
     # writes any run of rows (compute() a block at a time, in cache).
-    params = {"s_values": _explicit(sv_r, sv_v, life, n),
-              "o_values": _explicit(ov_r, ov_v, life, n)}
-    for key, rows, cols in (("s_decline", dec_r, (("s_d", dec_d),)),
-                            ("o_gradient", grad_r, (("o_gf", grad_f), ("o_gg", grad_g))),
-                            ("o_growth", grow_r, (("o_wf", grow_f), ("o_wg", grow_g)))):
+    params = {"s_values": _explicit(_rows(sv_r), _buffer(sv_v, np.float64), life, n),
+              "o_values": _explicit(_rows(ov_r), _buffer(ov_v, np.float64), life, n)}
+    for key, rows_b, cols in (("s_decline", dec_r, (("s_d", dec_d),)),
+                              ("o_gradient", grad_r, (("o_gf", grad_f), ("o_gg", grad_g))),
+                              ("o_growth", grow_r, (("o_wf", grow_f), ("o_wg", grow_g)))):
+        rows = _rows(rows_b)
         on = np.zeros(m, dtype=bool)
         on[rows] = True
         params[key] = on
-        for name, values in cols:
+        for name, values_b in cols:
             col = np.zeros(m)
-            col[rows] = values
+            col[rows] = _buffer(values_b, np.float64)
             params[name] = col
-    # X_j stays sparse here (most cells are zero): rows ascending, as the loop found them.
-    extras = (np.array(x_r, dtype=np.intp), np.array(x_c, dtype=np.intp),
-              np.array(x_v, dtype=float))
-    mask = years_row[None, :] <= life[:, None]  # cells past max_life hold finite filler
-    first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
-    return {"price": price, "life": life, "rate": rate, "extras": extras, "mask": mask,
-            "counts": counts, "first": first, **params}
+    # X stays sparse (most cells are zero): each cell once, its amounts summed in list order
+    # (0 + x1 + x2 ..., the steps of ``Alternative.extra_cost_array``).
+    cells = _rows(x_r) * n + _rows(x_c)
+    keys, where = np.unique(cells, return_inverse=True)
+    amounts = np.zeros(keys.size)
+    np.add.at(amounts, where, _buffer(x_v, np.float64))
+    mask = np.arange(1, n + 1)[None, :] <= life[:, None]
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.intp)
+    return {"price": _buffer(price_b, np.float64), "life": life, "rate": rate,
+            "extras": (keys, amounts), "mask": mask, "counts": counts, "first": first,
+            **params}
 
 
-def _add_extras(target: np.ndarray, extras: tuple[np.ndarray, ...], r0: int, r1: int) -> None:
-    """Add the extra costs of rows r0..r1-1 into ``target`` (those rows, from row r0):
-    several in one cell add up in list order, as ``Alternative.extra_cost_array`` does."""
-    x_r, x_c, x_v = extras
-    a, b = np.searchsorted(x_r, (r0, r1))
+def _add_extras(target: np.ndarray, extras: tuple[np.ndarray, np.ndarray], r0: int,
+                r1: int) -> None:
+    """Add the extra costs of rows r0..r1-1 into ``target`` (C-contiguous, those rows from
+    row r0): each cell appears once in ``extras``, so a plain indexed add is exact."""
+    keys, amounts = extras
+    n = target.shape[1]
+    a, b = np.searchsorted(keys, (r0 * n, r1 * n))
     if b > a:
-        np.add.at(target, (x_r[a:b] - r0, x_c[a:b]), x_v[a:b])
+        target.ravel()[keys[a:b] - r0 * n] += amounts[a:b]
 
 
 def matrices(st: dict[str, Any]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -275,7 +297,7 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
     periods = np.arange(1, n + 1, dtype=float)
     study_rate = rate[first]
     _check_rates(study_rate)
-    study_of = np.repeat(np.arange(n_studies), counts)
+    pad = ~mask
     starts = first.tolist() + [m]
     aw = np.empty((m, n))
     cr_all = np.empty((m, n)) if full else None
@@ -295,16 +317,15 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
         r0, r1 = starts[s0], starts[s1]
         rows = slice(r0, r1)
         disc, annuity, cap, sink = _factor_tables(study_rate[s0:s1], periods)
-        sid = study_of[rows] - s0
-        cap_r = cap[sid]
+        per_study = counts[s0:s1]
+        cap_r = np.repeat(cap, per_study, axis=0)
         cr = np.multiply(price[rows, None], cap_r)  # CR_k = P(A/P,i,k) - S_k(A/F,i,k)
-        S, Op = fill_rows(st, r0, r1)
-        work = np.multiply(S, sink[sid])
+        S, c = fill_rows(st, r0, r1)
+        work = np.multiply(S, np.repeat(sink, per_study, axis=0))
         np.subtract(cr, work, out=cr)
-        c = np.zeros((r1 - r0, n))                 # C_j + X_j of the block's rows
-        _add_extras(c, extras, r0, r1)
-        np.add(Op, c, out=c)                       # OP_k = -[sum_{j<=k} C_j (P/F,i,j)](A/P,i,k)
-        np.multiply(c, disc[sid], out=work)
+        _add_extras(c, extras, r0, r1)             # C_j + X_j of the block's rows
+        # OP_k = -[sum_{j<=k} (C_j + X_j) (P/F,i,j)](A/P,i,k)
+        np.multiply(c, np.repeat(disc, per_study, axis=0), out=work)
         np.cumsum(work, axis=1, out=work)
         np.negative(work, out=work)
         np.multiply(work, cap_r, out=work)
@@ -315,11 +336,9 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
             cr_all[rows] = cr
             op_all[rows] = work
         # ESL: round(AW, 2) with np.round's own steps (x 100, rint, / 100), in place.
-        np.multiply(aw_b, 100.0, out=c)
-        np.rint(c, out=c)
-        c /= 100.0
+        np.round(aw_b, 2, out=c)
         mask_b = mask[rows]
-        np.copyto(c, -np.inf, where=~mask_b)
+        np.copyto(c, -np.inf, where=pad[rows])
         esl_b = np.argmax(c, axis=1)
         at_b = aw_b[np.arange(r1 - r0), esl_b]
         esl[rows] = esl_b + 1
