@@ -87,6 +87,23 @@ def test_fleet_equals_run_study_on_random_studies() -> None:
         _same(a, b)
 
 
+def test_fleet_sums_extra_costs_in_one_year_as_run_study_does() -> None:
+    # Source: core.study.run_study (reference). Several one-off costs in one year are summed
+    # in list order before the operating cost is added (0.1 + 0.2 + 0.3 depends on the
+    # order in floating point); explicit lists longer than max_life are cut at max_life.
+    d = Alternative("Existing unit", "defender", 1000.1, 3,
+                    MarketValues(values=(700.3, 500.7, 300.1, 99.0, 98.0)),
+                    OperatingCosts(values=(100.3, 110.7, 120.1, 1.0)),
+                    (ExtraCost(2, 0.1), ExtraCost(2, 0.2), ExtraCost(2, 0.3), ExtraCost(3, 1e16),
+                     ExtraCost(3, 1.0), ExtraCost(3, -1e16)))
+    c = Alternative("Challenger", "challenger", 5000.3, 4, MarketValues(decline_rate=0.2),
+                    OperatingCosts(first=50.1, growth=0.07),
+                    (ExtraCost(1, 0.3), ExtraCost(1, 0.2), ExtraCost(1, 0.1)))
+    studies = [Study("Kestrel Road cell", 0.07, d, (c,)), Study("Millbrook cell", 0.0, c, (d,))]
+    for a, b in zip(run_fleet(studies), [run_study(s) for s in studies], strict=True):
+        _same(a, b)
+
+
 def test_fleet_falls_back_for_hooked_studies() -> None:
     # Source: core.study.run_study; a study with inflation goes through run_study itself.
     from core.estimates import Inflation
