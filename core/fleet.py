@@ -270,6 +270,13 @@ def _factor_tables(rate: np.ndarray, periods: np.ndarray) -> tuple[np.ndarray, .
     return disc, annuity, cap, sink
 
 
+def _running_sum(work: np.ndarray) -> None:
+    """``np.cumsum(work, axis=1, out=work)``, the same additions in the same order, one
+    column at a time: a column-wise add over many short rows is about 3x faster."""
+    for j in range(1, work.shape[1]):
+        np.add(work[:, j - 1], work[:, j], out=work[:, j])
+
+
 def _marginal_cost(price: np.ndarray, S: np.ndarray, C: np.ndarray,
                    rate: np.ndarray) -> np.ndarray:
     """MC_j = (S_{j-1} - S_j) + i S_{j-1} + C_j, S_0 = P: ``annual_worth_schedule``'s steps."""
@@ -326,7 +333,7 @@ def compute(st: dict[str, np.ndarray], full: bool = False) -> dict[str, Any]:
         _add_extras(c, extras, r0, r1)             # C_j + X_j of the block's rows
         # OP_k = -[sum_{j<=k} (C_j + X_j) (P/F,i,j)](A/P,i,k)
         np.multiply(c, np.repeat(disc, per_study, axis=0), out=work)
-        np.cumsum(work, axis=1, out=work)
+        _running_sum(work)
         np.negative(work, out=work)
         np.multiply(work, cap_r, out=work)
         aw_b = aw[rows]                             # AW_k = -CR_k + OP_k
