@@ -85,6 +85,8 @@ FIXED_TAG = "(one asset: {tag})"
 TIMING = (("date", "Date column (work-order or quote date)"),
           ("year", "Calendar-year column"),
           ("age", "Year-of-age column (1 = first year in service)"))
+DECIMAL_CHOICES = (("auto", "read from the column"), (".", "point (1,234.50)"),
+                   (",", "comma (1.234,50)"))
 KINDS = (("operating", "operating cost"), ("maintenance", "maintenance cost"),
          ("resale", "resale quote"))
 
@@ -238,6 +240,9 @@ class CostHistoryDialog(QDialog):
         self.dayfirst = QCheckBox("Dates are day first (31/03/2024)")
         self.dayfirst.setChecked(True)
         self.amount_combo = QComboBox()
+        self.decimal_combo = QComboBox()
+        for key, text in DECIMAL_CHOICES:
+            self.decimal_combo.addItem(text, key)
         self.kind_combo = QComboBox()
         self.default_kind = QComboBox()
         for key, text in KINDS:
@@ -245,7 +250,7 @@ class CostHistoryDialog(QDialog):
         self.replace_box = QCheckBox("Replace the workbook's earlier history of these assets "
                                      "(same kinds) when saving")
         for combo in (self.tag_combo, self.timing_combo, self.time_column, self.amount_combo,
-                      self.kind_combo, self.default_kind):
+                      self.decimal_combo, self.kind_combo, self.default_kind):
             combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
             combo.currentIndexChanged.connect(self._mapping_changed)
         self.dayfirst.toggled.connect(self._mapping_changed)
@@ -258,7 +263,12 @@ class CostHistoryDialog(QDialog):
         when.addWidget(self.dayfirst)
         when.addStretch(1)
         form.addRow("When:", when)
-        form.addRow("Amount:", self.amount_combo)
+        amount = QHBoxLayout()
+        amount.addWidget(self.amount_combo)
+        amount.addWidget(QLabel("decimal mark:"))
+        amount.addWidget(self.decimal_combo)
+        amount.addStretch(1)
+        form.addRow("Amount:", amount)
         kind = QHBoxLayout()
         kind.addWidget(self.kind_combo)
         kind.addWidget(QLabel("blank or no column means:"))
@@ -586,7 +596,7 @@ class CostHistoryDialog(QDialog):
     def set_mapping(self, *, amount: str, tag: str | None = None, date: str | None = None,
                     year: str | None = None, age: str | None = None, kind: str | None = None,
                     default_kind: str = "operating", fixed_tag: str | None = None,
-                    dayfirst: bool | None = None) -> None:
+                    dayfirst: bool | None = None, decimal: str | None = None) -> None:
         """Set the column choices as a user would (for tests and scripted use)."""
         self.tag_combo.setCurrentIndex(self.tag_combo.findData(
             f"column:{tag}" if tag is not None else f"fixed:{fixed_tag}"))
@@ -598,6 +608,8 @@ class CostHistoryDialog(QDialog):
         self.default_kind.setCurrentIndex(self.default_kind.findData(default_kind))
         if dayfirst is not None:
             self.dayfirst.setChecked(dayfirst)
+        if decimal is not None:
+            self.decimal_combo.setCurrentIndex(self.decimal_combo.findData(decimal))
 
     def mapping(self) -> ColumnMapping:
         """The :class:`core.history.ColumnMapping` the combo boxes say."""
@@ -613,7 +625,8 @@ class CostHistoryDialog(QDialog):
             age=column if timing == "age" else None,
             kind=self.kind_combo.currentData(),
             default_kind=self.default_kind.currentData(),
-            dayfirst=self.dayfirst.isChecked())
+            dayfirst=self.dayfirst.isChecked(),
+            decimal=self.decimal_combo.currentData() or "auto")
 
     def check(self) -> ImportReport | None:
         """Run the import with the current mapping; list every rejected row. None on error."""
@@ -647,6 +660,8 @@ class CostHistoryDialog(QDialog):
         text = (f"{len(report.accepted)} of {report.rows} rows accepted, "
                 f"{len(report.rejected)} rejected")
         text += f" — assets: {', '.join(tags)}." if tags else "."
+        note = report.decimal_note()
+        text += f" {note[0].upper()}{note[1:]}."
         self.check_summary.setText(text)
         self._set_status(report.summary())
         self._fill_fit_assets(tags)

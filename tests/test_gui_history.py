@@ -270,3 +270,25 @@ def test_second_import_of_the_same_file_asks(qtbot, workbook, tmp_path, warnings
     assert asked and "11 of the 11 rows" in asked[0]
     with Workbook.open(workbook) as wb:
         assert len(wb.history(TAG)) == count  # the duplicates were skipped
+
+
+def test_decimal_comma_file_is_read_and_the_mark_can_be_chosen(qtbot, workbook, tmp_path,
+                                                               warnings):
+    # Common practice, no source: a semicolon CSV with decimal commas (1.234,50).
+    path = tmp_path / "kosten.csv"
+    path.write_text(f"Machine;Closed;Cost\n{TAG};2021-12-01;5.150,50\n"
+                    f"{TAG};2022-12-01;5.650,00\n{TAG};2023-12-01;980\n", encoding="utf-8")
+    dialog = CostHistoryDialog(workbook, TAG)
+    qtbot.addWidget(dialog)
+    dialog.today = dt.date(2026, 12, 2)
+    assert dialog.load_file(path)
+    assert dialog.mapping().decimal == "auto"
+    report = dialog.check()
+    assert report is not None and not warnings
+    assert [r.amount for r in report.accepted] == [5150.5, 5650.0, 980.0]
+    assert "decimal comma" in dialog.check_summary.text()
+    dialog.set_mapping(amount="Cost", tag="Machine", date="Closed", decimal=".")
+    assert dialog.report is None  # a changed mapping asks for Check again
+    report = dialog.check()
+    assert [r.amount for r in report.accepted] == [980.0]
+    assert all("decimal point" in r.reason for r in report.rejected)

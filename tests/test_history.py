@@ -27,6 +27,7 @@ from core.history import (
     geometric_fit,
     import_file,
     import_history,
+    parse_amount,
     read_table,
     yearly_totals,
 )
@@ -258,3 +259,54 @@ def test_fit_refusals() -> None:
         fit_operating_costs([1, 2], [1.0, float("nan")])
     # one quote is enough when the price is known
     assert fit_market_values([2], [64.0], price=100.0).params["decline_rate"] == pytest.approx(0.2)
+
+
+# ---------------------------------------------------------------- decimal marks
+# Common practice, no source: continental European spreadsheets write 1.234,50 (comma
+# decimal, point or space thousands); English ones 1,234.50.
+@pytest.mark.parametrize(("text", "decimal", "value"), [
+    ("1,234.50", ".", 1234.5), ("1 234.50", ".", 1234.5), ("1'234.5", ".", 1234.5),
+    ("(1,200)", ".", -1200.0), ("-£45.10", ".", -45.1), ("0.5", ".", 0.5), (".5", ".", 0.5),
+    ("1.234,50", ",", 1234.5), ("1 234,50", ",", 1234.5), ("12,5", ",", 12.5),
+    ("1.234.567", ",", 1234567.0), ("€ 980,00", ",", 980.0), ("(250,5)", ",", -250.5),
+    ("1\u202f234,5", ",", 1234.5), ("2000", ",", 2000.0), ("2000", ".", 2000.0),
+])
+def test_parse_amount_with_either_decimal_mark(text: str, decimal: str, value: float) -> None:
+    assert parse_amount(text, decimal) == value
+
+
+@pytest.mark.parametrize(("text", "decimal"), [
+    ("1.234,50", "."), ("1,234.50", ","), ("12,5", "."), ("1234.5", ","), ("1,23,456", "."),
+    ("1.2.3", ","), ("12,34", "."), ("", "."), ("1e3", "."),
+])
+def test_parse_amount_refuses_rather_than_misreads(text: str, decimal: str) -> None:
+    with pytest.raises(ValueError):
+        parse_amount(text, decimal)
+
+
+def test_import_detects_a_decimal_comma_column(tmp_path: Path) -> None:
+    p = tmp_path / "kosten.csv"
+    p.write_text("Asset;Date;Amount\nAC-101;2018-05-01;1.234,50\nAC-101;2019-05-01;980\n"
+                 "AC-101;2019-06-01;12,5\nAC-101;2019-07-01;1,234.50\n", encoding="utf-8")
+    report = import_file(p, ColumnMapping(tag="Asset", date="Date", amount="Amount"), IN_SERVICE)
+    assert [r.amount for r in report.accepted] == [1234.5, 980.0, 12.5]
+    assert report.decimal == "," and report.decimal_settled
+    assert [str(r) for r in report.rejected] == [
+        "row 5: amount '1,234.50' is not a number (read with a decimal comma)"]
+    assert "decimal comma" in report.decimal_note()
+
+
+def test_import_with_a_chosen_decimal_mark_and_an_unsettled_column(tmp_path: Path) -> None:
+    p = tmp_path / "costs.csv"
+    p.write_text("Asset,Date,Amount\nAC-101,2018-05-01,\"1,234\"\nAC-101,2019-05-01,\"2,000\"\n",
+                 encoding="utf-8")
+    auto = import_file(p, ColumnMapping(tag="Asset", date="Date", amount="Amount"), IN_SERVICE)
+    assert [r.amount for r in auto.accepted] == [1234.0, 2000.0]
+    assert auto.decimal == "." and not auto.decimal_settled
+    assert "check the amounts" in auto.decimal_note()
+    comma = import_file(p, ColumnMapping(tag="Asset", date="Date", amount="Amount",
+                                         decimal=","), IN_SERVICE)
+    assert [r.amount for r in comma.accepted] == [1.234, 2.0]
+    with pytest.raises(StudyError, match="decimal mark"):
+        import_file(p, ColumnMapping(tag="Asset", date="Date", amount="Amount", decimal=";"),
+                    IN_SERVICE)

@@ -23,9 +23,11 @@ from core.history.fitting import (
     r_squared,
 )
 from core.history.importing import (
+    DECIMAL_MARKS,
     ColumnMapping,
     ImportReport,
     RejectedRow,
+    detect_decimal,
     import_file,
     import_history,
     parse_amount,
@@ -34,7 +36,7 @@ from core.history.importing import (
     yearly_totals,
 )
 
-__all__ = ["ColumnMapping", "ImportReport", "RejectedRow", "TrendFit", "arithmetic_fit",
-           "decline_fit", "fit_market_values", "fit_operating_costs", "geometric_fit",
+__all__ = ["DECIMAL_MARKS", "ColumnMapping", "ImportReport", "RejectedRow", "TrendFit",
+           "arithmetic_fit", "decline_fit", "detect_decimal", "fit_market_values", "fit_operating_costs", "geometric_fit",
            "import_file", "import_history", "parse_amount", "parse_date", "r_squared",
            "read_table", "yearly_totals"]

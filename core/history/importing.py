@@ -47,7 +47,8 @@ class ColumnMapping:
     Give ``tag`` (or a fixed ``default_tag`` for a one-asset sheet), ``amount``,
     and one of ``date`` (work-order or quote date), ``year`` (calendar year) or
     ``age`` (year of age already). ``kind`` is optional: without it every row
-    is ``default_kind``.
+    is ``default_kind``.  ``decimal`` is the amounts' decimal mark: "." (1,234.50),
+    "," (1.234,50) or "auto" (read from the amount column, see :func:`detect_decimal`).
     """
 
     amount: str
@@ -59,6 +60,7 @@ class ColumnMapping:
     default_kind: str = "operating"
     default_tag: str | None = None
     dayfirst: bool = False
+    decimal: str = "auto"
 
     def columns(self) -> list[str]:
         return [c for c in (self.tag, self.date, self.year, self.age, self.amount, self.kind)
@@ -84,6 +86,8 @@ class ImportReport:
     source: str
     accepted: tuple[HistoryRow, ...]
     rejected: tuple[RejectedRow, ...]
+    decimal: str = "."
+    decimal_settled: bool = True
 
     @property
     def rows(self) -> int:
@@ -92,6 +96,15 @@ class ImportReport:
     def summary(self) -> str:
         return (f"{self.source}: {len(self.accepted)} of {self.rows} rows imported, "
                 f"{len(self.rejected)} rejected")
+
+    def decimal_note(self) -> str:
+        """How the amounts were read, e.g. "amounts read with a decimal comma (1.234,50)"."""
+        text = ("a decimal comma (1.234,50)" if self.decimal == ","
+                else "a decimal point (1,234.50)")
+        note = f"amounts read with {text}"
+        if not self.decimal_settled:
+            note += "; no cell settled it, so check the amounts (or choose the decimal mark)"
+        return note
 
     def lines(self) -> list[str]:
         """One line per rejected row, ``<source>: row N: <reason>``."""
@@ -138,33 +151,81 @@ def _blank(v: Any) -> bool:
     return isinstance(v, str) and not v.strip()
 
 
-_MONEY = re.compile(r"^\(?-?[\d.,' \u00a0]+\)?$")
+_CURRENCY = re.compile(r"^[£$€]|^[A-Z]{3}\s*|\s*[A-Z]{3}$|[£$€]$")
+_GROUP = "[ \u00a0\u202f']"  # spaces (also no-break and narrow no-break) and apostrophes
+#: A number with its decimal mark: digits in thousands groups (or none), then decimals.
+_NUMBER = {
+    ".": re.compile(rf"^(\d{{1,3}}((,|{_GROUP})\d{{3}})+|\d+)(\.\d+)?$|^\.\d+$"),
+    ",": re.compile(rf"^(\d{{1,3}}((\.|{_GROUP})\d{{3}})+|\d+)(,\d+)?$|^,\d+$"),
+}
+DECIMAL_MARKS = ("auto", ".", ",")
 
 
-def parse_amount(v: Any) -> float:
-    """A money cell to a number: '1,234.50', '£1 234', '(250)' (negative), 1234.
+def _money_text(v: Any) -> tuple[str, bool]:
+    """A money cell's text without currency signs, and whether it is negative."""
+    s = _CURRENCY.sub("", str(v).strip()).strip()
+    if s.startswith("-") and s[1:2] in "£$€":
+        s = "-" + s[2:]
+    negative = False
+    if s.startswith("(") and s.endswith(")"):
+        s, negative = s[1:-1].strip(), True
+    if s.startswith("-"):
+        s, negative = s[1:].strip(), not negative
+    return s, negative
+
+
+def parse_amount(v: Any, decimal: str = ".") -> float:
+    """A money cell to a number, with ``decimal`` ("." or ",") as the decimal mark.
+
+    Thousands may be grouped with the other mark, spaces or apostrophes, in groups of
+    three; anything else (such as '1.234,50' read with a decimal point) is refused
+    rather than misread.  Brackets mean negative.
 
     >>> parse_amount("£1,234.50"), parse_amount("(250)"), parse_amount(12)
     (1234.5, -250.0, 12.0)
+    >>> parse_amount("1.234,50 EUR", decimal=","), parse_amount("12 500,5", decimal=",")
+    (1234.5, 12500.5)
     """
+    if decimal not in _NUMBER:
+        raise ValueError(f"decimal mark must be '.' or ',', not {decimal!r}")
     if isinstance(v, bool):
         raise ValueError("not a number")
     if isinstance(v, (int, float, np.integer, np.floating)):
         x = float(v)
     else:
-        s = str(v).strip()
-        s = re.sub(r"^[£$€]|^[A-Z]{3}\s*|\s*[A-Z]{3}$|[£$€]$", "", s).strip()
-        if s.startswith("-") and s[1:2] in "£$€":
-            s = "-" + s[2:]
-        if not _MONEY.match(s) or not re.search(r"\d", s):
+        s, negative = _money_text(v)
+        if not _NUMBER[decimal].match(s):
             raise ValueError("not a number")
-        negative = s.startswith("(") and s.endswith(")")
-        s = s.strip("()").replace(",", "").replace(" ", "").replace("\u00a0", "").replace("'", "")
-        x = float(s)
+        whole, _, frac = s.rpartition(decimal) if decimal in s else (s, "", "")
+        digits = re.sub(r"\D", "", whole)
+        x = float(f"{digits or '0'}.{frac or '0'}")
         x = -x if negative else x
     if not math.isfinite(x):
         raise ValueError("not a finite number")
     return x
+
+
+def detect_decimal(values: Any) -> tuple[str, bool]:
+    """The decimal mark of a column of money cells, and whether the cells settle it.
+
+    A cell settles it when only one reading fits: '1.234,50' or '12,5' (comma), '1,234.50'
+    or '12.5' (point), '1.234.567' (comma: points group thousands).  Cells such as '1,234'
+    fit both; a column of only those reads the point as the decimal mark (the usual
+    spreadsheet default) and says it was not settled.  Numeric cells carry no mark.
+
+    >>> detect_decimal(["1.234,50", "980"]), detect_decimal(["1,234", "2,000"])
+    ((',', True), ('.', False))
+    """
+    votes = {".": 0, ",": 0}
+    for v in values:
+        if isinstance(v, str) and v.strip():
+            s, _ = _money_text(v)
+            fits = [m for m in (".", ",") if _NUMBER[m].match(s)]
+            if len(fits) == 1:
+                votes[fits[0]] += 1
+    if votes[","] > votes["."]:
+        return ",", True
+    return ".", votes["."] > 0
 
 
 def parse_date(v: Any, dayfirst: bool = False) -> _dt.date:
@@ -244,6 +305,13 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
     default_kind = KIND_WORDS.get(mapping.default_kind.strip().lower())
     if default_kind is None:
         raise StudyError(where, f"unknown default kind '{mapping.default_kind}'")
+    if mapping.decimal not in DECIMAL_MARKS:
+        raise StudyError(where, f"decimal mark must be 'auto', '.' or ',', "
+                                f"not '{mapping.decimal}'")
+    if mapping.decimal == "auto":
+        decimal, settled = detect_decimal(table[mapping.amount].tolist())
+    else:
+        decimal, settled = mapping.decimal, True
     accepted: list[HistoryRow] = []
     rejected: list[RejectedRow] = []
     for rownum, row in table.iterrows():
@@ -274,9 +342,12 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
             reject("no amount")
             continue
         try:
-            amount = parse_amount(row[mapping.amount])
+            amount = parse_amount(row[mapping.amount], decimal)
         except ValueError:
-            reject(f"amount '{row[mapping.amount]}' is not a number")
+            text = str(row[mapping.amount])
+            mark = ("" if not re.search(r"\d", text) else
+                    f" (read with a decimal {'comma' if decimal == ',' else 'point'})")
+            reject(f"amount '{text}' is not a number{mark}")
             continue
         if amount < 0 and kind != "resale":
             reject(f"negative {kind} cost {amount:g} (a credit is not a cost)")
@@ -330,7 +401,7 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
             reject(f"year of age {age} is implausible (over 100 years)")
             continue
         accepted.append(HistoryRow(tag, age, amount, kind, date_text, source, int(rownum)))
-    return ImportReport(source, tuple(accepted), tuple(rejected))
+    return ImportReport(source, tuple(accepted), tuple(rejected), decimal, settled)
 
 
 def import_file(path: str | Path, mapping: ColumnMapping,
