@@ -23,6 +23,7 @@ The view only draws what ``RiskResult`` holds; it computes no economics.
 
 from __future__ import annotations
 
+import html
 import threading
 from typing import Any
 
@@ -331,7 +332,9 @@ class RiskView(QWidget):
             f"trials</b> (standard error {se:.2%}; {data['basis']}; seed {data['seed']}). "
             f"AW difference (best challenger minus defender, positive favours replacing): "
             f"p10 {_money(s['p10'])}, median {_money(s['p50'])}, p90 {_money(s['p90'])}; "
-            f"mean {_money(s['mean'])} (standard error {_money(s['mean_standard_error'])}).")
+            f"mean {_money(s['mean'])} (standard error {_money(s['mean_standard_error'])})."
+            + "".join(f"<br><span style='color:#8a4b00'>Note: {html.escape(n)}</span>"
+                      for n in data.get("notes", [])))
         self.status.setText(f"Base case: {data['base_case']['action']} "
                             f"(AW difference {_money(data['base_case']['annual_worth_difference'])}).")
         self._draw_tornado(risk)

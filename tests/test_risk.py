@@ -327,3 +327,29 @@ def test_study_period_without_a_replace_now_option():
     assert all(v is None for v in out["breakeven"].values())
     json.dumps(out, allow_nan=False)
     assert "Replace wins in 0.0%" in result.format_text()
+
+
+def test_share_below_by_hand():
+    # Hand calculation: uniform on [-0.02, 0.08] has 20 % below zero; a normal's share
+    # below its mean is one half (symmetry).
+    assert dists.share_below(Distribution("uniform", (-0.02, 0.08)), 0.0) == pytest.approx(
+        0.2, abs=2e-4)
+    bounds = dists.bounds_for("marr")
+    assert dists.share_below(Distribution("normal", (0.1, 0.03)), 0.1, bounds) == \
+        pytest.approx(0.5, abs=2e-4)
+    assert dists.share_below(Distribution("uniform", (0.05, 0.08)), 0.0) == 0.0
+
+
+def test_marr_drawn_below_zero_or_near_minus_one_is_noted():
+    quiet = risk.run_risk(make(trials=500))
+    assert not any("MARR draws" in n for n in quiet.notes)  # N(10 %, 3 %): none below 0
+    wide = risk.run_risk(make({"marr": {"normal": [0.05, 0.6]}}, trials=500))
+    notes = [n for n in wide.notes if "MARR draws" in n]
+    assert len(notes) == 2
+    assert notes[0].startswith("4") and "below zero" in notes[0]  # about 44 % below zero
+    assert "narrow the MARR distribution" in notes[1]
+    assert notes == [n for n in wide.to_json()["notes"] if "MARR draws" in n]
+    slightly = risk.run_risk(make({"marr": {"uniform": [-0.01, 0.09]}}, trials=500))
+    assert [n for n in slightly.notes if "MARR draws" in n] == [
+        "10% of the MARR draws are below zero (a negative required return); check that the "
+        "MARR distribution is meant to reach there."]

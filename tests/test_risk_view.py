@@ -81,3 +81,10 @@ def test_currency_in_axis_titles(view):
     view.set_currency("£")
     assert view.currency() == "£"
     assert "£/yr" in view.tornado_plot.getAxis("bottom").labelText
+
+
+def test_shows_the_risk_notes(view):
+    result = run_study(make({"marr": {"normal": [0.05, 0.6]}}, trials=300))
+    view.set_result(result)
+    assert "Note: " in view.summary.text() and "narrow the MARR distribution" in \
+        view.summary.text()

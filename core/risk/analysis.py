@@ -480,7 +480,32 @@ def _basis(model: Model) -> tuple[str, list[str]]:
     if model.study.inflation is not None:
         notes.append("With inflation, AW differences are in constant (today's) money, the "
                      "basis of every decision.")
+    notes += marr_notes(model.study)
     return model.basis, notes
+
+
+def marr_notes(study: Study) -> list[str]:
+    """Cautions on a MARR distribution that reaches negative or extreme rates.
+
+    The MARR's physical bound is only "> -100 %"; a wide normal can draw rates at which
+    every discount factor is extreme (common practice, no source: a MARR sits well above
+    zero).  The trials are still run; the note says how many draws are affected.
+    """
+    dist = dict(study.uncertainty.inputs if study.uncertainty else ()).get("marr")
+    if dist is None:
+        return []
+    bounds = dists.bounds_for("marr")
+    notes = []
+    negative = dists.share_below(dist, 0.0, bounds)
+    if negative >= 0.01:
+        notes.append(f"{negative:.0%} of the MARR draws are below zero (a negative required "
+                     "return); check that the MARR distribution is meant to reach there.")
+    low = float(dists.ppf(dist, [0.001], bounds)[0])
+    if low < -0.5:
+        notes.append(f"The MARR draws reach {low:.0%} (0.1 % quantile): at rates that far below "
+                     "zero every discount factor is extreme and the AW figures of those trials "
+                     "mean little; narrow the MARR distribution.")
+    return notes
 
 
 def decision_rule(study: Study) -> str:

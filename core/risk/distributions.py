@@ -188,6 +188,17 @@ def ppf(dist: Distribution, q: np.ndarray | Sequence[float] | float,
     return bounds.clip(x)
 
 
+def share_below(dist: Distribution, x: float, bounds: Bounds = Bounds()) -> float:
+    """P(X < x) for the (truncated) distribution, read off its quantile function to 1e-4.
+
+    >>> round(share_below(Distribution("uniform", (-0.02, 0.08)), 0.0), 3)
+    0.2
+    """
+    q = np.linspace(0.0, 1.0, 10001)
+    values = ppf(dist, q, bounds)
+    return float(q[np.searchsorted(values, x, side="left")]) if x <= values[-1] else 1.0
+
+
 def _pert_shape(p: Sequence[float]) -> tuple[float, float]:
     low, mode, high = p
     return 1.0 + 4.0 * (mode - low) / (high - low), 1.0 + 4.0 * (high - mode) / (high - low)
