@@ -58,13 +58,12 @@ def _rows(values: array) -> np.ndarray:
     return _buffer(values, np.int64).astype(np.intp, copy=False)
 
 
-def _explicit(rows: np.ndarray, values: np.ndarray, life: np.ndarray,
-              n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Flat (index r*n + j, value) arrays of the first life[r] values of each listed row."""
+def _explicit(rows: np.ndarray, life: np.ndarray, n: int) -> np.ndarray:
+    """Flat indices r*n + j (j < life[r]) of the explicit values of each listed row."""
     k = life[rows]
     where = np.repeat(rows * n - (np.cumsum(k) - k), k)  # a running count plus a row offset
     where += np.arange(where.size)
-    return where, values
+    return where
 
 
 def _put(target: np.ndarray, explicit: tuple[np.ndarray, np.ndarray], r0: int, r1: int) -> None:
@@ -172,19 +171,20 @@ def stack(studies: Sequence[Study]) -> dict[str, np.ndarray]:
     rate = np.repeat(_buffer(rate_b, np.float64), counts)
     # S and O stay as per-row formula parameters plus flat explicit values: ``fill_rows``
     # writes any run of rows (compute() a block at a time, in cache).
-    params = {"s_values": _explicit(_rows(sv_r), _buffer(sv_v, np.float64), life, n),
-              "o_values": _explicit(_rows(ov_r), _buffer(ov_v, np.float64), life, n)}
-    for key, rows_b, cols in (("s_decline", dec_r, (("s_d", dec_d),)),
-                              ("o_gradient", grad_r, (("o_gf", grad_f), ("o_gg", grad_g))),
-                              ("o_growth", grow_r, (("o_wf", grow_f), ("o_wg", grow_g)))):
+    # Parameters are zero on rows of another kind (the filler ``fill_rows`` relies on);
+    # growth, the one formula written only into its own rows, also keeps its row mask.
+    params = {"s_values": (_explicit(_rows(sv_r), life, n), _buffer(sv_v, np.float64)),
+              "o_values": (_explicit(_rows(ov_r), life, n), _buffer(ov_v, np.float64))}
+    for rows_b, cols in ((dec_r, (("s_d", dec_d),)),
+                         (grad_r, (("o_gf", grad_f), ("o_gg", grad_g))),
+                         (grow_r, (("o_wf", grow_f), ("o_wg", grow_g)))):
         rows = _rows(rows_b)
-        on = np.zeros(m, dtype=bool)
-        on[rows] = True
-        params[key] = on
         for name, values_b in cols:
             col = np.zeros(m)
             col[rows] = _buffer(values_b, np.float64)
             params[name] = col
+    params["o_growth"] = np.zeros(m, dtype=bool)
+    params["o_growth"][_rows(grow_r)] = True
     # X stays sparse (most cells are zero): each cell once, its amounts summed in list order
     # (0 + x1 + x2 ..., the steps of ``Alternative.extra_cost_array``).
     cells = _rows(x_r) * n + _rows(x_c)

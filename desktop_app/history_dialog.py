@@ -149,6 +149,15 @@ def _cell(value: Any) -> QTableWidgetItem:
     return item
 
 
+def _row(*widgets: QWidget) -> QHBoxLayout:
+    """The widgets side by side, left-aligned (one line of the column form)."""
+    row = QHBoxLayout()
+    for widget in widgets:
+        row.addWidget(widget)
+    row.addStretch(1)
+    return row
+
+
 class CostHistoryDialog(QDialog):
     """Import a cost-history file into a workbook and propose estimates from its trends."""
 
@@ -257,24 +266,11 @@ class CostHistoryDialog(QDialog):
         self.timing_combo.currentIndexChanged.connect(self._timing_changed)
         form = QFormLayout()
         form.addRow("Asset tag:", self.tag_combo)
-        when = QHBoxLayout()
-        when.addWidget(self.timing_combo)
-        when.addWidget(self.time_column)
-        when.addWidget(self.dayfirst)
-        when.addStretch(1)
-        form.addRow("When:", when)
-        amount = QHBoxLayout()
-        amount.addWidget(self.amount_combo)
-        amount.addWidget(QLabel("decimal mark:"))
-        amount.addWidget(self.decimal_combo)
-        amount.addStretch(1)
-        form.addRow("Amount:", amount)
-        kind = QHBoxLayout()
-        kind.addWidget(self.kind_combo)
-        kind.addWidget(QLabel("blank or no column means:"))
-        kind.addWidget(self.default_kind)
-        kind.addStretch(1)
-        form.addRow("Kind:", kind)
+        form.addRow("When:", _row(self.timing_combo, self.time_column, self.dayfirst))
+        form.addRow("Amount:", _row(self.amount_combo, QLabel("decimal mark:"),
+                                    self.decimal_combo))
+        form.addRow("Kind:", _row(self.kind_combo, QLabel("blank or no column means:"),
+                                  self.default_kind))
         form.addRow("", self.replace_box)
         note = QLabel("Kind words understood: operating, energy, labour; maintenance, repair, "
                       "service, parts, overhaul; resale, quote, market value, trade-in.")
