@@ -134,6 +134,7 @@ class MainWindow(QMainWindow):
         title.setStyleSheet("font-weight: bold; padding: 4px;")
         ll.addWidget(title)
         ll.addWidget(self.register)
+        left.setMinimumWidth(320)  # room for the asset names beside state and year
 
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(left)
