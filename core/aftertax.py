@@ -1,4 +1,4 @@
-"""The after-tax replacement study (DESIGN.md §4).
+"""The after-tax replacement study (docs/method.md §4).
 
 One effective income-tax rate t and an after-tax MARR.  For an asset kept k
 years (k = 1..n), with before-tax costs c_j = C_j + X_j, tax allowances D_j

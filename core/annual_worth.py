@@ -1,6 +1,6 @@
 """Annual worth of keeping one asset k = 1..n years, and its economic service life.
 
-Sign convention (DESIGN.md §1): outflows negative, so AW is normally negative
+Sign convention (docs/method.md §1): outflows negative, so AW is normally negative
 and the best retention is the one with the largest AW (least equivalent
 annual cost, EAC = -AW).  Costs are passed as positive numbers.
 

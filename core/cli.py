@@ -1,4 +1,4 @@
-"""The ``tenure`` command line (DESIGN.md §6).
+"""The ``tenure`` command line (docs/method.md §6).
 
 Exit codes: 0 ok; 1 a check failed; 2 bad input or usage, with one line
 ``error: <where>: <what is wrong>`` on stderr and never a traceback.

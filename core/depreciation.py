@@ -3,7 +3,7 @@
 Every function returns allowances as money per tax year (currency units,
 positive = a deduction) or as fractions of the basis, vectorised over a
 leading batch of bases.  Tax year y = 1 is the year the asset was placed in
-service; a defender of ``age`` a continues from tax year a+1 (DESIGN.md §4).
+service; a defender of ``age`` a continues from tax year a+1 (docs/method.md §4).
 
 Conventions
 -----------

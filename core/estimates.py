@@ -2,7 +2,7 @@
 
 Money is in one currency unit per study, years are whole years from today
 (year 0), and every cost is a positive number (the engine applies the sign:
-outflows negative).  See DESIGN.md §2 and §5.
+outflows negative).  See docs/method.md §2 and §5.
 """
 
 from __future__ import annotations
@@ -146,7 +146,7 @@ class Inflation:
 
 @dataclass(frozen=True, slots=True)
 class Distribution:
-    """A probability distribution for one uncertain input (parameters as in DESIGN.md §5)."""
+    """A probability distribution for one uncertain input (parameters as in docs/method.md §5)."""
 
     kind: DistributionKind
     params: tuple[float, ...]

@@ -12,7 +12,7 @@ calls over padded arrays:
     ESL_m = first argmax of round(AW_m, 2) over the valid k (ties to the shorter life);
     RV = max_k [AW_D,k + P_D (A/P,i,k) - AW_c*] / (A/P,i,k)
 
-The RV line is the closed form of DESIGN.md §3: AW_D,k(P) = b_k - P (A/P,i,k) is linear
+The RV line is the closed form of docs/method.md §3: AW_D,k(P) = b_k - P (A/P,i,k) is linear
 and decreasing in the defender's market value P, so max_k AW_D,k(P) = AW_c* exactly where
 P = max_k (b_k - AW_c*)/(A/P,i,k) (``run_study`` finds the same P with a root finder, to
 1e-6).  Studies with tax, inflation or uncertainty, and the study-period options, go
@@ -480,7 +480,7 @@ def run_fleet(studies: Sequence[Study]) -> list[StudyResult]:
 
 
 def run_fleet_json(studies: Sequence[Study]) -> list[dict[str, Any]]:
-    """``[run_study(s).to_json() for s in studies]`` (DESIGN.md §6 objects), vectorised.
+    """``[run_study(s).to_json() for s in studies]`` (docs/method.md §6 objects), vectorised.
 
     The replacement value may differ from run_study's in the last rounded cent in rare cases
     (closed form here, a root finder to 1e-6 there).

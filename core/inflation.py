@@ -1,6 +1,6 @@
 """General inflation: real and market rates, constant and then-current money.
 
-Conventions (DESIGN.md §4, README "After-tax and inflation")
+Conventions (docs/method.md §4, README "After-tax and inflation")
 ------------------------------------------------------------
 - ``marr`` (and ``tax.after_tax_marr``) in a study file are *real* rates i:
   the return required above inflation.  With inflation f the market

@@ -165,7 +165,7 @@ class StudyResult:
         raise KeyError(name)
 
     def to_json(self) -> dict[str, Any]:
-        """The DESIGN.md §6 object of one study (plus a few extra, clearly named keys)."""
+        """The docs/method.md §6 object of one study (plus a few extra, clearly named keys)."""
         out: dict[str, Any] = {
             "title": self.study.title,
             "fingerprint": self.fingerprint,

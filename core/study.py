@@ -1,4 +1,4 @@
-"""The replacement study (DESIGN.md §3): ESLs, the decision, study-period options, replacement value.
+"""The replacement study (docs/method.md §3): ESLs, the decision, study-period options, replacement value.
 
 ``run_study`` is the one entry point; ``decide`` holds the decision rules and
 works from AW arrays alone, so the after-tax analysis reuses it unchanged.
@@ -139,7 +139,7 @@ def no_period_recommendation(study: Study, best: str, esl: Mapping[str, int],
 def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis,
            replacement_value: Callable[[float], float | None] | None = None,
            ) -> tuple[Recommendation, list[StudyOption], dict[str, int]]:
-    """The recommendation from each alternative's AW array (DESIGN.md §3).
+    """The recommendation from each alternative's AW array (docs/method.md §3).
 
     No study period: the best challenger at its ESL against the defender at its
     ESL; replace now only if the challenger is better by more than a cent.  The

@@ -1,4 +1,4 @@
-"""The study file (DESIGN.md §5): strict parsing, canonical form and fingerprint.
+"""The study file (docs/method.md §5): strict parsing, canonical form and fingerprint.
 
 Parsing refuses anything doubtful and names the JSON path of the problem, for
 example ``$.challengers[0].max_life: must be a whole number of years >= 1``.
@@ -35,7 +35,7 @@ FORMAT = "tenure-study"
 VERSION = 1
 MACRS_CLASSES = (3, 5, 7, 10, 15, 20)
 DISTRIBUTION_ARITY = {"triangular": 3, "uniform": 2, "normal": 2, "pert": 3, "lognormal": 2}
-#: Uncertain-input suffixes after "<alternative name>." (DESIGN.md §5); "marr" stands alone.
+#: Uncertain-input suffixes after "<alternative name>." (docs/method.md §5); "marr" stands alone.
 INPUT_SUFFIXES = (
     "first_cost",
     "market_value",
@@ -344,7 +344,7 @@ STUDY_KEYS = {"title", "marr", "study_period", "defender", "challengers", "tax",
 
 
 def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) -> Study:
-    """Parse one study object (DESIGN.md §5), refusing anything doubtful with a StudyError."""
+    """Parse one study object (docs/method.md §5), refusing anything doubtful with a StudyError."""
     warnings = [] if warnings is None else warnings
     data = _keys(obj, path, STUDY_KEYS, {"title", "marr", "defender", "challengers"})
     title = _text(data["title"], f"{path}.title").strip()

@@ -7,7 +7,7 @@ Views never change a study themselves: they ask the document
 every subscriber what changed.  All numbers come from ``core.study.run_study``;
 the document only caches results by study fingerprint.
 
-The register state of an asset (DESIGN.md §3 reading of the recommendation):
+The register state of an asset (docs/method.md §3 reading of the recommendation):
 "replace now", "replace in N years", "keep", or "not yet studied"; its
 estimates are "out of date" when the study year is older than this year.
 """

@@ -49,7 +49,7 @@ def _cautions() -> list[str]:
 
 
 class CautionsLabel(QLabel):
-    """The DESIGN §9 cautions, always shown under the results."""
+    """The docs/method.md §9 cautions, always shown under the results."""
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)

@@ -5,7 +5,7 @@ badge (KEEP / REPLACE NOW / REPLACE IN N YEARS) with the recommendation's
 one-sentence reason, the basis (before or after tax), a table of each
 alternative's economic service life (ESL), AW and EAC at the ESL and rank, the
 replacement value against the defender's market value today, the
-one-more-year check, and the study's warnings.  The cautions of DESIGN.md §9
+one-more-year check, and the study's warnings.  The cautions of docs/method.md §9
 are always shown, also with no result.  Nothing here computes economics.
 """
 
@@ -33,7 +33,7 @@ from desktop_app.charts import format_money, years_text
 
 __all__ = ["ResultsPanel", "badge_for", "caution_texts", "FALLBACK_CAUTIONS"]
 
-# DESIGN.md §9, used only when core.memo.cautions is not importable.
+# docs/method.md §9, used only when core.memo.cautions is not importable.
 FALLBACK_CAUTIONS = (
     "Estimates are forecasts: the recommendation is only as good as the market values, "
     "operating costs and service lives it rests on, and it should be revisited when they change.",
@@ -55,7 +55,7 @@ COLUMNS = ("Rank", "Alternative", "Role", "ESL", "AW at ESL", "EAC at ESL")
 
 
 def caution_texts() -> list[str]:
-    """The cautions of DESIGN.md §9: the memo's texts when available, else the built-in list."""
+    """The cautions of docs/method.md §9: the memo's texts when available, else the built-in list."""
     try:
         from core.memo.cautions import caution_texts as memo_cautions
     except ImportError:

@@ -1,6 +1,6 @@
-"""The ``tenure`` command line (DESIGN.md §6): output, help, and every refusal path.
+"""The ``tenure`` command line (docs/method.md §6): output, help, and every refusal path.
 
-Sources: DESIGN.md §6 (keys, exit codes, the one-line ``error:`` rule), "hand calculation"
+Sources: docs/method.md §6 (keys, exit codes, the one-line ``error:`` rule), "hand calculation"
 for the numbers of the i = 0 study below, "common practice, no source" for the rest.
 """
 
@@ -42,7 +42,7 @@ def assert_refused(rc: int, out: str, err: str, where: str) -> None:
 @pytest.mark.parametrize(("mutate", "path"), [(m, p) for _, m, p in REFUSALS],
                          ids=[i for i, _, _ in REFUSALS])
 def test_every_refusal_via_cli(capsys, write_json, mutate, path: str) -> None:
-    # Source: DESIGN.md §6 (exit 2, one line "error: <where>: <what>", never a traceback).
+    # Source: docs/method.md §6 (exit 2, one line "error: <where>: <what>", never a traceback).
     file = write_json(_mutated(mutate))
     for extra in ([], ["--json"]):
         rc, out, err = run_cli(capsys, "study", str(file), *extra)
@@ -62,13 +62,13 @@ def test_every_refusal_via_cli(capsys, write_json, mutate, path: str) -> None:
                  "studies": [BASE_STUDY, BASE_STUDY]}), "$.studies[1].title"),
 ])
 def test_raw_text_refusals_via_cli(capsys, write_json, text: str, where: str) -> None:
-    # Source: RFC 8259 (NaN/Infinity are not JSON); DESIGN.md §6.
+    # Source: RFC 8259 (NaN/Infinity are not JSON); docs/method.md §6.
     rc, out, err = run_cli(capsys, "study", str(write_json(text)), "--json")
     assert_refused(rc, out, err, f"error: {where}")
 
 
 def test_missing_file_folder_and_unknown_study(capsys, tmp_path: Path, write_json) -> None:
-    # Source: DESIGN.md §6.
+    # Source: docs/method.md §6.
     missing = tmp_path / "missing.json"
     assert_refused(*run_cli(capsys, "study", str(missing)), f"error: {missing}: ")
     assert_refused(*run_cli(capsys, "study", str(tmp_path)), f"error: {tmp_path}: ")
@@ -80,14 +80,14 @@ def test_missing_file_folder_and_unknown_study(capsys, tmp_path: Path, write_jso
 
 
 def test_usage_errors_are_one_line(capsys) -> None:
-    # Source: DESIGN.md §6 (usage errors exit 2 with one error line too).
+    # Source: docs/method.md §6 (usage errors exit 2 with one error line too).
     assert_refused(*run_cli(capsys, "study"), "error: tenure study: ")
     assert_refused(*run_cli(capsys, "study", "x.json", "--jsn"), "error: tenure")
     assert_refused(*run_cli(capsys, "frobnicate"), "error: tenure")
 
 
 def test_json_output_keys_and_values(capsys, write_json) -> None:
-    # Source: DESIGN.md §6 (keys); hand calculation at i = 0 for the numbers:
+    # Source: docs/method.md §6 (keys); hand calculation at i = 0 for the numbers:
     # defender P = 10, S = 6, 3, 1, C = 2, 4, 7 -> AW -6, -6.5, -7.3333, ESL 1;
     # challenger P = 20, S = 12, 8, 5, 3, C = 1, 1, 2, 2 -> AW -9, -7, -6.3333, -5.75, ESL 4;
     # replace; RV = 9.75.
@@ -131,7 +131,7 @@ def test_json_output_keys_and_values(capsys, write_json) -> None:
 
 
 def test_multi_study_json_and_selection(capsys, write_json) -> None:
-    # Source: DESIGN.md §5/§6 ({"studies": [...]} in, {"studies": [...]} out, in order).
+    # Source: docs/method.md §5/§6 ({"studies": [...]} in, {"studies": [...]} out, in order).
     second = copy.deepcopy(BASE_STUDY)
     second["title"] = "Millbrook press"
     second["challengers"][0]["first_cost"] = 90000
@@ -146,7 +146,7 @@ def test_multi_study_json_and_selection(capsys, write_json) -> None:
 
 
 def test_text_output(capsys, write_json) -> None:
-    # Source: DESIGN.md §6 (tables without --json).
+    # Source: docs/method.md §6 (tables without --json).
     rc, out, err = run_cli(capsys, "study", str(write_json(document())))
     assert rc == 0 and err == ""
     assert "Recommendation (before-tax): REPLACE" in out
@@ -160,7 +160,7 @@ def _run(*args: str) -> subprocess.CompletedProcess[str]:
 
 
 def test_help_exits_zero_and_documents_options() -> None:
-    # Source: DESIGN.md §6 (subcommands and options).
+    # Source: docs/method.md §6 (subcommands and options).
     top = _run("--help")
     assert top.returncode == 0 and "study" in top.stdout and "Exit codes" in top.stdout
     sub = _run("study", "--help")
@@ -170,7 +170,7 @@ def test_help_exits_zero_and_documents_options() -> None:
 
 
 def test_subprocess_refusals_have_no_traceback(tmp_path: Path) -> None:
-    # Source: DESIGN.md §6 (exit 2, one line, never a traceback), through a real process.
+    # Source: docs/method.md §6 (exit 2, one line, never a traceback), through a real process.
     nan = tmp_path / "nan.json"
     nan.write_text(json.dumps(document()).replace('"marr": 0.1', '"marr": NaN'))
     life = tmp_path / "life.json"
@@ -189,7 +189,7 @@ def test_subprocess_refusals_have_no_traceback(tmp_path: Path) -> None:
 
 
 def test_subprocess_json_output(tmp_path: Path) -> None:
-    # Source: DESIGN.md §6.
+    # Source: docs/method.md §6.
     file = tmp_path / "one.json"
     file.write_text(json.dumps(document()))
     proc = _run("study", str(file), "--json")

@@ -3,7 +3,7 @@
 Sources, named on each test: "hand calculation" (arithmetic written out in the
 comments, or plain Python loops written from scratch here, never calling the
 engine), "numpy-financial" (npv/pmt as an outside implementation of PW and AW),
-"closed-form identity" (capital recovery and marginal-cost forms, DESIGN.md §2).
+"closed-form identity" (capital recovery and marginal-cost forms, docs/method.md §2).
 """
 
 from __future__ import annotations
@@ -65,7 +65,7 @@ def test_two_year_example_by_hand() -> None:
 def test_schedule_matches_hand_reference_and_identities(i: float) -> None:
     # Source: hand calculation (loops above); closed-form identity CR_k = (P-S_k)(A/P,i,k) + S_k i;
     # closed-form identity AW_k = -[sum_j MC_j (P/F,i,j)](A/P,i,k) with
-    # MC_j = (S_{j-1} - S_j) + i S_{j-1} + C_j, S_0 = P  (DESIGN.md §2).
+    # MC_j = (S_{j-1} - S_j) + i S_{j-1} + C_j, S_0 = P  (docs/method.md §2).
     price = 52000.0
     s = [41000.0, 33500.0, 26000.0, 21000.0, 15500.0, 9000.0, -1500.0]
     c = [4100.0, 4900.0, 6300.0, 6900.0, 9800.0, 11000.0, 12500.0]
@@ -354,7 +354,7 @@ def test_doctest_study_replacement_value_by_hand() -> None:
 
 
 def test_result_json_has_design_keys() -> None:
-    # Source: DESIGN.md §6 (keys of the --json output).
+    # Source: docs/method.md §6 (keys of the --json output).
     r = run_study(Study("Keys", 0.0, DEFENDER, (CHALLENGER,), study_period=4)).to_json()
     assert {"title", "alternatives", "recommendation", "study_period_options"} <= set(r)
     for a in r["alternatives"]:

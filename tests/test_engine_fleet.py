@@ -142,7 +142,7 @@ def test_rounding_helper_matches_python_round() -> None:
 
 
 def test_cli_fleet_output_equals_single_runs(capsys, write_json) -> None:
-    # Source: DESIGN.md §6 (one JSON object {"studies": [...]}); run_study per study as reference.
+    # Source: docs/method.md §6 (one JSON object {"studies": [...]}); run_study per study as reference.
     rng = random.Random(8)
     studies = [_random_study(rng, k) for k in range(12)]
     from core.studyfile import dump_study_document
@@ -242,7 +242,7 @@ def test_two_process_file_path_equals_serial(monkeypatch, write_json) -> None:
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="fork path is Linux only")
 def test_cli_two_process_path(monkeypatch, capsys, write_json) -> None:
-    # Source: DESIGN.md §6 (one JSON object; refusals: exit 2, one error line).
+    # Source: docs/method.md §6 (one JSON object; refusals: exit 2, one error line).
     from core import fleet
 
     monkeypatch.setattr(fleet, "PARALLEL_MIN", 4)

@@ -100,7 +100,7 @@ def plus_cost(alt: Alternative, u: float) -> Alternative:
        age=st.integers(0, 30), method=st.sampled_from(["straight_line", "macrs"]))
 def test_sunk_cost_never_changes_a_before_tax_study(study: Study, basis: float, years: int,
                                                     age: int, method: str) -> None:
-    # Source: common practice, no source (DESIGN.md §2: the defender's past price is sunk).
+    # Source: common practice, no source (docs/method.md §2: the defender's past price is sunk).
     # The original price lives only in a depreciation block; without `tax` it must not matter.
     dep = (Depreciation("macrs", basis=basis, age=age, macrs_class=7) if method == "macrs"
            else Depreciation("straight_line", basis=basis, years=years, age=age))
@@ -165,7 +165,7 @@ def test_uniform_cost_keeps_every_esl_and_shifts_annual_worth(study: Study, u: f
 @SETTINGS
 @given(study=studies())
 def test_replacement_value_equalises_best_annual_worths(study: Study) -> None:
-    # Source: DESIGN.md §3 definition; the defender's best AW at its RV, computed with a plain
+    # Source: docs/method.md §3 definition; the defender's best AW at its RV, computed with a plain
     # loop (AW_k = -[P - S_k v^k + sum C_j v^j]/annuity_k), equals the best challenger's AW.
     result = run_study(study)
     rv = result.recommendation.replacement_value

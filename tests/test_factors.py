@@ -108,7 +108,7 @@ def test_gradient_factors_accurate_for_tiny_rates(i: float, n: int) -> None:
 @pytest.mark.parametrize("bad", [-1.0, -1.5, -100.0, float("nan"), float("inf")])
 @pytest.mark.parametrize("name", ["fp", "pf", "pa", "ap", "fa", "af", "pg", "ag"])
 def test_rates_at_or_below_minus_100_percent_are_refused(name: str, bad: float) -> None:
-    # Source: common practice, no source (DESIGN.md §1: i must be > -1 and finite).
+    # Source: common practice, no source (docs/method.md §1: i must be > -1 and finite).
     with pytest.raises(ValueError):
         getattr(f, name)(bad, 5)
     with pytest.raises(ValueError):

@@ -1,6 +1,6 @@
 """Decision memo: content, attachment, signatures, verification (core/memo).
 
-References: the memo's contents follow DESIGN.md §8/§9 (our own spec); PDF
+References: the memo's contents follow docs/method.md §8/§9 (our own spec); PDF
 signatures and their incremental updates follow ISO 32000-1 §12.8 as
 implemented by pyHanko (common practice, no further source). Expected figures
 are the engine's own StudyResult values: the memo must print, not recompute.

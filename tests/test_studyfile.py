@@ -1,6 +1,6 @@
-"""The strict study file (DESIGN.md §5): every refusal names its JSON path; valid files round-trip.
+"""The strict study file (docs/method.md §5): every refusal names its JSON path; valid files round-trip.
 
-Sources: DESIGN.md §5 (the format), "common practice, no source" for the refusals (typos and
+Sources: docs/method.md §5 (the format), "common practice, no source" for the refusals (typos and
 doubtful numbers must not pass silently), RFC 8259 for what valid JSON is (NaN/Infinity are
 not JSON; Python's json module accepts them unless told otherwise).
 """
@@ -128,7 +128,7 @@ def _mutated(mutate: Callable[[Doc], None]) -> Any:
 @pytest.mark.parametrize(("mutate", "path"), [(m, p) for _, m, p in REFUSALS],
                          ids=[i for i, _, _ in REFUSALS])
 def test_refusal_names_json_path(mutate: Callable[[Doc], None], path: str) -> None:
-    # Source: DESIGN.md §5 / common practice, no source (strict input, exact path).
+    # Source: docs/method.md §5 / common practice, no source (strict input, exact path).
     with pytest.raises(StudyError) as info:
         parse_study_document(_mutated(mutate))
     assert info.value.path == path
@@ -151,7 +151,7 @@ def test_duplicate_challenger_names_and_study_titles() -> None:
 
 
 def test_errors_inside_a_fleet_name_the_study() -> None:
-    # Source: DESIGN.md §5 ({"studies": [...]}).
+    # Source: docs/method.md §5 ({"studies": [...]}).
     second = copy.deepcopy(BASE_STUDY)
     second["title"] = "Millbrook"
     second["defender"]["max_life"] = "4"
@@ -208,7 +208,7 @@ def test_missing_file_and_folder_and_bad_encoding(tmp_path) -> None:
 
 
 def test_valid_design_example_parses_and_round_trips() -> None:
-    # Source: DESIGN.md §5 example study (numbers as printed there; uncertainty inputs
+    # Source: docs/method.md §5 example study (numbers as printed there; uncertainty inputs
     # addressed to this study's names).
     study = {
         "title": "Ouseburn Yard compressor", "marr": 0.09, "study_period": None,

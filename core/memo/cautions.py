@@ -1,4 +1,4 @@
-"""The cautions every memo (and the window) shows, DESIGN.md §9.
+"""The cautions every memo (and the window) shows, docs/method.md §9.
 
 The texts live in ``resources/memo/cautions.txt`` (one caution per paragraph,
 ``#`` lines are comments) so the window and the memo show the same words. A
@@ -64,5 +64,5 @@ def _load() -> tuple[str, ...]:
 
 
 def caution_texts() -> list[str]:
-    """The caution paragraphs, in order (always at least the four of DESIGN.md §9)."""
+    """The caution paragraphs, in order (always at least the four of docs/method.md §9)."""
     return list(_load())

@@ -2,7 +2,7 @@
 
 A :class:`MemoError` carries a ``path`` (where the problem is: a command-line
 option, a file name) and a ``message``; ``str(e)`` is ``"<path>: <message>"``,
-the form the CLI prints after ``error: `` (DESIGN.md §6).
+the form the CLI prints after ``error: `` (docs/method.md §6).
 
 >>> str(MemoError("--passphrase-file", "wrong passphrase for ID.p12"))
 '--passphrase-file: wrong passphrase for ID.p12'

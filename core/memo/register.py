@@ -1,4 +1,4 @@
-"""Record an issued memo in the workbook's memo register (DESIGN.md §7), when there is one.
+"""Record an issued memo in the workbook's memo register (docs/method.md §7), when there is one.
 
 Calls ``core.workbook.record_memo`` lazily (the workbook package belongs to
 another part of the project), passing only the keyword arguments it accepts.

@@ -1,4 +1,4 @@
-"""Render the decision memo of one study as PDF (reportlab), DESIGN.md §8.
+"""Render the decision memo of one study as PDF (reportlab), docs/method.md §8.
 
 The memo reads a :class:`core.results.StudyResult` and never recomputes
 economics. Order: the recommendation in one sentence; key figures; the chart

@@ -1,6 +1,6 @@
 """Verify a signed memo: integrity, changes after signing, attachment, trust.
 
-Two questions are kept apart (DESIGN.md §8):
+Two questions are kept apart (docs/method.md §8):
 
 * integrity: each signature's digest matches the signed bytes, the CMS
   signature checks out with the signer's certificate, and nothing but later

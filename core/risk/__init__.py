@@ -1,4 +1,4 @@
-"""Risk analysis of the replacement decision (DESIGN.md §5-6, ``uncertainty`` and ``risk``).
+"""Risk analysis of the replacement decision (docs/method.md §5-6, ``uncertainty`` and ``risk``).
 
 ``analyse(study, result)`` is the engine hook (``core.study.run_study`` calls it
 when the study has an ``uncertainty`` block); it returns the result with

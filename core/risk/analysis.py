@@ -183,7 +183,7 @@ def tornado(model: Model, inputs: tuple[tuple[str, Distribution], ...]) -> list[
 
 
 def search_range(model: Model, address: str) -> tuple[float, float]:
-    """Where a breakeven is looked for (DESIGN.md §6: a tenfold range).
+    """Where a breakeven is looked for (docs/method.md §6: a tenfold range).
 
     Money inputs: [x/10, 10x] around the estimate x (for x < 0, [10x, x/10]; for x = 0,
     plus or minus ten times the alternative's price, at least 10,000).  Rates:

@@ -1,6 +1,6 @@
 """Distributions of uncertain inputs: physical bounds, quantiles and seeded draws.
 
-Parameters as in DESIGN.md §5:
+Parameters as in docs/method.md §5:
 
 - ``triangular [low, mode, high]`` and ``uniform [low, high]``;
 - ``normal [mean, sd]``, truncated to the input's physical bounds (below);

@@ -1,7 +1,7 @@
 """The replacement decision for a whole batch of input values at once.
 
 ``Model(study)`` holds the study's estimates; ``Model.evaluate(values, size)``
-takes, for any subset of the uncertain-input addresses (DESIGN.md §5), an array
+takes, for any subset of the uncertain-input addresses (docs/method.md §5), an array
 of ``size`` values each (the rest stay at their estimates) and returns every
 alternative's AW schedule, every ESL and the decision for each of the ``size``
 cases, without a Python loop over them.
@@ -359,7 +359,7 @@ def _get(alt: Alternative, suffix: str) -> float:
 
 
 def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
-    """A copy of ``study`` with some inputs set (addresses as in DESIGN.md §5), without its
+    """A copy of ``study`` with some inputs set (addresses as in docs/method.md §5), without its
     uncertainty block (with ``tax``, a new MARR moves the after-tax MARR as in
     ``_AfterTax``).  The scalar, one-study counterpart of ``Model.evaluate``, used by the
     tests' naive reference loop and to check breakevens with ``core.study.run_study``.

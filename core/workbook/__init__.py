@@ -1,4 +1,4 @@
-"""Tenure workbooks (``.tenure``): one SQLite file per plant or fleet (DESIGN.md §7).
+"""Tenure workbooks (``.tenure``): one SQLite file per plant or fleet (docs/method.md §7).
 
 Overview for the window, the memo helpers and the CLI (no Qt anywhere here)::
 
@@ -47,7 +47,7 @@ process on this host is taken over). ``PRAGMA user_version`` is the schema
 version; older workbooks are migrated forward in one transaction on opening for
 writing; ``PRAGMA application_id`` marks the file as ours.
 
-Studies are stored as the canonical study JSON (DESIGN.md §5, via
+Studies are stored as the canonical study JSON (docs/method.md §5, via
 ``core.studyfile.study_to_dict`` / ``parse_study``) with relational columns for
 the register, and the computed result (``StudyResult.to_json()``) alongside as a
 readable snapshot.

@@ -676,7 +676,7 @@ def save_studies(path: str | Path, studies: Sequence[Study], year: int | None = 
 
 
 def export_study_json(workbook_path: str | Path, out: str | Path) -> Path:
-    """Write the current study of every asset as one DESIGN.md §5 study file."""
+    """Write the current study of every asset as one docs/method.md §5 study file."""
     from core.studyfile import dump_study_document
 
     out = Path(out)

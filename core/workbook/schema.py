@@ -46,7 +46,7 @@ CREATE TABLE studies (
     tag         TEXT    NOT NULL REFERENCES assets(tag) ON DELETE CASCADE,
     year        INTEGER NOT NULL,
     title       TEXT    NOT NULL,
-    study_json  TEXT    NOT NULL,   -- DESIGN.md section 5 study object
+    study_json  TEXT    NOT NULL,   -- docs/method.md §5 study object
     result_json TEXT,               -- StudyResult.to_json() snapshot, or NULL
     fingerprint TEXT    NOT NULL,   -- core.studyfile.fingerprint
     action      TEXT,               -- 'keep' | 'replace' from the snapshot
