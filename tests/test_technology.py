@@ -272,3 +272,24 @@ def test_growing_costs_favour_replacing_now() -> None:
     assert cheaper.value_of_change > 0 > dearer.value_of_change
 
 
+
+
+def test_memo_has_the_plan_section() -> None:
+    # the memo reads the result's to_json(); the figures printed are the plan's, rounded
+    import io
+
+    from pypdf import PdfReader
+
+    from core.memo.render import money, render_memo
+
+    result = run_study(_study(8, (CH1, CH2), -0.05, -0.07, True))
+    text = " ".join(" ".join((p.extract_text() or "").split())
+                    for p in PdfReader(io.BytesIO(render_memo(result))).pages)
+    plan = result.technology
+    assert "Technology plan: replace now or wait for a better model?" in text
+    assert money(plan.present_worth) in text and money(plan.no_change_present_worth) in text
+    assert money(plan.value_of_change) in text
+    assert ("keep (wait)" if plan.first_action == "keep" else "replace now") in text
+    plain = run_study(dataclasses.replace(result.study, technology=None))
+    assert "Technology plan" not in " ".join(
+        (p.extract_text() or "") for p in PdfReader(io.BytesIO(render_memo(plain))).pages)
