@@ -293,3 +293,17 @@ def test_memo_has_the_plan_section() -> None:
     plain = run_study(dataclasses.replace(result.study, technology=None))
     assert "Technology plan" not in " ".join(
         (p.extract_text() or "") for p in PdfReader(io.BytesIO(render_memo(plain))).pages)
+
+
+def test_demo_asset_carries_a_plan_whose_answer_is_wait() -> None:
+    # the demo's diesel forklift: the study says replace now, the plan says wait a year for a
+    # cheaper electric model (docs/method.md §11; invented figures)
+    from core.demo import demo_studies
+
+    planned = [s for s in demo_studies() if s.technology is not None]
+    assert len(planned) == 1
+    result = run_study(planned[0])
+    assert result.recommendation.action == "replace"
+    assert result.technology.first_action == "keep"
+    assert result.technology.best_wait_present_worth > result.technology.best_replace_now_present_worth
+    assert result.technology.value_of_change > 0
