@@ -781,7 +781,8 @@ class _Builder:
         span = f"{horizon}-year" if isinstance(horizon, int) else "multi-year"
         self.add(_p(f"Over a {span} plan in which each year's model of a challenger "
                     "costs and runs differently (the change rates below), the best chain of "
-                    f"replacements says: {verb}. Present worths (PW) are in today's money, "
+                    f"replacements{' after tax' if r.study.tax is not None else ''} says: {verb}. "
+                    "Present worths (PW) are in today's money, "
                     f"{cur}; the defender's market value today counts as an outlay.", s["body"]))
         segs: list[list[Any]] = []       # consecutive plan years of one machine
         for step in d["policy"]:
