@@ -8,6 +8,7 @@ Sources: docs/method.md §11 (the block and its limits: change rates above -100 
 from __future__ import annotations
 
 import copy
+import dataclasses
 import json
 import subprocess
 import sys
@@ -151,3 +152,18 @@ def test_workbook_storage_round_trip(tmp_path: Path) -> None:
     (back,) = studies_from_workbook(path)
     assert back == s and fingerprint(back) == fingerprint(s)
     assert back.challengers[1].technology == Technology(10, 0.0, -0.06)
+
+
+def test_workbook_candidate_with_its_own_block_round_trips(tmp_path: Path) -> None:
+    # a candidate's block without a horizon (its study gives one) is stored and read back
+    from core.workbook import Workbook
+
+    s = parse_one(_with_challenger_block({"operating_cost_change": -0.06},
+                                         {"horizon": 10}))
+    with Workbook.create(tmp_path / "c.tenure", company="Harrowgate Fabrication Ltd.") as wb:
+        wb.add_candidate(s.challengers[1], "press")
+        wb.add_candidate(dataclasses.replace(s.challengers[1], name="Servo press 2",
+                                             technology=Technology(10, 0.01, -0.02)), "press")
+        back = {c.name: c.alternative for c in wb.candidates()}
+    assert back["Servo press"] == s.challengers[1]
+    assert back["Servo press 2"].technology == Technology(10, 0.01, -0.02)
