@@ -803,10 +803,8 @@ class _Builder:
         gain = (wait - now) if isinstance(wait, (int, float)) and isinstance(now, (int, float)) \
             else None
         rates = "; ".join(
-            f"{c.name}: first cost {(t.first_cost_change):+.1%}, operating cost "
-            f"{(t.operating_cost_change):+.1%} a year"
-            for c in r.study.challengers
-            for t in [c.technology or r.study.technology] if t is not None)
+            f"{name}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
+            for name, gp, gc in getattr(getattr(r, "technology", None), "change_rates", ()))
         fig = [["Figure", f"{cur}"],
                ["First action", "replace now" if first == "replace" else "keep (wait)"],
                ["PW of the best plan", money(pw)],
