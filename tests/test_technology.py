@@ -61,31 +61,34 @@ def _allowances(alt: Alternative, basis: float, n: int) -> tuple[list[float], li
 
 @functools.cache
 def _segment_pw(alt: Alternative, vintage: int, start: int, k: int, i: float, gp: float,
-                gc: float, tax: float | None) -> float:
+                gc: float, tax: float | None, f: float = 0.0) -> float:
     """PW at time 0 of one machine bought (or, the defender, held) at ``start`` and kept k years.
 
     Before tax: -P at start, -(C_j(1+gC)^v + X_j) at start+j, +S_k(1+gP)^v at start+k.
     After tax: year 0 -P (defender: -(MV - t(MV - BV_0))); year j: -(1-t)c_j + t D_j, in the
     year of sale t h_k D_k instead of t D_k, and S_k - t(S_k - BV_k), BV_k = BV_0 - sum_{j<k} D_j
-    - h_k D_k.  Written out here on purpose (not the kernels).
+    - h_k D_k.  Written out here on purpose (not the kernels).  With inflation f (after tax,
+    constant-money estimates), every amount of year start+j is in then-current money,
+    (1+f)^(start+j) times the estimate, the tax basis (1+f)^start; i is then the market rate.
     """
     if alt.role == "defender" and k == 0:
         return 0.0
     scale_p, scale_c = (1 + gp) ** vintage, (1 + gc) ** vintage
-    price = alt.price * scale_p
-    S = [s * scale_p for s in alt.market_value_array()]
+    grow = [(1 + f) ** (start + j) for j in range(alt.max_life + 1)]
+    price = alt.price * scale_p * grow[0]
+    S = [s * scale_p * grow[j + 1] for j, s in enumerate(alt.market_value_array())]
     C = list(alt.operating_cost_array())
     X = [0.0] * alt.max_life
     for x in alt.extra_costs:
         X[x.year - 1] += x.amount
-    c = [C[j] * scale_c + X[j] for j in range(alt.max_life)]
+    c = [(C[j] * scale_c + X[j]) * grow[j + 1] for j in range(alt.max_life)]
     v = [(1 + i) ** -(start + j) for j in range(k + 1)]
     if tax is None:
         pw = -price * v[0] - sum(c[j - 1] * v[j] for j in range(1, k + 1)) + S[k - 1] * v[k]
         return pw
     t = tax
     basis = (alt.depreciation.basis if alt.depreciation.basis is not None else alt.price) \
-        * scale_p
+        * scale_p * grow[0]
     D, h, bv0 = _allowances(alt, basis, alt.max_life)
     initial = price - t * (price - bv0) if alt.role == "defender" else price
     pw = -initial * v[0]
@@ -102,6 +105,10 @@ def enumerate_plans(study: Study, change: bool = True) -> dict[tuple[str, ...], 
     H = study.technology.horizon
     tax = study.tax.rate if study.tax is not None else None
     i = study.tax.after_tax_marr if study.tax is not None else study.marr
+    f = 0.0
+    if study.inflation is not None and tax is not None:   # after tax: then-current flows
+        f = study.inflation.rate
+        i = i + f + i * f                                 # the market rate (Fisher, exact)
     rates = {c.name: ((c.technology or study.technology).first_cost_change,
                       (c.technology or study.technology).operating_cost_change)
              if change else (0.0, 0.0) for c in study.challengers}
@@ -117,11 +124,11 @@ def enumerate_plans(study: Study, change: bool = True) -> dict[tuple[str, ...], 
                 age += 1
             else:
                 gp, gc = rates.get(machine.name, (0.0, 0.0))
-                pw += _segment_pw(machine, vintage, start, age, i, gp, gc, tax)
+                pw += _segment_pw(machine, vintage, start, age, i, gp, gc, tax, f)
                 machine, vintage, start, age = study.alternative(act), y, y, 1
         if ok:
             gp, gc = rates.get(machine.name, (0.0, 0.0))
-            out[seq] = pw + _segment_pw(machine, vintage, start, age, i, gp, gc, tax)
+            out[seq] = pw + _segment_pw(machine, vintage, start, age, i, gp, gc, tax, f)
     return out
 
 
@@ -307,3 +314,22 @@ def test_demo_asset_carries_a_plan_whose_answer_is_wait() -> None:
     assert result.technology.first_action == "keep"
     assert result.technology.best_wait_present_worth > result.technology.best_replace_now_present_worth
     assert result.technology.value_of_change > 0
+
+
+@pytest.mark.parametrize("H", [6, 9])
+def test_after_tax_with_inflation_equals_enumeration(H: int) -> None:
+    # naive reference: then-current flows written out, depreciation not indexed, discounted at
+    # the after-tax market rate; constant-money estimates, inflation 3 % a year
+    from core.estimates import Inflation
+
+    study = dataclasses.replace(_study(H, (CH1, CH2), -0.05, -0.07, True),
+                                inflation=Inflation(0.03, "constant"))
+    plan = technology_plan(study)
+    every = enumerate_plans(study)
+    assert plan.present_worth == pytest.approx(max(every.values()), abs=1e-5, rel=1e-10)
+    assert every[_seq(plan)] == pytest.approx(plan.present_worth, abs=1e-5, rel=1e-10)
+    flat = max(enumerate_plans(study, change=False).values())
+    assert plan.no_change_present_worth == pytest.approx(flat, abs=1e-5, rel=1e-10)
+    # AW over the horizon at the real after-tax MARR (constant money)
+    assert plan.annual_worth == pytest.approx(plan.present_worth * 0.06 / (1 - 1.06 ** -H),
+                                              rel=1e-12)
