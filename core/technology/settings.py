@@ -11,7 +11,14 @@ from core.estimates import Alternative, Study
 
 
 def has_technology(study: Study) -> bool:
-    """True when the study or any challenger carries a ``technology`` block."""
+    """True when the study or any challenger carries a ``technology`` block.
+
+    >>> from core.estimates import Technology
+    >>> a = Alternative("A", "defender", 1.0, 1)
+    >>> has_technology(Study("s", 0.1, a, (a,))), has_technology(
+    ...     Study("s", 0.1, a, (a,), technology=Technology(3)))
+    (False, True)
+    """
     return study.technology is not None or any(c.technology is not None
                                                for c in study.challengers)
 
@@ -33,7 +40,16 @@ def horizon(study: Study) -> int:
 
 
 def change_rates(study: Study, challenger: Alternative) -> tuple[float, float]:
-    """(gP, gC) of one challenger: its own block, else the study's, else (0, 0)."""
+    """(gP, gC) of one challenger: its own block, else the study's, else (0, 0).
+
+    >>> from core.estimates import Technology
+    >>> d = Alternative("D", "defender", 1.0, 1)
+    >>> c1 = Alternative("C1", "challenger", 1.0, 1, technology=Technology(None, -0.1, -0.2))
+    >>> c2 = Alternative("C2", "challenger", 1.0, 1)
+    >>> s = Study("s", 0.1, d, (c1, c2), technology=Technology(5, 0.0, -0.04))
+    >>> change_rates(s, c1), change_rates(s, c2)
+    ((-0.1, -0.2), (0.0, -0.04))
+    """
     tech = challenger.technology if challenger.technology is not None else study.technology
     if tech is None:
         return 0.0, 0.0
