@@ -167,3 +167,26 @@ def test_workbook_candidate_with_its_own_block_round_trips(tmp_path: Path) -> No
         back = {c.name: c.alternative for c in wb.candidates()}
     assert back["Servo press"] == s.challengers[1]
     assert back["Servo press 2"].technology == Technology(10, 0.01, -0.02)
+
+
+def test_cli_text_and_fleet_json_carry_the_plan(tmp_path: Path) -> None:
+    # common practice, no source: the text has the section; a several-study file (the fleet
+    # path) gives technology_plan to the study with the block and to no other
+    planned = _study(horizon=6, first_cost_change=-0.05, operating_cost_change=-0.08)
+    plain = copy.deepcopy(BASE_STUDY)
+    plain["title"] = "Millbrook press line"
+    one = tmp_path / "one.json"
+    one.write_text(json.dumps(document(planned)), encoding="utf-8")
+    text = subprocess.run([sys.executable, "-m", "core.cli", "study", str(one)], cwd=ROOT,
+                          capture_output=True, text=True, timeout=120)
+    assert text.returncode == 0 and "Technology plan over 6 years" in text.stdout
+    assert "Value of waiting for better models" in text.stdout
+    both = tmp_path / "both.json"
+    both.write_text(json.dumps({"format": "tenure-study", "version": 1,
+                                "studies": [planned, plain]}), encoding="utf-8")
+    run = subprocess.run([sys.executable, "-m", "core.cli", "study", str(both), "--json"],
+                         cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stderr
+    studies = json.loads(run.stdout)["studies"]
+    assert studies[0]["technology_plan"]["horizon"] == 6
+    assert "technology_plan" not in studies[1]
