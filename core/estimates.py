@@ -95,6 +95,21 @@ class Depreciation:
 
 
 @dataclass(frozen=True, slots=True)
+class Technology:
+    """Technological change for the multi-year plan (docs/method.md §11).
+
+    A challenger bought in plan year t (vintage t) costs P(1+gP)^t, sells for
+    S_k(1+gP)^t at age k and runs for C_j(1+gC)^t in its year of age j.
+    ``horizon`` H is the plan length in years (1..60); in a challenger's own
+    block it may be left out (the study's block gives it).
+    """
+
+    horizon: int | None
+    first_cost_change: float = 0.0
+    operating_cost_change: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
 class Alternative:
     """The defender (priced at today's market value) or a challenger (at first cost)."""
 
@@ -106,6 +121,7 @@ class Alternative:
     operating_costs: OperatingCosts = field(default_factory=OperatingCosts)
     extra_costs: tuple[ExtraCost, ...] = ()
     depreciation: Depreciation | None = None
+    technology: Technology | None = None
 
     def market_value_array(self) -> np.ndarray:
         """S_1..S_n for n = max_life."""
@@ -174,6 +190,7 @@ class Study:
     inflation: Inflation | None = None
     uncertainty: Uncertainty | None = None
     notes: str = ""
+    technology: Technology | None = None
 
     @property
     def alternatives(self) -> tuple[Alternative, ...]:

@@ -34,6 +34,7 @@ from core.estimates import Study
 from core.results import AlternativeResult, StudyResult, _list, _r
 from core.study import CENT, decide, no_period_recommendation, run_study
 from core.studyfile import fingerprint
+from core.technology.settings import has_technology
 
 #: Studies per block in ``compute``: the block's S, C and temporaries stay near 300 kB each,
 #: so they are reused from the allocator's free lists and stay in cache, instead of being
@@ -45,7 +46,8 @@ PARALLEL_MIN = 1000
 
 
 def _plain(study: Study) -> bool:
-    return study.tax is None and study.inflation is None and study.uncertainty is None
+    return study.tax is None and study.inflation is None and study.uncertainty is None \
+        and not has_technology(study)
 
 
 def _buffer(values: array, dtype: type) -> np.ndarray:

@@ -81,6 +81,8 @@ def format_study(result: StudyResult) -> str:
         out += ["", result.after_tax.format_text()]
     if result.risk is not None and hasattr(result.risk, "format_text"):
         out += ["", result.risk.format_text()]
+    if getattr(result, "technology", None) is not None:
+        out += ["", result.technology.format_text()]
     check = rec.one_more_year
     out += ["", f"Recommendation ({rec.basis}): {rec.action.upper()}", rec.reason]
     if rec.replacement_value is not None:

@@ -145,6 +145,7 @@ class StudyResult:
     fingerprint: str
     after_tax: Any = None
     risk: Any = None
+    technology: Any = None
 
     @property
     def defender(self) -> AlternativeResult:
@@ -181,4 +182,6 @@ class StudyResult:
             out["before_tax_recommendation"] = self.before_tax_recommendation.to_json()
         if self.risk is not None:
             out["risk"] = self.risk.to_json()
+        if self.technology is not None:
+            out["technology_plan"] = self.technology.to_json()
         return out

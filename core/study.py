@@ -305,7 +305,9 @@ def run_study(study: Study) -> StudyResult:
         from core import risk
 
         result = risk.analyse(study, result)
-    return result
+    from core import technology
+
+    return technology.analyse(study, result)
 
 
 def run_studies(studies: Sequence[Study]) -> list[StudyResult]:

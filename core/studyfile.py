@@ -28,6 +28,7 @@ from core.estimates import (
     OperatingCosts,
     Study,
     Tax,
+    Technology,
     Uncertainty,
 )
 
@@ -231,7 +232,7 @@ def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alterna
     price_key = "market_value" if role == "defender" else "first_cost"
     data = _keys(obj, path,
                  {"name", price_key, "max_life", "market_values", "operating_costs",
-                  "extra_costs", "depreciation"},
+                  "extra_costs", "depreciation"} | ({"technology"} if role == "challenger" else set()),
                  {"name", price_key, "max_life", "market_values", "operating_costs"})
     name = _text(data["name"], f"{path}.name").strip()
     if role == "challenger":
@@ -254,9 +255,11 @@ def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alterna
     if depreciation is not None and depreciation.basis is None and depreciation.salvage > price:
         raise StudyError(f"{path}.depreciation.salvage",
                          "must not exceed the basis (here the first cost)")
+    technology = (_technology(data["technology"], f"{path}.technology", horizon_required=False)
+                  if data.get("technology") is not None else None)
     return Alternative(name=name, role=role, price=price, max_life=life,
                        market_values=market_values, operating_costs=operating,
-                       extra_costs=extras, depreciation=depreciation)
+                       extra_costs=extras, depreciation=depreciation, technology=technology)
 
 
 def _rate(value: Any, path: str) -> float:
@@ -338,9 +341,49 @@ def _check_address(address: str, where: str, study: Study) -> None:
         raise StudyError(where, f"{alt.name} has no operating-cost growth")
 
 
+TECHNOLOGY_KEYS = {"horizon", "first_cost_change", "operating_cost_change"}
+MAX_HORIZON = 60
+
+
+def _technology(obj: Any, path: str, *, horizon_required: bool) -> Technology:
+    """A ``technology`` block (docs/method.md §11): H in 1..60, change rates above -100 %."""
+    data = _keys(obj, path, TECHNOLOGY_KEYS, {"horizon"} if horizon_required else set())
+    horizon = None
+    if "horizon" in data:
+        horizon = _integer(data["horizon"], f"{path}.horizon", what="a whole number of years")
+        if horizon > MAX_HORIZON:
+            raise StudyError(f"{path}.horizon", f"must be at most {MAX_HORIZON} years, not {horizon}")
+    rates = {}
+    for key in ("first_cost_change", "operating_cost_change"):
+        value = _number(data.get(key, 0.0), f"{path}.{key}")
+        if value <= -1.0:
+            raise StudyError(f"{path}.{key}", "must be greater than -1 (a change of -100 % or "
+                             "less would make the machine free or negative)")
+        rates[key] = value
+    return Technology(horizon=horizon, **rates)
+
+
+def _check_horizons(study: Study, path: str) -> None:
+    """Every horizon given must agree, and a plan with per-challenger blocks needs one."""
+    given = [(f"{path}.technology.horizon", study.technology.horizon)] \
+        if study.technology is not None else []
+    given += [(f"{path}.challengers[{k}].technology.horizon", c.technology.horizon)
+              for k, c in enumerate(study.challengers)
+              if c.technology is not None and c.technology.horizon is not None]
+    if not given:
+        k = next(k for k, c in enumerate(study.challengers) if c.technology is not None)
+        raise StudyError(f"{path}.challengers[{k}].technology.horizon",
+                         "is required when the study has no technology block of its own")
+    first_where, first = given[0]
+    for where, horizon in given[1:]:
+        if horizon != first:
+            raise StudyError(where, f"{horizon} years differs from {first} years at {first_where}; "
+                             "the plan has one horizon")
+
+
 # --------------------------------------------------------------------------- studies
 STUDY_KEYS = {"title", "marr", "study_period", "defender", "challengers", "tax", "inflation",
-              "uncertainty", "notes"}
+              "uncertainty", "notes", "technology"}
 
 
 def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) -> Study:
@@ -379,8 +422,13 @@ def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) ->
             raise StudyError(f"{path}.inflation.estimates", "must be 'constant' or 'then-current'")
         inflation = Inflation(rate=_rate(idata["rate"], f"{path}.inflation.rate"), estimates=basis)
     notes = _text(data.get("notes", ""), f"{path}.notes", empty_ok=True)
+    technology = (_technology(data["technology"], f"{path}.technology", horizon_required=True)
+                  if data.get("technology") is not None else None)
     study = Study(title=title, marr=marr, study_period=period, defender=defender,
-                  challengers=challengers, tax=tax, inflation=inflation, notes=notes)
+                  challengers=challengers, tax=tax, inflation=inflation, notes=notes,
+                  technology=technology)
+    if technology is not None or any(c.technology is not None for c in challengers):
+        _check_horizons(study, path)
     if period is not None:
         longest = defender.max_life + max(c.max_life for c in challengers)
         if period > longest:
@@ -499,6 +547,16 @@ def alternative_to_dict(alt: Alternative) -> dict[str, Any]:
         if dep.rate is not None:
             d["rate"] = _num(dep.rate)
         out["depreciation"] = d
+    if alt.technology is not None:
+        out["technology"] = technology_to_dict(alt.technology)
+    return out
+
+
+def technology_to_dict(tech: Technology) -> dict[str, Any]:
+    """The §5 ``technology`` block (the horizon only when given)."""
+    out: dict[str, Any] = {} if tech.horizon is None else {"horizon": tech.horizon}
+    out["first_cost_change"] = _num(tech.first_cost_change)
+    out["operating_cost_change"] = _num(tech.operating_cost_change)
     return out
 
 
@@ -523,6 +581,8 @@ def study_to_dict(study: Study) -> dict[str, Any]:
         out["uncertainty"] = u
     if study.notes:
         out["notes"] = study.notes
+    if study.technology is not None:
+        out["technology"] = technology_to_dict(study.technology)
     return out
 
 

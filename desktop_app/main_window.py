@@ -181,6 +181,10 @@ class MainWindow(QMainWindow):
             self.results_layout.addWidget(CautionsLabel())
         if self.risk_view is not None:
             self.right_tabs.addTab(self.risk_view, "Risk")
+        from desktop_app.technology_view import TechnologyView
+
+        self.technology_view = TechnologyView()
+        self.right_tabs.addTab(self.technology_view, "Technology plan")
         self.apply_preferences()
 
     def finish_startup(self, path: str | None) -> None:
@@ -316,7 +320,8 @@ class MainWindow(QMainWindow):
     def apply_preferences(self) -> None:
         currency = self.prefs.currency
         self.editor.set_currency(currency)
-        for panel in (self.chart_panel, self.results_panel, self.risk_view):
+        for panel in (self.chart_panel, self.results_panel, self.risk_view,
+                      getattr(self, "technology_view", None)):
             if panel is not None and hasattr(panel, "set_currency"):
                 panel.set_currency(currency)
         if hasattr(self, "autosave_timer"):
@@ -549,7 +554,8 @@ class MainWindow(QMainWindow):
         self.current_result = result
         if self.chart_panel is None:
             return
-        for panel in (self.results_panel, self.chart_panel, self.risk_view):
+        for panel in (self.results_panel, self.chart_panel, self.risk_view,
+                      getattr(self, "technology_view", None)):
             if panel is not None:
                 panel.set_result(result)
         self.memo_action.setEnabled(result is not None)

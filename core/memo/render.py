@@ -3,7 +3,8 @@
 The memo reads a :class:`core.results.StudyResult` and never recomputes
 economics. Order: the recommendation in one sentence; key figures; the chart
 of AW against retention with every ESL marked; study-period options (when the
-study has a period); after-tax and risk results (when the study has them);
+study has a period); after-tax and risk results and the technology plan (when the
+study has them);
 every assumption and input; the method in plain words; warnings; cautions;
 the sign-off block with one empty signature field per role. Every page
 carries a footer with the study fingerprint and "page x of y".
@@ -766,6 +767,59 @@ class _Builder:
             for n in notes:
                 self.add(Paragraph(escape(str(n)), s["bullet"], bulletText="\u2022"))
 
+    def technology(self):
+        """The technology plan (docs/method.md §11), read from its to_json() dict."""
+        r, s, cur = self.r, self.s, self.cur
+        d = _to_json(getattr(r, "technology", None))
+        if not d or not isinstance(d.get("policy"), list) or not d["policy"]:
+            return
+        self.h("Technology plan: replace now or wait for a better model?")
+        horizon, first = d.get("horizon"), d.get("first_action")
+        pw, flat = d.get("present_worth"), d.get("no_change_present_worth")
+        now, wait = d.get("best_replace_now_present_worth"), d.get("best_wait_present_worth")
+        verb = "replace the defender now" if first == "replace" else "keep the defender this year"
+        span = f"{horizon}-year" if isinstance(horizon, int) else "multi-year"
+        self.add(_p(f"Over a {span} plan in which each year's model of a challenger "
+                    "costs and runs differently (the change rates below), the best chain of "
+                    f"replacements{' after tax' if r.study.tax is not None else ''} says: {verb}. "
+                    "Present worths (PW) are in today's money, "
+                    f"{cur}; the defender's market value today counts as an outlay.", s["body"]))
+        segs: list[list[Any]] = []       # consecutive plan years of one machine
+        for step in d["policy"]:
+            if step.get("action") == "replace" or not segs:
+                name = step.get("challenger") or r.study.defender.name
+                vint = step.get("vintage")
+                segs.append([name, "-" if vint is None else str(vint), step.get("year"), 0])
+            segs[-1][3] += 1
+        rows = [["Machine in service", "Vintage (year bought)", "Plan years (0 = now)", "Years"]]
+        for name, vint, start, n in segs:
+            rows.append([Paragraph(escape(str(name)), s["cell"]), vint,
+                         f"{start} to {start + n - 1}" if n > 1 else str(start), str(n)])
+        w = self.w
+        self.add(_table(rows, [0.44 * w, 0.2 * w, 0.2 * w, 0.16 * w], numeric_from=1))
+        self.add(Spacer(1, 4))
+        value = (pw - flat) if isinstance(pw, (int, float)) and isinstance(flat, (int, float)) \
+            else None
+        gain = (wait - now) if isinstance(wait, (int, float)) and isinstance(now, (int, float)) \
+            else None
+        rates = "; ".join(
+            f"{name}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
+            for name, gp, gc in getattr(getattr(r, "technology", None), "change_rates", ()))
+        fig = [["Figure", f"{cur}"],
+               ["First action", "replace now" if first == "replace" else "keep (wait)"],
+               ["PW of the best plan", money(pw)],
+               ["AW over the horizon", money(d.get("annual_worth"))],
+               ["Best plan that replaces now, PW", money(now)],
+               ["Best plan that waits, PW", money(wait)],
+               ["Waiting against replacing now (PW)", money(gain)],
+               ["Best plan if every future model were today's, PW", money(flat)],
+               ["Value of waiting for better models (PW)", money(value)]]
+        self.add(_table(fig, [0.6 * w, 0.4 * w], numeric_from=1))
+        self.add(_p("Change rates: " + (rates or "none") + ". A model bought in plan year t "
+                    "costs P(1+gP)^t, resells for S_k(1+gP)^t and runs for C_j(1+gC)^t; extra "
+                    "costs as estimated. Solved by backward induction over plan year, machine, "
+                    "vintage and age (Bellman, 1955).", s["small"]))
+
     def assumptions(self):
         r, s, cur = self.r, self.s, self.cur
         st = r.study
@@ -944,6 +998,7 @@ def _build(result: Any, opts: MemoOptions, fingerprint: str, total: list[int],
     b.study_period()
     b.after_tax()
     b.risk()
+    b.technology()
     b.schedules()
     b.assumptions()
     b.method()

@@ -138,6 +138,9 @@ def _parse_alternative(obj: dict, where: str) -> Alternative:
               "defender": {"name": " defender", "market_value": 1, "max_life": 1,
                            "market_values": {"decline_rate": 0}, "operating_costs": {"first": 0}},
               "challengers": [obj]}
+    tech = obj.get("technology") if isinstance(obj, dict) else None
+    if isinstance(tech, dict):  # a candidate's own block may leave the horizon to its study
+        holder["technology"] = {"horizon": tech.get("horizon", 1)}
     try:
         return parse_study(holder, where).challengers[0]
     except StudyError as exc:
