@@ -44,6 +44,7 @@ from core.estimates import (
     Tax,
 )
 from desktop_app.document import rename_alternative, replace_alternative
+from desktop_app.reflow import Reflow
 from desktop_app.validation import (
     FieldError,
     fmt_money,
@@ -172,16 +173,23 @@ class StudySettings(_StudyView):
         self.set_year = set_year
         grid = QGridLayout(self)
         grid.setContentsMargins(6, 6, 6, 6)
-        left, right = QFormLayout(), QFormLayout()
+        top = QFormLayout()
+        top.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+        top.setContentsMargins(0, 0, 0, 0)
+        left_box, right_box = QWidget(), QWidget()
+        left, right = QFormLayout(left_box), QFormLayout(right_box)
         for form in (left, right):
             form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
-        grid.addLayout(left, 0, 0)
-        grid.addLayout(right, 0, 1)
+            form.setContentsMargins(0, 0, 0, 0)
+        grid.addLayout(top, 0, 0)
+        self.columns = Reflow(left_box, right_box)
+        grid.addWidget(self.columns, 1, 0)
 
+        # The title runs the full width: it holds the site and the asset's whole name.
         self.title_edit = self.bind(
             "Title", lambda s: s.title,
             lambda s, t: replace(s, title=parse_text(t, "Title")))
-        left.addRow("Title", self.title_edit)
+        top.addRow("Title", self.title_edit)
         self.marr_edit = self.bind(
             "MARR", lambda s: fmt_percent(s.marr),
             lambda s, t: replace(s, marr=parse_percent(t, "MARR")))
@@ -440,13 +448,15 @@ class AlternativeEditor(_StudyView):
         self.pending: Study | None = None
         outer = QVBoxLayout(self)
         outer.setContentsMargins(6, 6, 6, 6)
-        top = QHBoxLayout()
-        outer.addLayout(top)
 
         basics = QGroupBox("Alternative")
         form = QFormLayout(basics)
+        # The name runs the full width, above the two boxes: it is the longest field.
+        name_row = QFormLayout()
+        name_row.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
         self.name_edit = self.bind("Name", lambda s: self.alt_of(s).name, self._set_name)
-        form.addRow("Name", self.name_edit)
+        name_row.addRow("Name", self.name_edit)
+        outer.addLayout(name_row)
         self.price_label = QLabel("First cost")
         self.price_edit = self.bind(
             "Price", lambda s: fmt_money(self.alt_of(s).price),
@@ -469,7 +479,6 @@ class AlternativeEditor(_StudyView):
         form.addRow(self.dep_basis_label, self.dep_basis)
         self.dep_age = self.bind("Tax age", lambda s: self._dep_text(s, "age"), self._set_dep_age)
         form.addRow("Tax age (years)", self.dep_age)
-        top.addWidget(basics, 1)
 
         rules = QGroupBox("Generators (fill the table)")
         rform = QFormLayout(rules)
@@ -499,7 +508,8 @@ class AlternativeEditor(_StudyView):
             "Growth", lambda s: self._oc_text(s, "growth"),
             lambda s, t: self._set_oc(s, growth=parse_percent(t, "Growth")))
         rform.addRow("Growth (% a year)", self.growth_edit)
-        top.addWidget(rules, 1)
+        self.columns = Reflow(basics, rules)
+        outer.addWidget(self.columns)
 
         self.model = YearTableModel(self)
         self.table = QTableView()
@@ -768,7 +778,6 @@ class StudyEditor(QWidget):
         self.add_button.clicked.connect(self.add_challenger)
         self.remove_button = QPushButton("Remove challenger")
         self.remove_button.clicked.connect(self.remove_challenger)
-        bar.addWidget(QLabel("Defender and challengers"))
         bar.addStretch(1)
         bar.addWidget(self.add_button)
         bar.addWidget(self.remove_button)
@@ -780,6 +789,8 @@ class StudyEditor(QWidget):
         self.notice.hide()
         layout.addWidget(self.notice)
         self.tabs = QTabWidget()
+        self.tabs.setElideMode(Qt.TextElideMode.ElideRight)
+        self.tabs.setUsesScrollButtons(True)
         self.tabs.currentChanged.connect(self._tab_opened)
         layout.addWidget(self.tabs, 1)
         self.placeholder = QWidget()
@@ -843,6 +854,7 @@ class StudyEditor(QWidget):
             text = ("Defender: " if i == 0 else "") + alt.name
             if self.tabs.tabText(i) != text:
                 self.tabs.setTabText(i, text)
+                self.tabs.setTabToolTip(i, text)  # a narrow editor elides the tab text
             ed = self.tabs.widget(i)
             if i == current:
                 ed.set_study(study)

@@ -29,19 +29,30 @@ from typing import Any
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QCoreApplication, QObject, QRectF, QRunnable, Qt, QThreadPool, Signal
+from PySide6.QtCore import (
+    QCoreApplication,
+    QObject,
+    QRectF,
+    QRunnable,
+    QSize,
+    Qt,
+    QThreadPool,
+    Signal,
+)
 from PySide6.QtWidgets import (
     QCheckBox,
-    QGridLayout,
-    QGroupBox,
+    QFrame,
     QHBoxLayout,
     QHeaderView,
     QLabel,
     QProgressBar,
     QPushButton,
+    QScrollArea,
     QSpinBox,
+    QSplitter,
     QTableWidget,
     QTableWidgetItem,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
@@ -52,6 +63,8 @@ LOW_COLOUR = (70, 120, 190)
 HIGH_COLOUR = (225, 135, 40)
 REPLACE_COLOUR = (95, 170, 110)
 KEEP_COLOUR = (205, 205, 205)
+#: Each chart's minimum size: readable tick labels and bars on a 1366x768 screen.
+CHART_MINIMUM = QSize(380, 260)
 
 
 class RiskSignals(QObject):
@@ -197,22 +210,47 @@ class RiskView(QWidget):
         hist_layout.setContentsMargins(0, 0, 0, 0)
         hist_layout.addWidget(self.histogram_plot, 1)
         hist_layout.addWidget(self.cumulative)
-        be_box = QGroupBox("Breakeven: the value at which the recommendation flips "
-                           "(the rest at their estimates)")
+        be_box = QWidget()
         be_layout = QVBoxLayout(be_box)
+        be_note = QLabel("Breakeven: the value at which the recommendation flips (the rest at "
+                         "their estimates).")
+        be_note.setWordWrap(True)
+        be_layout.addWidget(be_note)
         be_layout.addWidget(self.breakeven_table)
 
-        grid = QGridLayout()
-        grid.addWidget(self.tornado_plot, 0, 0)
-        grid.addWidget(hist_box, 0, 1)
-        grid.addWidget(be_box, 1, 0)
-        grid.addWidget(self.map_plot, 1, 1)
+        # One chart per sub-tab, each at a readable minimum size: four side by side were
+        # cut off on a laptop screen.
+        self.charts = QTabWidget()
+        self.charts.setObjectName("risk_charts")
+        for widget in (self.tornado_plot, self.histogram_plot, self.map_plot):
+            widget.setMinimumSize(CHART_MINIMUM)
+        self.charts.addTab(self.tornado_plot, "Tornado")
+        self.charts.addTab(hist_box, "Distribution")
+        self.charts.addTab(be_box, "Breakevens")
+        self.charts.addTab(self.map_plot, "Two-way map")
 
+        head = QWidget()
+        head_layout = QVBoxLayout(head)
+        head_layout.setContentsMargins(0, 0, 0, 0)
+        head_layout.addLayout(bar)
+        head_layout.addWidget(self.status)
+        head_layout.addWidget(self.summary)
+        head_layout.addStretch(1)
+        self.head_scroll = QScrollArea()
+        self.head_scroll.setWidgetResizable(True)
+        self.head_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        self.head_scroll.setWidget(head)
+        split = QSplitter(Qt.Orientation.Vertical)
+        split.addWidget(self.head_scroll)
+        split.addWidget(self.charts)
+        split.setStretchFactor(0, 0)
+        split.setStretchFactor(1, 1)
+        split.setSizes([120, 560])
+        split.setChildrenCollapsible(False)
+        self.split = split
         layout = QVBoxLayout(self)
-        layout.addLayout(bar)
-        layout.addWidget(self.status)
-        layout.addWidget(self.summary)
-        layout.addLayout(grid, 1)
+        layout.setContentsMargins(4, 4, 4, 4)
+        layout.addWidget(split, 1)
         self._arm()
 
     # ------------------------------------------------------------------ state
