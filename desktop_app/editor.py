@@ -773,6 +773,18 @@ class StudyEditor(QWidget):
         self.settings = StudySettings(commit, report, set_year)
         inner.addWidget(self.settings)
         layout.addWidget(box)
+        self.notice = QLabel("")
+        self.notice.setObjectName("editor_notice")
+        self.notice.setWordWrap(True)
+        self.notice.setStyleSheet("color: #9b2c1f; font-weight: bold; padding: 2px 4px;")
+        self.notice.hide()
+        layout.addWidget(self.notice)
+        # Two pages: the alternatives (a tab each) and the uncertainty of their estimates.
+        self.pages = QTabWidget()
+        self.pages.setObjectName("editor_pages")
+        alternatives = QWidget()
+        alt_layout = QVBoxLayout(alternatives)
+        alt_layout.setContentsMargins(0, 4, 0, 0)
         bar = QHBoxLayout()
         self.add_button = QPushButton("Add challenger")
         self.add_button.clicked.connect(self.add_challenger)
@@ -781,18 +793,20 @@ class StudyEditor(QWidget):
         bar.addStretch(1)
         bar.addWidget(self.add_button)
         bar.addWidget(self.remove_button)
-        layout.addLayout(bar)
-        self.notice = QLabel("")
-        self.notice.setObjectName("editor_notice")
-        self.notice.setWordWrap(True)
-        self.notice.setStyleSheet("color: #9b2c1f; font-weight: bold; padding: 2px 4px;")
-        self.notice.hide()
-        layout.addWidget(self.notice)
+        alt_layout.addLayout(bar)
         self.tabs = QTabWidget()
         self.tabs.setElideMode(Qt.TextElideMode.ElideRight)
         self.tabs.setUsesScrollButtons(True)
         self.tabs.currentChanged.connect(self._tab_opened)
-        layout.addWidget(self.tabs, 1)
+        alt_layout.addWidget(self.tabs, 1)
+        from desktop_app.uncertainty_editor import UncertaintyEditor  # it builds on this module
+
+        self.uncertainty = UncertaintyEditor(commit, report)
+        self.pages.addTab(alternatives, "Defender and challengers")
+        self.pages.addTab(self.uncertainty, "Uncertainty")
+        self.pages.setTabToolTip(1, "Distributions of uncertain estimates, for the Risk tab")
+        self.pages.currentChanged.connect(self._page_opened)
+        layout.addWidget(self.pages, 1)
         self.placeholder = QWidget()
         pl = QVBoxLayout(self.placeholder)
         note = QLabel("This asset has no study yet.")
@@ -810,7 +824,7 @@ class StudyEditor(QWidget):
     def clear_errors(self) -> None:
         """Forget refusals shown for the previous asset (red fields, the inline notice)."""
         self.show_notice("")
-        for view in [self.settings, *self.editors()]:
+        for view in [self.settings, *self.editors(), self.uncertainty]:
             for b in view.bindings:
                 b.edit.setStyleSheet("")
                 b.edit.setToolTip("")
@@ -829,12 +843,17 @@ class StudyEditor(QWidget):
         for ed in self.editors():
             ed.currency = currency
             ed.retitle()
+        self.uncertainty.currency = currency
 
     def set_study(self, study: Study | None, year: int | None) -> None:
         self.study = study
         self.settings.set_study(study, year)
-        self.tabs.setVisible(study is not None)
+        self.pages.setVisible(study is not None)
         self.placeholder.setVisible(study is None)
+        if self.pages.currentWidget() is self.uncertainty:
+            self.uncertainty.set_study(study)
+        else:
+            self.uncertainty.pending = study  # shown when its page is opened
         self.add_button.setEnabled(study is not None)
         if study is None:
             self._update_buttons()
@@ -861,6 +880,12 @@ class StudyEditor(QWidget):
             else:
                 ed.pending = study  # shown when its tab is opened
         self._update_buttons()
+
+    def _page_opened(self, _index: int) -> None:
+        ed = self.uncertainty
+        if self.pages.currentWidget() is ed and ed.pending is not None:
+            study, ed.pending = ed.pending, None
+            ed.set_study(study)
 
     def _tab_opened(self, index: int) -> None:
         ed = self.tabs.widget(index)

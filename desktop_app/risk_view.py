@@ -380,6 +380,12 @@ class RiskView(QWidget):
         self._draw_breakevens(risk)
         self._draw_map(risk)
 
+    def _label(self, address: str) -> str:
+        """An input in words ("HP-4 hydraulic press: operating cost gradient")."""
+        from core.risk.labels import input_label
+
+        return input_label(address, None if self._result is None else self._result.study)
+
     def _draw_tornado(self, risk: Any) -> None:
         plot = self.tornado_plot
         if plot.plotItem.legend is None:
@@ -394,20 +400,30 @@ class RiskView(QWidget):
             return  # no AW difference with this study period (see the notes)
         lows = np.nan_to_num(np.array([b.difference_at_low for b in bars]), nan=base)
         highs = np.nan_to_num(np.array([b.difference_at_high for b in bars]), nan=base)
-        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.6,
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.5,
                                      width=np.abs(lows - base), brush=LOW_COLOUR,
                                      name="input at its 10th percentile"))
-        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, highs), y=ys, height=0.6,
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, highs), y=ys, height=0.5,
                                      width=np.abs(highs - base), brush=HIGH_COLOUR,
                                      name="input at its 90th percentile"))
         plot.addItem(pg.InfiniteLine(pos=base, angle=90, pen=pg.mkPen("k", width=1)))
         plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
                                      pen=pg.mkPen((150, 0, 0), width=1,
                                                   style=Qt.PenStyle.DashLine)))
+        # Each input named in words just above its bar (a tick label that long would
+        # take half the chart's width): the x range is set so the names start at its edge.
+        values = np.concatenate([lows, highs, [base, 0.0]])
+        lo, hi = float(values.min()), float(values.max())
+        pad = 0.06 * (hi - lo or 1.0)
+        plot.setXRange(lo - pad, hi + pad, padding=0)
+        plot.setYRange(-1.4, len(bars) - 0.1, padding=0)  # room for the legend below
+        for y, b in zip(ys, bars, strict=True):
+            text = pg.TextItem(self._label(b.address), color="k", anchor=(0, 1))
+            text.setPos(lo - pad, float(y) + 0.25)
+            plot.addItem(text)
         axis = plot.getAxis("left")
-        axis.setTicks([[(float(y), b.address) for y, b in zip(ys, bars, strict=True)]])
-        width = max(len(b.address) for b in bars)
-        axis.setWidth(int(min(7 * width + 12, 320)))
+        axis.setTicks([[(float(y), "") for y in ys]])
+        axis.setWidth(8)
 
     def _draw_histogram(self, *_: Any) -> None:
         plot = self.histogram_plot
@@ -437,7 +453,7 @@ class RiskView(QWidget):
         table.setRowCount(len(risk.inputs))
         for row, item in enumerate(risk.inputs):
             lo, hi = risk.breakeven_ranges[item.address]
-            cells = [item.address, _value(item.estimate, item.address),
+            cells = [self._label(item.address), _value(item.estimate, item.address),
                      _value(risk.breakeven[item.address], item.address),
                      f"{_value(lo, item.address)} to {_value(hi, item.address)}"]
             for col, text in enumerate(cells):
@@ -459,8 +475,8 @@ class RiskView(QWidget):
         dy = (ys[-1] - ys[0]) / max(len(ys) - 1, 1)
         self.map_image.setRect(QRectF(xs[0] - dx / 2, ys[0] - dy / 2,
                                       (xs[-1] - xs[0]) + dx or 1.0, (ys[-1] - ys[0]) + dy or 1e-3))
-        self.map_plot.setLabel("bottom", m.x_input)
-        self.map_plot.setLabel("left", m.y_input)
+        self.map_plot.setLabel("bottom", self._label(m.x_input))
+        self.map_plot.setLabel("left", self._label(m.y_input))
         x0, y0 = m.x_estimate, m.y_estimate
         self.map_marker.setData([x0], [y0])
         self.map_plot.autoRange()
