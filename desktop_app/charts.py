@@ -63,6 +63,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from desktop_app import palette
+
 
 class _Probe(QObject):
     ping = Signal()
@@ -94,7 +96,7 @@ guard_signal_refcount_bug()
 __all__ = ["ChartPanel", "PALETTE", "VIEWS", "format_money", "MoneyAxis", "YearAxis"]
 
 # Okabe & Ito's colour-blind-safe palette (yellow left out: unreadable on white).
-PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+PALETTE = palette.SERIES  # the defender in the keep colour, the first challenger in replace
 SYMBOLS = ("o", "s", "t", "d", "h", "p", "star")
 DASHES = (Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine,
           Qt.PenStyle.DashDotLine, Qt.PenStyle.DashDotDotLine)

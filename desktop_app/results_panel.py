@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from desktop_app import palette
 from desktop_app.charts import format_money, years_text
 
 __all__ = ["ResultsPanel", "badge_for", "caution_texts", "FALLBACK_CAUTIONS"]
@@ -43,13 +44,8 @@ FALLBACK_CAUTIONS = (
     "engineering practice where it applies.",
 )
 
-# Okabe & Ito colours: (background, text).
-BADGE_COLOURS = {
-    "keep": ("#009E73", "#ffffff"),
-    "replace-now": ("#D55E00", "#ffffff"),
-    "replace-later": ("#E69F00", "#000000"),
-    "none": ("#9a9a9a", "#ffffff"),
-}
+# (background, text): keep and replace as everywhere in the window (desktop_app/palette.py).
+BADGE_COLOURS = palette.BADGE_COLOURS
 
 COLUMNS = ("Rank", "Alternative", "Role", "ESL", "AW at ESL", "EAC at ESL")
 

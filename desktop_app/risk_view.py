@@ -39,6 +39,7 @@ from PySide6.QtCore import (
     QThreadPool,
     Signal,
 )
+from PySide6.QtGui import QBrush, QColor
 from PySide6.QtWidgets import (
     QCheckBox,
     QFrame,
@@ -58,11 +59,14 @@ from PySide6.QtWidgets import (
 )
 
 from core.results import StudyResult
+from desktop_app import palette
 
-LOW_COLOUR = (70, 120, 190)
-HIGH_COLOUR = (225, 135, 40)
-REPLACE_COLOUR = (95, 170, 110)
-KEEP_COLOUR = (205, 205, 205)
+# Keep and replace as everywhere in the window (desktop_app/palette.py); the tornado's
+# percentile bars in greys, so they never read as keep or replace.
+LOW_COLOUR = palette.rgb(palette.LOW)
+HIGH_COLOUR = palette.rgb(palette.HIGH)
+REPLACE_COLOUR = palette.rgb(palette.REPLACE_TINT)
+KEEP_COLOUR = palette.rgb(palette.KEEP_TINT)
 #: Each chart's minimum size: readable tick labels and bars on a 1366x768 screen.
 CHART_MINIMUM = QSize(380, 260)
 
@@ -189,7 +193,10 @@ class RiskView(QWidget):
                                     "AW difference (best challenger - defender)")
         self.cumulative = QCheckBox("Cumulative")
         self.cumulative.toggled.connect(self._draw_histogram)
-        self.map_plot = _plot("Where replacing wins (green) ", "MARR", "first cost")
+        self.map_plot = _plot("", "MARR", "first cost")
+        self.map_plot.setTitle("Where replacing wins: REPLACE (orange) or KEEP (blue); "
+                               "× marks the estimates", color="k", size="9pt")
+        self.map_words: list[pg.TextItem] = []
         for name in ("left", "bottom"):
             self.map_plot.getAxis(name).enableAutoSIPrefix(False)
         self.map_image = pg.ImageItem()
@@ -408,7 +415,7 @@ class RiskView(QWidget):
                                      name="input at its 90th percentile"))
         plot.addItem(pg.InfiniteLine(pos=base, angle=90, pen=pg.mkPen("k", width=1)))
         plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
-                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                     pen=pg.mkPen((60, 60, 60), width=1,
                                                   style=Qt.PenStyle.DashLine)))
         # Each input named in words just above its bar (a tick label that long would
         # take half the chart's width): the x range is set so the names start at its edge.
@@ -436,16 +443,30 @@ class RiskView(QWidget):
             if d.size:
                 step = max(1, d.size // 2000)
                 share = np.arange(1, d.size + 1) / d.size
-                plot.plot(d[::step], share[::step], pen=pg.mkPen(LOW_COLOUR, width=2))
+                plot.plot(d[::step], share[::step], pen=pg.mkPen("k", width=2))
             plot.setLabel("left", "share of trials at or below")
         else:
             counts, edges = risk.histogram()
             if counts.size:
-                plot.addItem(pg.BarGraphItem(x=0.5 * (edges[:-1] + edges[1:]), height=counts,
-                                             width=np.diff(edges), brush=LOW_COLOUR))
+                # bins right of zero favour replacing, left of zero keeping: coloured and
+                # named so (the legend), with a hatch on the keep side as a second cue
+                if plot.plotItem.legend is None:
+                    plot.addLegend(offset=(10, 10), labelTextColor="k")
+                plot.plotItem.legend.clear()
+                centres = 0.5 * (edges[:-1] + edges[1:])
+                for side, colour, words, style in (
+                        (centres > 0, palette.REPLACE, "favours replacing (> 0)",
+                         Qt.BrushStyle.SolidPattern),
+                        (centres <= 0, palette.KEEP, "favours keeping (≤ 0)",
+                         Qt.BrushStyle.BDiagPattern)):
+                    if side.any():
+                        plot.addItem(pg.BarGraphItem(
+                            x=centres[side], height=counts[side], width=np.diff(edges)[side],
+                            brush=QBrush(QColor(colour), style), pen=pg.mkPen(colour),
+                            name=words))
             plot.setLabel("left", "trials")
         plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
-                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                     pen=pg.mkPen((60, 60, 60), width=1,
                                                   style=Qt.PenStyle.DashLine)))
 
     def _draw_breakevens(self, risk: Any) -> None:
@@ -475,6 +496,22 @@ class RiskView(QWidget):
         dy = (ys[-1] - ys[0]) / max(len(ys) - 1, 1)
         self.map_image.setRect(QRectF(xs[0] - dx / 2, ys[0] - dy / 2,
                                       (xs[-1] - xs[0]) + dx or 1.0, (ys[-1] - ys[0]) + dy or 1e-3))
+        for item in self.map_words:
+            self.map_plot.removeItem(item)
+        self.map_words = []
+        grid_x, grid_y = np.meshgrid(xs, ys)
+        won = np.asarray(m.replace, dtype=bool)
+        for mask, words, colour in ((won, "REPLACE", palette.REPLACE),
+                                    (~won, "KEEP", palette.KEEP)):
+            if mask.any():  # the word at the middle of its region
+                text = pg.TextItem(words, color=colour, anchor=(0.5, 0.5),
+                                   fill=pg.mkBrush(255, 255, 255, 200))
+                font = text.textItem.font()
+                font.setBold(True)
+                text.setFont(font)
+                text.setPos(float(np.median(grid_x[mask])), float(np.median(grid_y[mask])))
+                self.map_plot.addItem(text)
+                self.map_words.append(text)
         self.map_plot.setLabel("bottom", self._label(m.x_input))
         self.map_plot.setLabel("left", self._label(m.y_input))
         x0, y0 = m.x_estimate, m.y_estimate
