@@ -424,8 +424,11 @@ class RiskView(QWidget):
         pad = 0.06 * (hi - lo or 1.0)
         plot.setXRange(lo - pad, hi + pad, padding=0)
         plot.setYRange(-1.4, len(bars) - 0.1, padding=0)  # room for the legend below
-        for y, b in zip(ys, bars, strict=True):
-            text = pg.TextItem(self._label(b.address), color="k", anchor=(0, 1))
+        for y, b, low, high in zip(ys, bars, lows, highs, strict=True):
+            words = self._label(b.address)
+            if max(abs(low - base), abs(high - base)) < 0.005:
+                words += " (no effect here)"
+            text = pg.TextItem(words, color="k", anchor=(0, 1))
             text.setPos(lo - pad, float(y) + 0.25)
             plot.addItem(text)
         axis = plot.getAxis("left")

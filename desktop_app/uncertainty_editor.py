@@ -121,7 +121,7 @@ class InputRow:
         self.name.setObjectName(f"input:{address}")
         self.estimate = QLabel()
         self.estimate.setStyleSheet("color: #555f6d;")
-        self.kind = compact(QComboBox(), 9)
+        self.kind = compact(QComboBox(), 8)
         self.kind.setObjectName(f"kind:{address}")
         for _kind, words in KINDS:
             self.kind.addItem(words)
@@ -130,7 +130,7 @@ class InputRow:
         self.edits: list[QLineEdit] = []
         self.kind.setSizePolicy(QSizePolicy.Policy.Fixed, QSizePolicy.Policy.Fixed)
         params = QHBoxLayout()
-        params.setContentsMargins(12, 0, 0, 6)
+        params.setContentsMargins(6, 0, 0, 6)
         params.setSpacing(6)
         params.addWidget(self.kind)
         for k in range(3):
@@ -138,10 +138,9 @@ class InputRow:
             edit = view.bind(f"{self.words}, parameter {k + 1}", self._getter(k), self._setter(k),
                              merge=("uncertainty", address, k))
             edit.setObjectName(f"param:{address}:{k}")
-            edit.setMinimumWidth(56)
+            edit.setMinimumWidth(44)
             self.labels.append(label)
             self.edits.append(edit)
-            params.addSpacing(4)
             params.addWidget(label)
             params.addWidget(edit, 1)
         params.addStretch(0)

@@ -138,6 +138,15 @@ def test_no_text_clipped(qtbot, demo, tmp_path, size):
             assert text_fits(label), f"editor label clipped: {label.text()!r}"
     for button in (editor.add_button, editor.remove_button):
         assert text_fits(button), button.text()
+    # The Uncertainty page (demo assets carry distributions) fits the editor's width too.
+    editor.pages.setCurrentWidget(editor.uncertainty)
+    settle(qtbot, window)
+    assert editor.uncertainty.rows and editor.uncertainty.study is not None
+    assert editor_scroll.horizontalScrollBar().maximum() == 0
+    for row in editor.uncertainty.rows:
+        assert text_fits(row.estimate), row.estimate.text()
+    editor.pages.setCurrentIndex(0)
+    settle(qtbot, window)
     # The title and the alternative's name are shown whole.
     for edit in (editor.settings.title_edit, editor.editors()[0].name_edit):
         room = edit.width() - 12
