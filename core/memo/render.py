@@ -795,7 +795,9 @@ class _Builder:
             rows.append(["Inflation", "not modelled; all estimates in one kind of money"])
         if st.uncertainty is not None:
             u = st.uncertainty
-            ins = "; ".join(f"{a}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
+            from core.risk.labels import input_label
+
+            ins = "; ".join(f"{input_label(a, st)}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
                             for a, dist in u.inputs)
             rows.append(["Uncertainty", f"{u.trials:,} trials"
                          + (f", seed {u.seed}" if u.seed is not None else "") + f"; {ins}"])
