@@ -51,13 +51,15 @@ def pane_sizes(width: int) -> list[int]:
 
 
 def chart_heights(height: int) -> list[int]:
-    """Chart and results heights for the results pane ``height`` pixels tall: the
-    results (badge, reason, key figures) get the larger share on a short screen.
+    """Chart and results heights for the results pane ``height`` pixels tall: half each,
+    the chart at most 520 pixels (the results scroll; the cautions stay in view).
 
     >>> chart_heights(630)
-    [265, 365]
+    [315, 315]
+    >>> chart_heights(1200)
+    [520, 680]
     """
-    chart = max(220, min(520, round(height * 0.42)))
+    chart = max(220, min(520, round(height * 0.5)))
     return [chart, max(height - chart, 0)]
 
 

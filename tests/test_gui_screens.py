@@ -169,6 +169,14 @@ def test_no_text_clipped(qtbot, demo, tmp_path, size):
     needed = sum(table.rowHeight(r) for r in range(rows))
     assert table.viewport().height() >= needed
     assert table.verticalScrollBar().maximum() == 0
+    # The chart's value-axis title fits along the axis (its short form on a short chart).
+    from PySide6.QtGui import QFont, QFontMetrics
+
+    plot = window.chart_panel.plot_widget().getPlotItem()
+    font = QFont(window.chart_panel.font())
+    font.setPointSizeF(9.0)
+    title = plot.getAxis("left").labelText
+    assert title and QFontMetrics(font).horizontalAdvance(title) <= plot.getViewBox().height()
     for widget in (window.register, window.editor.settings.title_edit, window.right_tabs,
                    panel.badge, window.chart_panel):
         assert visible_in_window(widget, window), type(widget).__name__
