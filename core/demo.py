@@ -60,6 +60,8 @@ def asset_study(fleet: dict[str, Any], asset: dict[str, Any], defender: dict[str
         obj["notes"] = asset["notes"]
     if asset.get("technology"):
         obj["technology"] = asset["technology"]
+    if asset.get("uncertainty") and defender is None:  # this year's study only
+        obj["uncertainty"] = asset["uncertainty"]
     return parse_study(obj, f"fleet.json: {asset['tag']}")
 
 

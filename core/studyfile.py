@@ -316,6 +316,11 @@ def split_address(address: str, study: Study) -> tuple[Alternative | None, str]:
     raise KeyError(address)
 
 
+def check_address(address: str, where: str, study: Study) -> None:
+    """Refuse (StudyError at ``where``) an uncertain-input address ``study`` does not have."""
+    _check_address(address, where, study)
+
+
 def _check_address(address: str, where: str, study: Study) -> None:
     try:
         alt, suffix = split_address(address, study)

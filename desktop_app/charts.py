@@ -63,6 +63,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from desktop_app import palette
+
 
 class _Probe(QObject):
     ping = Signal()
@@ -94,7 +96,7 @@ guard_signal_refcount_bug()
 __all__ = ["ChartPanel", "PALETTE", "VIEWS", "format_money", "MoneyAxis", "YearAxis"]
 
 # Okabe & Ito's colour-blind-safe palette (yellow left out: unreadable on white).
-PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+PALETTE = palette.SERIES  # the defender in the keep colour, the first challenger in replace
 SYMBOLS = ("o", "s", "t", "d", "h", "p", "star")
 DASHES = (Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine,
           Qt.PenStyle.DashDotLine, Qt.PenStyle.DashDotDotLine)
@@ -272,6 +274,7 @@ class _Plot(pg.PlotWidget):
         item.layout.setAlignment(legend, Qt.AlignmentFlag.AlignHCenter)
         self.legend = _Legend(legend)
         self._texts: dict[str, str] = {}
+        self._shown_labels: dict[str, str] = {}
         self.targets: list[_Target] = []
         self.labels: list[pg.TextItem] = []
         self.crosshair = pg.InfiniteLine(angle=90, movable=False,
@@ -315,7 +318,38 @@ class _Plot(pg.PlotWidget):
     def set_axis_label(self, axis: str, text: str) -> None:
         if self._texts.get(axis) != text:
             self._texts[axis] = text
-            self.getPlotItem().setLabel(axis, escape(text), color="k", **{"font-size": "9pt"})
+            self._shown_labels.pop(axis, None)
+            self._fit_axis_label(axis)
+
+    def _fit_axis_label(self, axis: str) -> None:
+        """The axis title, or its short form (the part after ", ": "EAC = -AW (£/year)")
+        when the whole title is longer than the axis (a chart on a laptop screen)."""
+        text = self._texts.get(axis)
+        if text is None:
+            return
+        room = self.getPlotItem().getViewBox().height() if axis in ("left", "right") else \
+            self.getPlotItem().getViewBox().width()
+        font = QFont(self.font())
+        font.setPointSizeF(9.0)
+        if self.isVisible() and ", " in text and \
+                QFontMetrics(font).horizontalAdvance(text) > room - 8:
+            shown = text.split(", ", 1)[1]
+        else:
+            shown = text
+        if self._shown_labels.get(axis) != shown:
+            self._shown_labels[axis] = shown
+            self.getPlotItem().setLabel(axis, escape(shown), color="k", **{"font-size": "9pt"})
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().showEvent(event)
+        for axis in ("left", "bottom"):
+            self._fit_axis_label(axis)
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().resizeEvent(event)
+        if "_shown_labels" in self.__dict__:  # pyqtgraph calls this from its __init__ too
+            for axis in ("left", "bottom"):
+                self._fit_axis_label(axis)
 
     def fit_left_axis(self, *arrays: np.ndarray) -> None:
         """Fix the value axis width to its widest tick label (Qt lays it out late otherwise)."""

@@ -314,7 +314,20 @@ def rename_alternative(study: Study, old: str, new: str) -> Study:
 
 
 def replace_alternative(study: Study, name: str, alt: Alternative) -> Study:
+    """``study`` with alternative ``name`` replaced by ``alt``.  An uncertain input the new
+    alternative no longer has (a gradient after switching to growth, say) is dropped with
+    it; undo brings both back."""
     if study.defender.name == name:
-        return replace(study, defender=alt)
-    return replace(study, challengers=tuple(alt if c.name == name else c
-                                            for c in study.challengers))
+        new = replace(study, defender=alt)
+    else:
+        new = replace(study, challengers=tuple(alt if c.name == name else c
+                                               for c in study.challengers))
+    unc = new.uncertainty
+    if unc is not None:
+        from core.risk.labels import uncertain_inputs
+
+        valid = set(uncertain_inputs(new))
+        inputs = tuple((a, d) for a, d in unc.inputs if a in valid)
+        if inputs != unc.inputs:
+            new = replace(new, uncertainty=replace(unc, inputs=inputs) if inputs else None)
+    return new

@@ -44,6 +44,7 @@ from core.estimates import (
     Tax,
 )
 from desktop_app.document import rename_alternative, replace_alternative
+from desktop_app.reflow import Reflow
 from desktop_app.validation import (
     FieldError,
     fmt_money,
@@ -172,16 +173,23 @@ class StudySettings(_StudyView):
         self.set_year = set_year
         grid = QGridLayout(self)
         grid.setContentsMargins(6, 6, 6, 6)
-        left, right = QFormLayout(), QFormLayout()
+        top = QFormLayout()
+        top.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+        top.setContentsMargins(0, 0, 0, 0)
+        left_box, right_box = QWidget(), QWidget()
+        left, right = QFormLayout(left_box), QFormLayout(right_box)
         for form in (left, right):
             form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
-        grid.addLayout(left, 0, 0)
-        grid.addLayout(right, 0, 1)
+            form.setContentsMargins(0, 0, 0, 0)
+        grid.addLayout(top, 0, 0)
+        self.columns = Reflow(left_box, right_box)
+        grid.addWidget(self.columns, 1, 0)
 
+        # The title runs the full width: it holds the site and the asset's whole name.
         self.title_edit = self.bind(
             "Title", lambda s: s.title,
             lambda s, t: replace(s, title=parse_text(t, "Title")))
-        left.addRow("Title", self.title_edit)
+        top.addRow("Title", self.title_edit)
         self.marr_edit = self.bind(
             "MARR", lambda s: fmt_percent(s.marr),
             lambda s, t: replace(s, marr=parse_percent(t, "MARR")))
@@ -440,13 +448,15 @@ class AlternativeEditor(_StudyView):
         self.pending: Study | None = None
         outer = QVBoxLayout(self)
         outer.setContentsMargins(6, 6, 6, 6)
-        top = QHBoxLayout()
-        outer.addLayout(top)
 
         basics = QGroupBox("Alternative")
         form = QFormLayout(basics)
+        # The name runs the full width, above the two boxes: it is the longest field.
+        name_row = QFormLayout()
+        name_row.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
         self.name_edit = self.bind("Name", lambda s: self.alt_of(s).name, self._set_name)
-        form.addRow("Name", self.name_edit)
+        name_row.addRow("Name", self.name_edit)
+        outer.addLayout(name_row)
         self.price_label = QLabel("First cost")
         self.price_edit = self.bind(
             "Price", lambda s: fmt_money(self.alt_of(s).price),
@@ -469,7 +479,6 @@ class AlternativeEditor(_StudyView):
         form.addRow(self.dep_basis_label, self.dep_basis)
         self.dep_age = self.bind("Tax age", lambda s: self._dep_text(s, "age"), self._set_dep_age)
         form.addRow("Tax age (years)", self.dep_age)
-        top.addWidget(basics, 1)
 
         rules = QGroupBox("Generators (fill the table)")
         rform = QFormLayout(rules)
@@ -499,7 +508,8 @@ class AlternativeEditor(_StudyView):
             "Growth", lambda s: self._oc_text(s, "growth"),
             lambda s, t: self._set_oc(s, growth=parse_percent(t, "Growth")))
         rform.addRow("Growth (% a year)", self.growth_edit)
-        top.addWidget(rules, 1)
+        self.columns = Reflow(basics, rules)
+        outer.addWidget(self.columns)
 
         self.model = YearTableModel(self)
         self.table = QTableView()
@@ -763,25 +773,40 @@ class StudyEditor(QWidget):
         self.settings = StudySettings(commit, report, set_year)
         inner.addWidget(self.settings)
         layout.addWidget(box)
-        bar = QHBoxLayout()
-        self.add_button = QPushButton("Add challenger")
-        self.add_button.clicked.connect(self.add_challenger)
-        self.remove_button = QPushButton("Remove challenger")
-        self.remove_button.clicked.connect(self.remove_challenger)
-        bar.addWidget(QLabel("Defender and challengers"))
-        bar.addStretch(1)
-        bar.addWidget(self.add_button)
-        bar.addWidget(self.remove_button)
-        layout.addLayout(bar)
         self.notice = QLabel("")
         self.notice.setObjectName("editor_notice")
         self.notice.setWordWrap(True)
         self.notice.setStyleSheet("color: #9b2c1f; font-weight: bold; padding: 2px 4px;")
         self.notice.hide()
         layout.addWidget(self.notice)
+        # Two pages: the alternatives (a tab each) and the uncertainty of their estimates.
+        self.pages = QTabWidget()
+        self.pages.setObjectName("editor_pages")
+        alternatives = QWidget()
+        alt_layout = QVBoxLayout(alternatives)
+        alt_layout.setContentsMargins(0, 4, 0, 0)
+        bar = QHBoxLayout()
+        self.add_button = QPushButton("Add challenger")
+        self.add_button.clicked.connect(self.add_challenger)
+        self.remove_button = QPushButton("Remove challenger")
+        self.remove_button.clicked.connect(self.remove_challenger)
+        bar.addStretch(1)
+        bar.addWidget(self.add_button)
+        bar.addWidget(self.remove_button)
+        alt_layout.addLayout(bar)
         self.tabs = QTabWidget()
+        self.tabs.setElideMode(Qt.TextElideMode.ElideRight)
+        self.tabs.setUsesScrollButtons(True)
         self.tabs.currentChanged.connect(self._tab_opened)
-        layout.addWidget(self.tabs, 1)
+        alt_layout.addWidget(self.tabs, 1)
+        from desktop_app.uncertainty_editor import UncertaintyEditor  # it builds on this module
+
+        self.uncertainty = UncertaintyEditor(commit, report)
+        self.pages.addTab(alternatives, "Defender and challengers")
+        self.pages.addTab(self.uncertainty, "Uncertainty")
+        self.pages.setTabToolTip(1, "Distributions of uncertain estimates, for the Risk tab")
+        self.pages.currentChanged.connect(self._page_opened)
+        layout.addWidget(self.pages, 1)
         self.placeholder = QWidget()
         pl = QVBoxLayout(self.placeholder)
         note = QLabel("This asset has no study yet.")
@@ -799,7 +824,7 @@ class StudyEditor(QWidget):
     def clear_errors(self) -> None:
         """Forget refusals shown for the previous asset (red fields, the inline notice)."""
         self.show_notice("")
-        for view in [self.settings, *self.editors()]:
+        for view in [self.settings, *self.editors(), self.uncertainty]:
             for b in view.bindings:
                 b.edit.setStyleSheet("")
                 b.edit.setToolTip("")
@@ -818,12 +843,17 @@ class StudyEditor(QWidget):
         for ed in self.editors():
             ed.currency = currency
             ed.retitle()
+        self.uncertainty.currency = currency
 
     def set_study(self, study: Study | None, year: int | None) -> None:
         self.study = study
         self.settings.set_study(study, year)
-        self.tabs.setVisible(study is not None)
+        self.pages.setVisible(study is not None)
         self.placeholder.setVisible(study is None)
+        if self.pages.currentWidget() is self.uncertainty:
+            self.uncertainty.set_study(study)
+        else:
+            self.uncertainty.pending = study  # shown when its page is opened
         self.add_button.setEnabled(study is not None)
         if study is None:
             self._update_buttons()
@@ -843,12 +873,19 @@ class StudyEditor(QWidget):
             text = ("Defender: " if i == 0 else "") + alt.name
             if self.tabs.tabText(i) != text:
                 self.tabs.setTabText(i, text)
+                self.tabs.setTabToolTip(i, text)  # a narrow editor elides the tab text
             ed = self.tabs.widget(i)
             if i == current:
                 ed.set_study(study)
             else:
                 ed.pending = study  # shown when its tab is opened
         self._update_buttons()
+
+    def _page_opened(self, _index: int) -> None:
+        ed = self.uncertainty
+        if self.pages.currentWidget() is ed and ed.pending is not None:
+            study, ed.pending = ed.pending, None
+            ed.set_study(study)
 
     def _tab_opened(self, index: int) -> None:
         ed = self.tabs.widget(index)

@@ -38,7 +38,7 @@ from PySide6.QtWidgets import (
 from core.errors import StudyError
 from core.estimates import Study
 from core.results import StudyResult
-from desktop_app import recovery
+from desktop_app import recovery, screen
 from desktop_app.commands import (
     AddAssetCommand,
     RemoveAssetCommand,
@@ -95,7 +95,7 @@ class MainWindow(QMainWindow):
         self.undo_stack.cleanChanged.connect(lambda _c: self._update_modified())
         self.undo_stack.indexChanged.connect(lambda _i: self._update_modified())
         self.setWindowTitle(f"[*]{APP_NAME}")
-        self.resize(1720, 980)
+        screen.place_on_screen(self)
         self._sized = False
         self._build()
         self._build_menus()
@@ -113,7 +113,7 @@ class MainWindow(QMainWindow):
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setWidget(self.editor)
-        scroll.setMinimumWidth(480)
+        scroll.setMinimumWidth(380)
 
         self.chart_panel = self.results_panel = self.risk_view = None
         self.results_page = QWidget()
@@ -134,7 +134,7 @@ class MainWindow(QMainWindow):
         title.setStyleSheet("font-weight: bold; padding: 4px;")
         ll.addWidget(title)
         ll.addWidget(self.register)
-        left.setMinimumWidth(320)  # room for the asset names beside state and year
+        left.setMinimumWidth(240)  # room for the asset tags beside state and year
 
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(left)
@@ -143,7 +143,9 @@ class MainWindow(QMainWindow):
         self.splitter.setStretchFactor(0, 0)
         self.splitter.setStretchFactor(1, 3)
         self.splitter.setStretchFactor(2, 4)
-        self.splitter.setSizes([370, 680, 670])
+        self.splitter.setSizes(screen.pane_sizes(1366))
+        self.splitter.setChildrenCollapsible(True)  # drag a pane to its edge to hide it
+        self.splitter.setObjectName("main_split")
         self.setCentralWidget(self.splitter)
 
         bar = self.statusBar()
@@ -174,7 +176,12 @@ class MainWindow(QMainWindow):
         right_split.setStretchFactor(0, 1)
         right_split.setStretchFactor(1, 1)
         right_split.setSizes([470, 430])
+        right_split.setChildrenCollapsible(True)
+        right_split.setObjectName("right_split")
         self.right_split = right_split
+        state = self.prefs.layout("right_split")
+        if state is None or not right_split.restoreState(state):
+            right_split.setSizes(screen.chart_heights(max(self.right_tabs.height() - 30, 400)))
         self.loading_label.hide()
         self.results_layout.addWidget(right_split)
         if not results_panel_shows_cautions():
@@ -263,6 +270,10 @@ class MainWindow(QMainWindow):
         e.addAction(redo)
         e.addSeparator()
         e.addAction(self._action("&Find asset", self.register.filter_edit.setFocus, sk.Find))
+        e.addSeparator()
+        e.addAction(self._action("Reset pane &layout", self.reset_layout,
+                                 tip="Pane widths as shares of the window (drag a pane's edge "
+                                     "to resize or hide it)"))
 
         a = self.menuBar().addMenu("&Asset")
         self.add_asset_action = self._action("&Add asset…", self.add_asset)
@@ -470,15 +481,24 @@ class MainWindow(QMainWindow):
 
     def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
         super().showEvent(event)
-        if not self._sized:  # give the editor its width once the window has its own
+        if not self._sized:  # the saved layout, else a share of the window's own width
             self._sized = True
-            width = max(self.splitter.width(), 1)
-            left = min(420, int(width * 0.23))
-            middle = int(width * 0.39)
-            self.splitter.setSizes([left, middle, width - left - middle])
+            if not screen.restore_layout(self.prefs, self, {"main_split": self.splitter}):
+                self.reset_layout()
+
+    def reset_layout(self) -> None:
+        """Pane widths and the chart/results split as shares of the window's size now."""
+        self.splitter.setSizes(screen.pane_sizes(max(self.splitter.width(), 1)))
+        if getattr(self, "right_split", None) is not None:
+            self.right_split.setSizes(screen.chart_heights(
+                max(self.right_split.height(), self.right_tabs.height() - 30, 1)))
 
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt's name
         if self.maybe_save():
+            splitters = {"main_split": self.splitter}
+            if getattr(self, "right_split", None) is not None:
+                splitters["right_split"] = self.right_split
+            screen.save_layout(self.prefs, self, splitters)
             self.cancel_fleet()
             self.autosave_timer.stop()
             self.pool.waitForDone(3000)  # let a running recompute stop before the views go

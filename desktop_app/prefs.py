@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from PySide6.QtCore import QSettings
+from PySide6.QtCore import QByteArray, QSettings
 from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
@@ -70,6 +70,14 @@ class Preferences:
     @autosave_seconds.setter
     def autosave_seconds(self, value: int) -> None:
         self.store.setValue("prefs/autosave_seconds", int(value))
+
+    # the window's layout: geometry and splitter states (QByteArray from save*/restore*)
+    def layout(self, name: str) -> QByteArray | None:
+        value = self.store.value(f"layout/{name}", None)
+        return value if isinstance(value, QByteArray) and not value.isEmpty() else None
+
+    def set_layout(self, name: str, state: QByteArray) -> None:
+        self.store.setValue(f"layout/{name}", state)
 
     # recent files and the last workbook
     def recent(self) -> list[str]:

@@ -18,12 +18,13 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from desktop_app import palette
 from desktop_app.document import Document
 
 KEY_ROLE = Qt.ItemDataRole.UserRole + 1
 SORT_ROLE = Qt.ItemDataRole.UserRole + 2
 COLUMNS = ["Site / asset", "Recommendation", "Year"]
-STATE_COLOURS = {"replace now": "#b03a2e", "keep": "#1e7a46", "not yet studied": "#6c757d"}
+STATE_COLOURS = palette.STATE_COLOURS
 
 
 class RegisterProxy(QSortFilterProxyModel):
@@ -166,14 +167,13 @@ class RegisterPane(QWidget):
         if rec.text() != state.recommendation:
             rec.setText(state.recommendation)
             rec.setData(state.sort_key, SORT_ROLE)
-            colour = STATE_COLOURS.get(state.recommendation,
-                                       "#a05a00" if state.recommendation.startswith("replace in")
-                                       else "#333333")
+            colour = palette.state_colour(state.recommendation)
             rec.setForeground(QBrush(QColor(colour)))
         if est.text() != state.estimates:
             est.setText(state.estimates)
             est.setData((state.out_of_date, state.estimates), SORT_ROLE)
-            est.setForeground(QBrush(QColor("#b03a2e" if state.out_of_date else "#333333")))
+            est.setForeground(QBrush(QColor(palette.ATTENTION if state.out_of_date
+                                            else palette.TEXT)))
             est.setToolTip("The study year is older than this year: restudy with fresh estimates."
                            if state.out_of_date else ("No study year recorded (study files carry "
                                                       "none; workbooks do)." if state.estimates == "—"

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QFrame,
@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from desktop_app import palette
 from desktop_app.charts import format_money, years_text
 
 __all__ = ["ResultsPanel", "badge_for", "caution_texts", "FALLBACK_CAUTIONS"]
@@ -43,13 +44,8 @@ FALLBACK_CAUTIONS = (
     "engineering practice where it applies.",
 )
 
-# Okabe & Ito colours: (background, text).
-BADGE_COLOURS = {
-    "keep": ("#009E73", "#ffffff"),
-    "replace-now": ("#D55E00", "#ffffff"),
-    "replace-later": ("#E69F00", "#000000"),
-    "none": ("#9a9a9a", "#ffffff"),
-}
+# (background, text): keep and replace as everywhere in the window (desktop_app/palette.py).
+BADGE_COLOURS = palette.BADGE_COLOURS
 
 COLUMNS = ("Rank", "Alternative", "Role", "ESL", "AW at ESL", "EAC at ESL")
 
@@ -126,6 +122,7 @@ class ResultsPanel(QWidget):
         header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
         self.table.cellClicked.connect(self._row_clicked)
+        self.table.installEventFilter(self)  # refit the height when the width changes
         self.table.setToolTip("AW: annual worth, signed (costs negative; higher is better).\n"
                               "EAC: equivalent annual cost = -AW (lower is better).\n"
                               "ESL: economic service life, the retention with the best AW.")
@@ -188,10 +185,18 @@ class ResultsPanel(QWidget):
         self.cautions_label.setWordWrap(True)
         self.cautions_label.setTextFormat(Qt.TextFormat.RichText)
         self.cautions_label.setStyleSheet("font-size: 8.5pt; color: #222222;")
-        cautions_layout.addWidget(self.cautions_label)
         self._cautions = caution_texts()
         self.cautions_label.setText("".join(f"<p style='margin:2px 0'>&bull; {_html(t)}</p>"
                                             for t in self._cautions))
+
+        # On a short screen the cautions would take the results' room: at most about six
+        # lines show, the rest scrolls inside the box (the first lines stay in view).
+        cautions_scroll = QScrollArea(self.cautions_box)
+        cautions_scroll.setWidgetResizable(True)
+        cautions_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        cautions_scroll.setWidget(self.cautions_label)
+        cautions_scroll.setMaximumHeight(6 * self.cautions_label.fontMetrics().lineSpacing() + 12)
+        cautions_layout.addWidget(cautions_scroll)
 
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
@@ -365,9 +370,24 @@ class ResultsPanel(QWidget):
                     font = item.font()
                     font.setBold(bold)
                     item.setFont(font)
-        height = self.table.horizontalHeader().height() + 2 * self.table.frameWidth()
-        height += sum(self.table.rowHeight(i) for i in range(self.table.rowCount()))
-        self.table.setFixedHeight(height + 2)
+        self._fit_table_height()
+
+    def _fit_table_height(self) -> None:
+        """Every row visible (the defender's too), with room for a horizontal scroll bar
+        when the columns are wider than the pane."""
+        table = self.table
+        header = table.horizontalHeader()
+        height = max(header.height(), header.sizeHint().height()) + 2 * table.frameWidth()
+        height += sum(table.rowHeight(i) for i in range(table.rowCount()))
+        if header.length() > table.viewport().width():
+            height += table.horizontalScrollBar().sizeHint().height()
+        if table.height() != height + 2:
+            table.setFixedHeight(height + 2)
+
+    def eventFilter(self, watched, event) -> bool:  # noqa: N802 - Qt's name
+        if watched is self.table and event.type() == QEvent.Type.Resize:
+            self._fit_table_height()
+        return super().eventFilter(watched, event)
 
     def _fill_options(self, r: Any) -> None:
         """Caption of the ESL table and, with a study period, the best options in words."""

@@ -29,29 +29,46 @@ from typing import Any
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QCoreApplication, QObject, QRectF, QRunnable, Qt, QThreadPool, Signal
+from PySide6.QtCore import (
+    QCoreApplication,
+    QObject,
+    QRectF,
+    QRunnable,
+    QSize,
+    Qt,
+    QThreadPool,
+    Signal,
+)
+from PySide6.QtGui import QBrush, QColor
 from PySide6.QtWidgets import (
     QCheckBox,
-    QGridLayout,
-    QGroupBox,
+    QFrame,
     QHBoxLayout,
     QHeaderView,
     QLabel,
     QProgressBar,
     QPushButton,
+    QScrollArea,
     QSpinBox,
+    QSplitter,
     QTableWidget,
     QTableWidgetItem,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
 
 from core.results import StudyResult
+from desktop_app import palette
 
-LOW_COLOUR = (70, 120, 190)
-HIGH_COLOUR = (225, 135, 40)
-REPLACE_COLOUR = (95, 170, 110)
-KEEP_COLOUR = (205, 205, 205)
+# Keep and replace as everywhere in the window (desktop_app/palette.py); the tornado's
+# percentile bars in greys, so they never read as keep or replace.
+LOW_COLOUR = palette.rgb(palette.LOW)
+HIGH_COLOUR = palette.rgb(palette.HIGH)
+REPLACE_COLOUR = palette.rgb(palette.REPLACE_TINT)
+KEEP_COLOUR = palette.rgb(palette.KEEP_TINT)
+#: Each chart's minimum size: readable tick labels and bars on a 1366x768 screen.
+CHART_MINIMUM = QSize(380, 260)
 
 
 class RiskSignals(QObject):
@@ -176,7 +193,10 @@ class RiskView(QWidget):
                                     "AW difference (best challenger - defender)")
         self.cumulative = QCheckBox("Cumulative")
         self.cumulative.toggled.connect(self._draw_histogram)
-        self.map_plot = _plot("Where replacing wins (green) ", "MARR", "first cost")
+        self.map_plot = _plot("", "MARR", "first cost")
+        self.map_plot.setTitle("Where replacing wins: REPLACE (orange) or KEEP (blue); "
+                               "× marks the estimates", color="k", size="9pt")
+        self.map_words: list[pg.TextItem] = []
         for name in ("left", "bottom"):
             self.map_plot.getAxis(name).enableAutoSIPrefix(False)
         self.map_image = pg.ImageItem()
@@ -197,22 +217,47 @@ class RiskView(QWidget):
         hist_layout.setContentsMargins(0, 0, 0, 0)
         hist_layout.addWidget(self.histogram_plot, 1)
         hist_layout.addWidget(self.cumulative)
-        be_box = QGroupBox("Breakeven: the value at which the recommendation flips "
-                           "(the rest at their estimates)")
+        be_box = QWidget()
         be_layout = QVBoxLayout(be_box)
+        be_note = QLabel("Breakeven: the value at which the recommendation flips (the rest at "
+                         "their estimates).")
+        be_note.setWordWrap(True)
+        be_layout.addWidget(be_note)
         be_layout.addWidget(self.breakeven_table)
 
-        grid = QGridLayout()
-        grid.addWidget(self.tornado_plot, 0, 0)
-        grid.addWidget(hist_box, 0, 1)
-        grid.addWidget(be_box, 1, 0)
-        grid.addWidget(self.map_plot, 1, 1)
+        # One chart per sub-tab, each at a readable minimum size: four side by side were
+        # cut off on a laptop screen.
+        self.charts = QTabWidget()
+        self.charts.setObjectName("risk_charts")
+        for widget in (self.tornado_plot, self.histogram_plot, self.map_plot):
+            widget.setMinimumSize(CHART_MINIMUM)
+        self.charts.addTab(self.tornado_plot, "Tornado")
+        self.charts.addTab(hist_box, "Distribution")
+        self.charts.addTab(be_box, "Breakevens")
+        self.charts.addTab(self.map_plot, "Two-way map")
 
+        head = QWidget()
+        head_layout = QVBoxLayout(head)
+        head_layout.setContentsMargins(0, 0, 0, 0)
+        head_layout.addLayout(bar)
+        head_layout.addWidget(self.status)
+        head_layout.addWidget(self.summary)
+        head_layout.addStretch(1)
+        self.head_scroll = QScrollArea()
+        self.head_scroll.setWidgetResizable(True)
+        self.head_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        self.head_scroll.setWidget(head)
+        split = QSplitter(Qt.Orientation.Vertical)
+        split.addWidget(self.head_scroll)
+        split.addWidget(self.charts)
+        split.setStretchFactor(0, 0)
+        split.setStretchFactor(1, 1)
+        split.setSizes([120, 560])
+        split.setChildrenCollapsible(False)
+        self.split = split
         layout = QVBoxLayout(self)
-        layout.addLayout(bar)
-        layout.addWidget(self.status)
-        layout.addWidget(self.summary)
-        layout.addLayout(grid, 1)
+        layout.setContentsMargins(4, 4, 4, 4)
+        layout.addWidget(split, 1)
         self._arm()
 
     # ------------------------------------------------------------------ state
@@ -342,6 +387,12 @@ class RiskView(QWidget):
         self._draw_breakevens(risk)
         self._draw_map(risk)
 
+    def _label(self, address: str) -> str:
+        """An input in words ("HP-4 hydraulic press: operating cost gradient")."""
+        from core.risk.labels import input_label
+
+        return input_label(address, None if self._result is None else self._result.study)
+
     def _draw_tornado(self, risk: Any) -> None:
         plot = self.tornado_plot
         if plot.plotItem.legend is None:
@@ -356,20 +407,33 @@ class RiskView(QWidget):
             return  # no AW difference with this study period (see the notes)
         lows = np.nan_to_num(np.array([b.difference_at_low for b in bars]), nan=base)
         highs = np.nan_to_num(np.array([b.difference_at_high for b in bars]), nan=base)
-        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.6,
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, lows), y=ys, height=0.5,
                                      width=np.abs(lows - base), brush=LOW_COLOUR,
                                      name="input at its 10th percentile"))
-        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, highs), y=ys, height=0.6,
+        plot.addItem(pg.BarGraphItem(x0=np.minimum(base, highs), y=ys, height=0.5,
                                      width=np.abs(highs - base), brush=HIGH_COLOUR,
                                      name="input at its 90th percentile"))
         plot.addItem(pg.InfiniteLine(pos=base, angle=90, pen=pg.mkPen("k", width=1)))
         plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
-                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                     pen=pg.mkPen((60, 60, 60), width=1,
                                                   style=Qt.PenStyle.DashLine)))
+        # Each input named in words just above its bar (a tick label that long would
+        # take half the chart's width): the x range is set so the names start at its edge.
+        values = np.concatenate([lows, highs, [base, 0.0]])
+        lo, hi = float(values.min()), float(values.max())
+        pad = 0.06 * (hi - lo or 1.0)
+        plot.setXRange(lo - pad, hi + pad, padding=0)
+        plot.setYRange(-1.4, len(bars) - 0.1, padding=0)  # room for the legend below
+        for y, b, low, high in zip(ys, bars, lows, highs, strict=True):
+            words = self._label(b.address)
+            if max(abs(low - base), abs(high - base)) < 0.005:
+                words += " (no effect here)"
+            text = pg.TextItem(words, color="k", anchor=(0, 1))
+            text.setPos(lo - pad, float(y) + 0.25)
+            plot.addItem(text)
         axis = plot.getAxis("left")
-        axis.setTicks([[(float(y), b.address) for y, b in zip(ys, bars, strict=True)]])
-        width = max(len(b.address) for b in bars)
-        axis.setWidth(int(min(7 * width + 12, 320)))
+        axis.setTicks([[(float(y), "") for y in ys]])
+        axis.setWidth(8)
 
     def _draw_histogram(self, *_: Any) -> None:
         plot = self.histogram_plot
@@ -382,16 +446,30 @@ class RiskView(QWidget):
             if d.size:
                 step = max(1, d.size // 2000)
                 share = np.arange(1, d.size + 1) / d.size
-                plot.plot(d[::step], share[::step], pen=pg.mkPen(LOW_COLOUR, width=2))
+                plot.plot(d[::step], share[::step], pen=pg.mkPen("k", width=2))
             plot.setLabel("left", "share of trials at or below")
         else:
             counts, edges = risk.histogram()
             if counts.size:
-                plot.addItem(pg.BarGraphItem(x=0.5 * (edges[:-1] + edges[1:]), height=counts,
-                                             width=np.diff(edges), brush=LOW_COLOUR))
+                # bins right of zero favour replacing, left of zero keeping: coloured and
+                # named so (the legend), with a hatch on the keep side as a second cue
+                if plot.plotItem.legend is None:
+                    plot.addLegend(offset=(10, 10), labelTextColor="k")
+                plot.plotItem.legend.clear()
+                centres = 0.5 * (edges[:-1] + edges[1:])
+                for side, colour, words, style in (
+                        (centres > 0, palette.REPLACE, "favours replacing (> 0)",
+                         Qt.BrushStyle.SolidPattern),
+                        (centres <= 0, palette.KEEP, "favours keeping (≤ 0)",
+                         Qt.BrushStyle.BDiagPattern)):
+                    if side.any():
+                        plot.addItem(pg.BarGraphItem(
+                            x=centres[side], height=counts[side], width=np.diff(edges)[side],
+                            brush=QBrush(QColor(colour), style), pen=pg.mkPen(colour),
+                            name=words))
             plot.setLabel("left", "trials")
         plot.addItem(pg.InfiniteLine(pos=0.0, angle=90,
-                                     pen=pg.mkPen((150, 0, 0), width=1,
+                                     pen=pg.mkPen((60, 60, 60), width=1,
                                                   style=Qt.PenStyle.DashLine)))
 
     def _draw_breakevens(self, risk: Any) -> None:
@@ -399,7 +477,7 @@ class RiskView(QWidget):
         table.setRowCount(len(risk.inputs))
         for row, item in enumerate(risk.inputs):
             lo, hi = risk.breakeven_ranges[item.address]
-            cells = [item.address, _value(item.estimate, item.address),
+            cells = [self._label(item.address), _value(item.estimate, item.address),
                      _value(risk.breakeven[item.address], item.address),
                      f"{_value(lo, item.address)} to {_value(hi, item.address)}"]
             for col, text in enumerate(cells):
@@ -421,8 +499,24 @@ class RiskView(QWidget):
         dy = (ys[-1] - ys[0]) / max(len(ys) - 1, 1)
         self.map_image.setRect(QRectF(xs[0] - dx / 2, ys[0] - dy / 2,
                                       (xs[-1] - xs[0]) + dx or 1.0, (ys[-1] - ys[0]) + dy or 1e-3))
-        self.map_plot.setLabel("bottom", m.x_input)
-        self.map_plot.setLabel("left", m.y_input)
+        for item in self.map_words:
+            self.map_plot.removeItem(item)
+        self.map_words = []
+        grid_x, grid_y = np.meshgrid(xs, ys)
+        won = np.asarray(m.replace, dtype=bool)
+        for mask, words, colour in ((won, "REPLACE", palette.REPLACE),
+                                    (~won, "KEEP", palette.KEEP)):
+            if mask.any():  # the word at the middle of its region
+                text = pg.TextItem(words, color=colour, anchor=(0.5, 0.5),
+                                   fill=pg.mkBrush(255, 255, 255, 200))
+                font = text.textItem.font()
+                font.setBold(True)
+                text.setFont(font)
+                text.setPos(float(np.median(grid_x[mask])), float(np.median(grid_y[mask])))
+                self.map_plot.addItem(text)
+                self.map_words.append(text)
+        self.map_plot.setLabel("bottom", self._label(m.x_input))
+        self.map_plot.setLabel("left", self._label(m.y_input))
         x0, y0 = m.x_estimate, m.y_estimate
         self.map_marker.setData([x0], [y0])
         self.map_plot.autoRange()

@@ -85,7 +85,7 @@ def render(out_dir: Path) -> list[Path]:
         make_icon(icon)
     # A fresh demo, not the user's own copy (which may hold their edits or an older demo).
     window = build_window(str(build_demo(state / "Harrowgate demo fleet.tenure")))
-    window.resize(1800, 1000)
+    window.resize(1920, 1080)
     window.show()
     _settle(app, window)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -137,7 +137,60 @@ def render(out_dir: Path) -> list[Path]:
     shots.append(_save(window, out_dir / "validation.png"))
     window.undo_stack.clear()
     window._forced_dirty = False
+    ed.clear_errors()
+    window.report("")
+    shots += render_sizes(app, window, out_dir)
     window.close()
+    return shots
+
+
+#: The screen sizes the README shows: a common laptop and a common desktop.
+SIZES = ((1366, 768), (1920, 1080))
+
+
+def _wait_for_risk(app, view, seconds: float = 60.0) -> None:
+    import time
+
+    end = time.monotonic() + seconds
+    while view.is_running() and time.monotonic() < end:
+        app.processEvents()
+        time.sleep(0.02)
+    _settle(app)
+
+
+def render_sizes(app, window, out_dir: Path) -> list[Path]:
+    """At each of ``SIZES``: the main window, the Risk tab after a run (on the demo asset
+    whose decision is closest to the line) and the editor's Uncertainty page."""
+    shots = []
+    doc = window.doc
+    risky = [k for k in doc.keys() if doc.entry(k).study is not None
+             and doc.entry(k).study.uncertainty is not None]
+    close = next((k for k in risky if "FL-07" in doc.entry(k).name), risky[0] if risky else None)
+    for width, height in SIZES:
+        window.resize(width, height)
+        _settle(app, window)
+        window.reset_layout()
+        window.right_tabs.setCurrentIndex(0)
+        window.editor.pages.setCurrentIndex(0)
+        window.select_asset(doc.keys()[0])
+        _settle(app, window)
+        shots.append(_save(window, out_dir / f"window-{width}x{height}.png"))
+        if close is None:
+            continue
+        window.select_asset(close)
+        _settle(app, window)
+        window.right_tabs.setCurrentWidget(window.risk_view)
+        _settle(app)
+        window.risk_view.run()
+        _wait_for_risk(app, window.risk_view)
+        window.risk_view.charts.setCurrentIndex(0)
+        _settle(app)
+        shots.append(_save(window, out_dir / f"risk-{width}x{height}.png"))
+        window.editor.pages.setCurrentWidget(window.editor.uncertainty)
+        _settle(app)
+        shots.append(_save(window, out_dir / f"uncertainty-{width}x{height}.png"))
+        window.editor.pages.setCurrentIndex(0)
+        window.right_tabs.setCurrentIndex(0)
     return shots
 
 

@@ -639,6 +639,7 @@ class _Builder:
         d = _to_json(r.risk)
         if not d:
             return
+        from core.risk.labels import input_label  # inputs in words; the JSON keeps the paths
         self.h("Risk")
         trials = d.get("trials")
         unc = r.study.uncertainty
@@ -722,7 +723,7 @@ class _Builder:
                     continue
                 addr = str(x.get("input", ""))
                 par = ", ".join(_num_for(addr, v) for v in (x.get("parameters") or []))
-                rows.append([Paragraph(escape(addr), s["cell"]),
+                rows.append([Paragraph(escape(input_label(addr, r.study)), s["cell"]),
                              Paragraph(escape(f"{x.get('distribution', '')} ({par})"), s["cell"]),
                              _num_for(addr, x.get("estimate")), _num_for(addr, x.get("p10")),
                              _num_for(addr, x.get("p90"))])
@@ -738,7 +739,8 @@ class _Builder:
                 if not isinstance(x, dict):
                     continue
                 addr = str(x.get("input", ""))
-                rows.append([Paragraph(escape(addr), s["cell"]), _num_for(addr, x.get("low_value")),
+                rows.append([Paragraph(escape(input_label(addr, r.study)), s["cell"]),
+                             _num_for(addr, x.get("low_value")),
                              _num_for(addr, x.get("high_value")),
                              money(x.get("annual_worth_difference_at_low")),
                              money(x.get("annual_worth_difference_at_high")),
@@ -760,7 +762,8 @@ class _Builder:
                         txt += f" ({_num_for(k, rng[0])} to {_num_for(k, rng[1])})"
                 else:
                     txt = _num_for(k, v)
-                brow.append([Paragraph(escape(k), s["cell"]), Paragraph(escape(txt), s["cell"])])
+                brow.append([Paragraph(escape(input_label(k, r.study)), s["cell"]),
+                             Paragraph(escape(txt), s["cell"])])
             self.add(Spacer(1, 4), _table(brow, [0.55 * self.w, 0.45 * self.w], numeric_from=None))
         notes = d.get("notes")
         if isinstance(notes, list):
@@ -846,7 +849,9 @@ class _Builder:
             rows.append(["Inflation", "not modelled; all estimates in one kind of money"])
         if st.uncertainty is not None:
             u = st.uncertainty
-            ins = "; ".join(f"{a}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
+            from core.risk.labels import input_label
+
+            ins = "; ".join(f"{input_label(a, st)}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
                             for a, dist in u.inputs)
             rows.append(["Uncertainty", f"{u.trials:,} trials"
                          + (f", seed {u.seed}" if u.seed is not None else "") + f"; {ins}"])

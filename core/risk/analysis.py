@@ -17,6 +17,7 @@ from core.errors import StudyError
 from core.estimates import Distribution, Study
 from core.risk import distributions as dists
 from core.risk.engine import Model, Outcome
+from core.risk.labels import input_label
 from core.studyfile import split_address
 
 Progress = Callable[[float], None]
@@ -434,13 +435,13 @@ class RiskResult:
         lines += ["", "Tornado (each input from its 10th to 90th percentile, the rest at "
                   "their estimates):",
                   table(["input", "low", "high", "AW difference at low", "at high", "swing"],
-                        [[b.address, _fmt(b.low_value), _fmt(b.high_value),
+                        [[input_label(b.address), _fmt(b.low_value), _fmt(b.high_value),
                           m(b.difference_at_low), m(b.difference_at_high),
                           m(b.swing)] for b in self.tornado])]
         lines += ["", "Breakeven (the value at which the recommendation flips, the rest at "
                   "their estimates):",
                   table(["input", "estimate", "breakeven", "searched"],
-                        [[s_.address, _fmt(s_.estimate),
+                        [[input_label(s_.address), _fmt(s_.estimate),
                           "no flip" if self.breakeven[s_.address] is None
                           else _fmt(self.breakeven[s_.address]),
                           f"{_fmt(self.breakeven_ranges[s_.address][0])} to "
