@@ -135,8 +135,9 @@ def _build(out: Path, src: Path) -> None:
                              ColumnMapping(tag="Asset", date="Quote date", amount="Quote",
                                            default_kind="resale"), in_service)
         for report in (costs, quotes):
-            if report.rejected:
-                raise StudyError(report.source, "; ".join(str(r) for r in report.rejected))
+            if report.rejected or report.flagged:
+                raise StudyError(report.source, "; ".join(
+                    str(r) for r in (*report.rejected, *report.flagged)))
             wb.add_history(report.accepted)
         for a in fleet["assets"]:
             rows = wb.history(a["tag"])
