@@ -33,6 +33,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.memo.cautions import caution_texts
+from core.memo.page_one import asset_facts
 from core.memo.register import record_in_workbook
 from core.memo.render import MemoOptions
 from core.memo.sign import ROLES
@@ -201,7 +202,9 @@ class IssueMemoDialog(QDialog):
                            currency=self.currency.text().strip() or "GBP",
                            prepared_by=names["prepared"], reviewed_by=names["reviewed"],
                            approved_by=names["approved"],
-                           organisation=self.organisation.text().strip() or None)
+                           organisation=self.organisation.text().strip() or None,
+                           asset=(asset_facts(self.workbook_path, self.result.study)
+                                  if self.workbook_path else None))
 
     def _fail(self, message: str) -> None:
         self.error = message
