@@ -326,8 +326,9 @@ def page_one_flowables(p: PageOne, width: float, styles: dict[str, ParagraphStyl
         out += [t]
     out.append(Spacer(1, 5))
     if p.one_offs:
-        out.append(Paragraph("<b>Largest one-off costs in the comparison</b> (counted in the "
-                             "figures above):", s["body"]))
+        out.append(Paragraph("<b>Largest one-off costs in the comparison</b> (each is counted "
+                             "whenever a retention or option keeps that machine into its "
+                             "year):", s["body"]))
         out += [Paragraph(escape(x), s["bullet"], bulletText="\u2022") for x in p.one_offs]
         out.append(Spacer(1, 3))
     if p.replacement_value:

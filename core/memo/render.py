@@ -95,6 +95,20 @@ METHOD = (
 )
 
 
+LEGEND = (
+    "k: years the asset is kept (retention); j: a year within it; n: the longest retention "
+    "considered. i: the interest rate (MARR) per year.",
+    "P: price today (a challenger's first cost, the defender's market value). S_k: market "
+    "value at the end of year k. C_k: operating cost of year k. X_k: extra one-off cost in "
+    "year k (overhaul, retrofit).",
+    "AW_k: annual worth of keeping the asset k years (signed, costs negative); EAC_k = -AW_k, "
+    "the equivalent annual cost. CR_k: capital recovery. MC_k: marginal cost of year k, what "
+    "keeping it that one more year costs. ESL: economic service life, the k with the best AW.",
+    "After tax: t the tax rate, D_k the tax depreciation of year k, BV_k the book value at "
+    "disposal in year k, MV the market value today.",
+)
+
+
 def money(x: float | None, decimals: int = 0) -> str:
     """Thousands separators, ASCII minus, '-' never on a zero; blank for None.
 
@@ -489,7 +503,7 @@ class _Builder:
             esl_row = a.economic_life
             w = self.w / 9
             self.add(KeepTogether([
-                _p(f"{a.name} ({a.role}, price {money(a.price)} {cur})", s["h3"]),
+                _p(f"{a.name} ({a.role}, price {format_money(a.price, cur)})", s["h3"]),
                 _table(rows, [w] * 9, numeric_from=1, extra=[
                     ("BACKGROUND", (0, esl_row), (-1, esl_row), colors.HexColor("#fff2cc")),
                     ("FONT", (0, esl_row), (-1, esl_row), FB(), 7.5)]),
@@ -822,13 +836,13 @@ class _Builder:
             if dep.years:
                 bits.append(f"over {yrs(dep.years)}")
             if dep.basis is not None:
-                bits.append(f"basis {money(dep.basis)} {cur}")
+                bits.append(f"basis {format_money(dep.basis, cur)}")
             if dep.rate is not None:
                 bits.append(f"rate {pct(dep.rate)}")
             if dep.age:
                 bits.append(f"{yrs(dep.age)} already claimed")
             if dep.salvage:
-                bits.append(f"tax salvage {money(dep.salvage)} {cur}")
+                bits.append(f"tax salvage {format_money(dep.salvage, cur)}")
             rows.append(["Tax depreciation", ", ".join(bits)])
         return [rows[0]] + [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows[1:]]
 
@@ -836,6 +850,9 @@ class _Builder:
         self.h("Method")
         for m in METHOD:
             self.add(_p(m, self.s["body"]))
+        self.add(_p("Symbols used in the tables", self.s["h3"]))
+        for m in LEGEND:
+            self.add(Paragraph(escape(m), self.s["bullet"], bulletText="\u2022"))
 
     def warnings(self):
         w = list(getattr(self.r, "warnings", ()) or ()) + list(self.o.extra_notes)
