@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from core.bases import basis_views
 from core.results import AlternativeResult, StudyResult
 from core.study import money, years
 
@@ -63,22 +64,30 @@ def format_study(result: StudyResult) -> str:
         from core.inflation import describe
 
         out.append(describe(study))
+    views = basis_views(result)
+    before = next(v for v in views if v.basis == "before-tax")
+    taxed = len(views) > 1
+    if taxed and result.after_tax is not None and hasattr(result.after_tax, "format_text"):
+        head = f"{views[0].title}:"
+        out += ["", head, "-" * len(head), result.after_tax.format_text()]
+    if taxed:
+        head = f"{before.title}:"
+        out += ["", head, "-" * len(head)]
+    label = f" ({before.label})" if taxed else ""
     for alt in result.alternatives:
         out += ["", _alternative_table(alt)]
-    out += ["", "Ranking at each economic service life:",
+    out += ["", f"Ranking at each economic service life{label}:",
             table(["rank", "alternative", "role", "ESL (years)", "AW at ESL", "EAC at ESL"],
                   [[str(a.rank), a.name, a.role, str(a.economic_life),
                     money(a.annual_worth_at_economic_life),
-                    money(-a.annual_worth_at_economic_life)] for a in result.ranking])]
-    if result.study_period_options:
+                    money(-a.annual_worth_at_economic_life)] for a in before.ranking])]
+    if before.options:
         rows = [[str(o.defender_years), o.challenger or "-", str(o.challenger_years),
                  money(o.annual_worth) if o.annual_worth is not None else "-",
-                 "yes" if o.feasible else f"no: {o.reason}"] for o in result.study_period_options]
-        out += ["", f"Study-period options over {study.study_period} years:",
+                 "yes" if o.feasible else f"no: {o.reason}"] for o in before.options]
+        out += ["", f"Study-period options over {study.study_period} years{label}:",
                 table(["defender years", "then challenger", "challenger years", "AW", "feasible"],
                       rows)]
-    if result.after_tax is not None and hasattr(result.after_tax, "format_text"):
-        out += ["", result.after_tax.format_text()]
     if result.risk is not None and hasattr(result.risk, "format_text"):
         out += ["", result.risk.format_text()]
     check = rec.one_more_year
