@@ -28,7 +28,9 @@ def currency_symbol(text: str | None) -> str:
     if text is None or not str(text).strip():
         return DEFAULT_CURRENCY
     t = str(text).strip()
-    return SYMBOLS.get(t.upper(), t)
+    if len(t) == 3 and t.isalpha():  # an ISO 4217 code
+        return SYMBOLS.get(t.upper(), t.upper())
+    return t
 
 
 def format_money(value: float | None, symbol: str = "", decimals: int = 0) -> str:
@@ -53,18 +55,25 @@ def format_money(value: float | None, symbol: str = "", decimals: int = 0) -> st
     return ("-" if negative else "") + (symbol + sep if symbol else "") + text
 
 
-def workbook_currency(path: str | Path) -> str:
-    """The currency symbol a workbook keeps (its ``currency`` meta entry), else the default.
+def workbook_currency(path: str | Path | None, default: str = DEFAULT_CURRENCY) -> str:
+    """The currency symbol a workbook keeps (its ``currency`` meta entry), else ``default``.
 
-    A study file (or anything that is not a readable workbook) gives the default.
+    A study file (or anything that is not a readable workbook) gives ``default``.
     """
-    p = Path(path)
-    if p.suffix.lower() != ".tenure":
-        return DEFAULT_CURRENCY
+    if path is None or Path(path).suffix.lower() != ".tenure":
+        return currency_symbol(default)
     try:
         from core.workbook import Workbook
 
-        with Workbook.open(p, write=False) as wb:
-            return currency_symbol(wb.meta().get("currency"))
+        with Workbook.open(path, write=False) as wb:
+            kept = wb.meta().get("currency")
     except Exception:  # noqa: BLE001 - a display default, never a reason to fail
-        return DEFAULT_CURRENCY
+        kept = None
+    return currency_symbol(kept or default)
+
+
+def set_workbook_currency(workbook: object, text: str) -> str:
+    """Keep the currency of an open, writable ``core.workbook.Workbook``; returns the symbol."""
+    symbol = currency_symbol(text)
+    workbook.set_meta("currency", symbol)  # type: ignore[attr-defined]
+    return symbol

@@ -107,6 +107,7 @@ def _build(out: Path, src: Path) -> None:
     with Workbook.create(out, company=fleet["company"]) as wb, wb.transaction():
         wb.set_meta("note", fleet.get("note", ""))
         wb.set_meta("current_year", str(year))
+        wb.set_meta("currency", fleet.get("currency", "£"))  # one currency per workbook
         for s in fleet["sites"]:
             wb.add_site(Site(s["name"], s.get("location", "")))
         for a in fleet["assets"]:

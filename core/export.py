@@ -33,6 +33,7 @@ from pathlib import Path
 from typing import Any
 
 from core.bases import BasisView, basis_views
+from core.currency import DEFAULT_CURRENCY, currency_symbol
 from core.errors import StudyError
 
 TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "after_tax_detail",
@@ -84,7 +85,8 @@ def _round(x: float | None, digits: int = 4) -> float | None:
     return None if x is None else round(float(x), digits)
 
 
-def _summary_rows(title: str, res: dict[str, Any], view: BasisView) -> list[list[Any]]:
+def _summary_rows(title: str, res: dict[str, Any], view: BasisView,
+                  currency: str) -> list[list[Any]]:
     rec = view.recommendation
     rows = []
     for alt in view.alternatives:
@@ -92,7 +94,8 @@ def _summary_rows(title: str, res: dict[str, Any], view: BasisView) -> list[list
         rows.append([title, res.get("fingerprint"), res.get("marr"), res.get("study_period"),
                      rec.action, rec.challenger, rec.defender_years,
                      _round(rec.replacement_value, 2), view.basis, rec.reason, alt.name,
-                     alt.role, alt.economic_life, best, None if best is None else -best])
+                     alt.role, alt.economic_life, best, None if best is None else -best,
+                     currency])
     return rows
 
 
@@ -116,7 +119,7 @@ def _option_rows(title: str, view: BasisView) -> list[list[Any]]:
              _round(o.annual_worth), o.feasible, o.reason] for o in view.options]
 
 
-def result_tables(results: Any) -> dict[str, list[list[Any]]]:
+def result_tables(results: Any, currency: str = DEFAULT_CURRENCY) -> dict[str, list[list[Any]]]:
     """The export tables (header row first) of one result, several, or ``{"studies": [...]}``.
 
     Each study's ``summary``, ``annual_worth`` and ``study_period_options`` rows are on the
@@ -124,7 +127,8 @@ def result_tables(results: Any) -> dict[str, list[list[Any]]]:
     which in its ``basis`` column. When a study has tax, ``after_tax_detail`` holds its
     after-tax year-by-year figures and the ``*_before_tax`` tables its before-tax
     comparison; those tables appear only when some study has tax. ``alternatives`` is
-    the before-tax year-by-year detail (inputs and the parts of AW).
+    the before-tax year-by-year detail (inputs and the parts of AW). The summaries name
+    the ``currency`` of every amount (shown as :func:`core.currency.currency_symbol`).
 
     >>> t = result_tables({"title": "T", "alternatives": [
     ...     {"name": "Old", "role": "defender", "annual_worth": [-5.0, -4.0], "economic_life": 2,
@@ -136,7 +140,7 @@ def result_tables(results: Any) -> dict[str, list[list[Any]]]:
     summary_head = ["study", "fingerprint", "marr", "study_period", "action", "challenger",
                     "defender_years", "replacement_value", "basis", "reason",
                     "alternative", "role", "economic_life", "annual_worth_at_economic_life",
-                    "equivalent_annual_cost_at_economic_life"]
+                    "equivalent_annual_cost_at_economic_life", "currency"]
     options_head = ["study", "basis", "defender_years", "challenger", "challenger_years",
                     "annual_worth", "feasible", "reason"]
     out: dict[str, list[list[Any]]] = {
@@ -154,6 +158,7 @@ def result_tables(results: Any) -> dict[str, list[list[Any]]]:
         "study_period_options_before_tax": [list(options_head)],
         "warnings": [["study", "warning"]],
     }
+    symbol = currency_symbol(currency)
     decision_aw: list[tuple[str, BasisView]] = []
     before_aw: list[tuple[str, BasisView]] = []
     taxed = False
@@ -162,7 +167,7 @@ def result_tables(results: Any) -> dict[str, list[list[Any]]]:
         views = basis_views(item)
         title = res.get("title", "")
         decision = views[0]
-        out["summary"] += _summary_rows(title, res, decision)
+        out["summary"] += _summary_rows(title, res, decision, symbol)
         decision_aw.append((title, decision))
         out["study_period_options"] += _option_rows(title, decision)
         for alt in res.get("alternatives") or []:
@@ -185,7 +190,7 @@ def result_tables(results: Any) -> dict[str, list[list[Any]]]:
                          *[(c[j] if j < len(c) else None) for c in cols.values()]])
         for view in views[1:]:
             taxed = True
-            out["summary_before_tax"] += _summary_rows(title, res, view)
+            out["summary_before_tax"] += _summary_rows(title, res, view, symbol)
             before_aw.append((title, view))
             out["study_period_options_before_tax"] += _option_rows(title, view)
         for w in res.get("warnings") or []:
@@ -203,11 +208,12 @@ def _rows(table: Sequence[Sequence[Any]]) -> Iterable[list[Any]]:
         yield [escape_cell(v) for v in row]
 
 
-def export_csv(results: Any, path: str | Path, table: str = "alternatives") -> Path:
+def export_csv(results: Any, path: str | Path, table: str = "alternatives",
+               currency: str = DEFAULT_CURRENCY) -> Path:
     """Write one table (see :data:`TABLES`) as UTF-8 CSV (with BOM, for spreadsheets)."""
     if table not in TABLES:
         raise StudyError("--table", f"unknown table '{table}' (tables: {', '.join(TABLES)})")
-    tables = result_tables(results)
+    tables = result_tables(results, currency)
     if table not in tables:
         raise StudyError("--table", f"'{table}' is written only for a study with tax")
     path = Path(path)
@@ -221,7 +227,7 @@ def export_csv(results: Any, path: str | Path, table: str = "alternatives") -> P
     return path
 
 
-def export_xlsx(results: Any, path: str | Path) -> Path:
+def export_xlsx(results: Any, path: str | Path, currency: str = DEFAULT_CURRENCY) -> Path:
     """Write every table as a sheet of one XLSX workbook (text cells never become formulas)."""
     from openpyxl import Workbook as XLWorkbook
     from openpyxl.styles import Font
@@ -230,7 +236,7 @@ def export_xlsx(results: Any, path: str | Path) -> Path:
     path = Path(path)
     book = XLWorkbook()
     book.remove(book.active)
-    for name, table in result_tables(results).items():
+    for name, table in result_tables(results, currency).items():
         sheet = book.create_sheet(name)
         for row in _rows(table):
             sheet.append(row)

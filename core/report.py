@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from core.bases import basis_views
+from core.currency import DEFAULT_CURRENCY, currency_symbol, format_money
 from core.results import AlternativeResult, StudyResult
 from core.study import money, years
 
@@ -52,13 +53,14 @@ def _alternative_table(alt: AlternativeResult) -> str:
            f"EAC {money(-alt.annual_worth_at_economic_life)})"
 
 
-def format_study(result: StudyResult) -> str:
-    """Every table and the recommendation of one study, as text."""
+def format_study(result: StudyResult, currency: str = DEFAULT_CURRENCY) -> str:
+    """Every table and the recommendation of one study, as text (amounts in ``currency``)."""
     study = result.study
     rec = result.recommendation
     out = [f"Study: {study.title}", "=" * (7 + len(study.title)),
            f"MARR {study.marr:.2%} per year (rate used {result.rate:.4%}); end-of-year cash flows; "
            "AW is signed (costs negative), EAC = -AW.",
+           f"Amounts in {currency_symbol(currency)}.",
            f"Study period: {'none' if study.study_period is None else f'{study.study_period} years'}"]
     if study.inflation is not None:
         from core.inflation import describe
@@ -94,9 +96,10 @@ def format_study(result: StudyResult) -> str:
     out += ["", f"Recommendation ({rec.basis}): {rec.action.upper()}", rec.reason]
     if rec.replacement_value is not None:
         d = result.defender
-        out.append(f"Replacement value of {d.name}: {money(rec.replacement_value)} "
-                   f"(market value today {money(d.price)}); at a market value above it, "
-                   "replacing wins.")
+        cur = currency_symbol(currency)
+        out.append(f"Replacement value of {d.name}: {format_money(rec.replacement_value, cur)} "
+                   f"(market value today {format_money(d.price, cur)}); at a market value "
+                   "above it, replacing wins.")
     if check:
         verdict = "stays below" if check["keep_next_year"] else "does not stay below"
         out.append(f"One-more-year check: next year's marginal cost of the defender "

@@ -54,7 +54,8 @@ def test_tables_hold_the_result_numbers() -> None:
     assert len(t["study_period_options"]) == 1 + len(js["study_period_options"])
     summary = t["summary"][1]
     assert summary[4] == js["recommendation"]["action"]
-    assert summary[-1] == -summary[-2]  # EAC = -AW
+    assert summary[-2] == -summary[-3]  # EAC = -AW
+    assert summary[-1] == "£"  # the one currency display (core.currency)
     # several studies, or the CLI's {"studies": [...]} object
     both = result_tables({"studies": [js, js]})
     assert len(both["summary"]) == 1 + 2 * 2
