@@ -151,3 +151,16 @@ def test_no_page_ends_with_a_heading(demo, size):
             last = lines[-1]
             assert not last.startswith(HEADINGS), (study.title, size, n, last)
             assert not last.endswith(", after tax"), (study.title, size, n, last)
+
+
+def test_keep_when_next_year_alone_costs_more_than_the_challenger(demo):
+    # demo PB-02: a £12,500 overhaul in year 1 puts next year's marginal cost above the
+    # challenger's EAC while keeping still wins at the ESL; page one must not give a keep
+    # rule that the one-more-year check contradicts
+    result = run_study(_study(demo, "Ouseburn Yard — PB-02 Hydraulic press brake 100 t"))
+    omy = result.recommendation.one_more_year
+    assert result.recommendation.action == "keep" and omy["keep_next_year"] is False
+    facts = page_one_facts(result, "£")
+    assert "only while" not in facts.sentence
+    assert f"Next year alone costs £{omy['defender_marginal_cost']:,.0f}" in facts.sentence
+    assert not re.search(r"-£?\d", facts.sentence)
