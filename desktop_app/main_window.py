@@ -821,9 +821,10 @@ class MainWindow(QMainWindow):
             if path.lower().endswith(".xlsx"):
                 if export is None:
                     raise StudyError(path, "XLSX export is not available in this build; use .csv")
-                export.export_xlsx(result, path)
+                export.export_xlsx(result, path, currency=self.currency())
             elif export is not None:
-                export.export_csv(result, path, table="alternatives")
+                export.export_csv(result, path, table="alternatives",
+                                  currency=self.currency())
             else:
                 write_tables_csv(result, path)
         except StudyError as exc:
