@@ -98,9 +98,11 @@ def cmd_study(args: argparse.Namespace) -> int:
                   ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
     else:
+        from core.currency import workbook_currency
         from core.report import format_study
 
-        sys.stdout.write("\n\n".join(format_study(r) for r in results))
+        currency = workbook_currency(args.file)
+        sys.stdout.write("\n\n".join(format_study(r, currency) for r in results))
         sys.stdout.write("\n")
     return 0
 
@@ -117,10 +119,13 @@ def cmd_export(args: argparse.Namespace) -> int:
     from core.study import run_study
 
     results = [run_study(s) for s in _select(load_studies(args.file, args.year), args.study)]
+    from core.currency import workbook_currency
+
+    currency = workbook_currency(args.file)
     if suffix == ".xlsx":
-        export_xlsx(results, out)
+        export_xlsx(results, out, currency=currency)
     else:
-        export_csv(results, out, table=args.table)
+        export_csv(results, out, table=args.table, currency=currency)
     print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to {out}")
     return 0
 

@@ -111,6 +111,7 @@ def _build(out: Path, src: Path) -> None:
     with Workbook.create(out, company=fleet["company"]) as wb, wb.transaction():
         wb.set_meta("note", fleet.get("note", ""))
         wb.set_meta("current_year", str(year))
+        wb.set_meta("currency", fleet.get("currency", "£"))  # one currency per workbook
         for s in fleet["sites"]:
             wb.add_site(Site(s["name"], s.get("location", "")))
         for a in fleet["assets"]:
@@ -139,8 +140,9 @@ def _build(out: Path, src: Path) -> None:
                              ColumnMapping(tag="Asset", date="Quote date", amount="Quote",
                                            default_kind="resale"), in_service)
         for report in (costs, quotes):
-            if report.rejected:
-                raise StudyError(report.source, "; ".join(str(r) for r in report.rejected))
+            if report.rejected or report.flagged:
+                raise StudyError(report.source, "; ".join(
+                    str(r) for r in (*report.rejected, *report.flagged)))
             wb.add_history(report.accepted)
         for a in fleet["assets"]:
             rows = wb.history(a["tag"])

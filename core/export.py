@@ -1,13 +1,20 @@
 """Export study results and their tables to CSV and XLSX, safe against formula injection.
 
-Everything comes from ``StudyResult.to_json()`` (a result object or that dict
-may be passed); nothing is recomputed. Tables:
+Everything comes from the study results (a result object or its ``to_json()`` dict),
+read by basis through :func:`core.bases.basis_views`; nothing is recomputed. Every row
+names its basis (``before-tax`` or ``after-tax``). Tables:
 
-* ``summary``: one row per study (recommendation, replacement value, basis, reason);
-* ``annual_worth``: AW_k of every alternative for each retention k (signed: costs < 0);
-* ``alternatives``: long form, one row per alternative and year j: S_j, C_j, X_j,
-  capital recovery, operating AW, marginal cost, AW;
-* ``study_period_options``: the options of a study-period comparison;
+* ``summary``: one row per alternative of each study, on the basis its recommendation
+  rests on (after tax when the study has tax): recommendation, replacement value,
+  reason, ESL and AW at ESL;
+* ``annual_worth``: AW_k of every alternative for each retention k on that basis
+  (signed: costs < 0);
+* ``alternatives``: the before-tax year-by-year detail, one row per alternative and
+  year j: S_j, C_j, X_j, capital recovery, operating AW, marginal cost, AW;
+* ``study_period_options``: the options of a study-period comparison, on that basis;
+* only when a study has tax: ``after_tax_detail`` (D_k, BV_k, after-tax disposal,
+  PW_k, AW_k by retention) and the before-tax comparison ``summary_before_tax``,
+  ``annual_worth_before_tax``, ``study_period_options_before_tax``;
 * ``warnings``.
 
 A text cell beginning with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
@@ -25,9 +32,16 @@ from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Any
 
+from core.bases import BasisView, basis_views
+from core.currency import DEFAULT_CURRENCY, currency_symbol
 from core.errors import StudyError
 
-TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "warnings")
+TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "after_tax_detail",
+          "summary_before_tax", "annual_worth_before_tax", "study_period_options_before_tax",
+          "warnings")
+#: Written only when a study has tax: the after-tax detail and the before-tax comparison.
+TAX_TABLES = ("after_tax_detail", "summary_before_tax", "annual_worth_before_tax",
+              "study_period_options_before_tax")
 _DANGEROUS = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -57,79 +71,136 @@ def _as_json(result: Any) -> dict[str, Any]:
     return result.to_json() if hasattr(result, "to_json") else dict(result)
 
 
-def _results(results: Any) -> list[dict[str, Any]]:
+def _results(results: Any) -> list[Any]:
+    """Each study's result object (or its JSON dict) from one, several or {"studies": [...]}."""
     if isinstance(results, dict) and "studies" in results:
         return [dict(r) for r in results["studies"]]
     if isinstance(results, dict) or hasattr(results, "to_json"):
-        return [_as_json(results)]
-    return [_as_json(r) for r in results]
+        return [results]
+    return list(results)
 
 
-def result_tables(results: Any) -> dict[str, list[list[Any]]]:
+def _round(x: float | None, digits: int = 4) -> float | None:
+    """As ``--json`` rounds (core.results): money to 4 decimals, the replacement value to 2."""
+    return None if x is None else round(float(x), digits)
+
+
+def _summary_rows(title: str, res: dict[str, Any], view: BasisView,
+                  currency: str) -> list[list[Any]]:
+    rec = view.recommendation
+    rows = []
+    for alt in view.alternatives:
+        best = _round(alt.annual_worth_at_economic_life)
+        rows.append([title, res.get("fingerprint"), res.get("marr"), res.get("study_period"),
+                     rec.action, rec.challenger, rec.defender_years,
+                     _round(rec.replacement_value, 2), view.basis, rec.reason, alt.name,
+                     alt.role, alt.economic_life, best, None if best is None else -best,
+                     currency])
+    return rows
+
+
+def _aw_table(entries: list[tuple[str, BasisView]]) -> list[list[Any]]:
+    header: list[Any] = ["study", "basis", "retention_years"]
+    body: list[tuple[str, str, int, dict[str, float | None]]] = []
+    for title, view in entries:
+        for a in view.alternatives:
+            if a.name not in header:
+                header.append(a.name)
+        longest = max((len(a.annual_worth) for a in view.alternatives), default=0)
+        for k in range(longest):
+            body.append((title, view.basis, k + 1,
+                         {a.name: _round(a.annual_worth[k]) if k < len(a.annual_worth) else None
+                          for a in view.alternatives}))
+    return [header] + [[t, b, k, *[row.get(n) for n in header[3:]]] for t, b, k, row in body]
+
+
+def _option_rows(title: str, view: BasisView) -> list[list[Any]]:
+    return [[title, view.basis, o.defender_years, o.challenger, o.challenger_years,
+             _round(o.annual_worth), o.feasible, o.reason] for o in view.options]
+
+
+def result_tables(results: Any, currency: str = DEFAULT_CURRENCY) -> dict[str, list[list[Any]]]:
     """The export tables (header row first) of one result, several, or ``{"studies": [...]}``.
+
+    Each study's ``summary``, ``annual_worth`` and ``study_period_options`` rows are on the
+    basis its recommendation rests on (after tax when it has tax), and every row says
+    which in its ``basis`` column. When a study has tax, ``after_tax_detail`` holds its
+    after-tax year-by-year figures and the ``*_before_tax`` tables its before-tax
+    comparison; those tables appear only when some study has tax. ``alternatives`` is
+    the before-tax year-by-year detail (inputs and the parts of AW). The summaries name
+    the ``currency`` of every amount (shown as :func:`core.currency.currency_symbol`).
 
     >>> t = result_tables({"title": "T", "alternatives": [
     ...     {"name": "Old", "role": "defender", "annual_worth": [-5.0, -4.0], "economic_life": 2,
     ...      "annual_worth_at_economic_life": -4.0}],
     ...     "recommendation": {"action": "keep"}, "study_period_options": []})
     >>> t["annual_worth"]
-    [['study', 'retention_years', 'Old'], ['T', 1, -5.0], ['T', 2, -4.0]]
+    [['study', 'basis', 'retention_years', 'Old'], ['T', 'before-tax', 1, -5.0], ['T', 'before-tax', 2, -4.0]]
     """
+    summary_head = ["study", "fingerprint", "marr", "study_period", "action", "challenger",
+                    "defender_years", "replacement_value", "basis", "reason",
+                    "alternative", "role", "economic_life", "annual_worth_at_economic_life",
+                    "equivalent_annual_cost_at_economic_life", "currency"]
+    options_head = ["study", "basis", "defender_years", "challenger", "challenger_years",
+                    "annual_worth", "feasible", "reason"]
     out: dict[str, list[list[Any]]] = {
-        "summary": [["study", "fingerprint", "marr", "study_period", "action", "challenger",
-                     "defender_years", "replacement_value", "basis", "reason",
-                     "alternative", "role", "economic_life", "annual_worth_at_economic_life",
-                     "equivalent_annual_cost_at_economic_life"]],
+        "summary": [summary_head],
         "annual_worth": [],
-        "alternatives": [["study", "alternative", "role", "year", "market_value",
+        "alternatives": [["study", "basis", "alternative", "role", "year", "market_value",
                           "operating_cost", "extra_cost", "capital_recovery",
                           "operating_annual_worth", "marginal_cost", "annual_worth"]],
-        "study_period_options": [["study", "defender_years", "challenger", "challenger_years",
-                                  "annual_worth", "feasible", "reason"]],
+        "study_period_options": [options_head],
+        "after_tax_detail": [["study", "basis", "alternative", "role", "retention_years",
+                              "depreciation", "book_value_at_disposal", "after_tax_disposal",
+                              "present_worth", "annual_worth"]],
+        "summary_before_tax": [list(summary_head)],
+        "annual_worth_before_tax": [],
+        "study_period_options_before_tax": [list(options_head)],
         "warnings": [["study", "warning"]],
     }
-    aw_header: list[Any] = ["study", "retention_years"]
-    aw_rows: list[list[Any]] = []
-    for res in _results(results):
+    symbol = currency_symbol(currency)
+    decision_aw: list[tuple[str, BasisView]] = []
+    before_aw: list[tuple[str, BasisView]] = []
+    taxed = False
+    for item in _results(results):
+        res = _as_json(item)
+        views = basis_views(item)
         title = res.get("title", "")
-        rec = res.get("recommendation") or {}
-        alts = res.get("alternatives") or []
-        for alt in alts:
-            best = alt.get("annual_worth_at_economic_life")
-            out["summary"].append([
-                title, res.get("fingerprint"), res.get("marr"), res.get("study_period"),
-                rec.get("action"), rec.get("challenger"), rec.get("defender_years"),
-                rec.get("replacement_value"), rec.get("basis"), rec.get("reason"),
-                alt.get("name"), alt.get("role"), alt.get("economic_life"), best,
-                None if best is None else -best])
+        decision = views[0]
+        out["summary"] += _summary_rows(title, res, decision, symbol)
+        decision_aw.append((title, decision))
+        out["study_period_options"] += _option_rows(title, decision)
+        for alt in res.get("alternatives") or []:
             aw = alt.get("annual_worth") or []
             cols = {k: alt.get(k) or [] for k in ("market_values", "operating_costs",
                                                   "extra_costs", "capital_recovery",
                                                   "operating_annual_worth", "marginal_cost")}
             for j, value in enumerate(aw):
                 out["alternatives"].append(
-                    [title, alt.get("name"), alt.get("role"), j + 1,
+                    [title, "before-tax", alt.get("name"), alt.get("role"), j + 1,
                      *[(c[j] if j < len(c) else None) for c in cols.values()], value])
-        names = [a.get("name") for a in alts]
-        for name in names:
-            if name not in aw_header:
-                aw_header.append(name)
-        longest = max((len(a.get("annual_worth") or []) for a in alts), default=0)
-        for k in range(longest):
-            row: dict[Any, Any] = {a.get("name"): (a["annual_worth"][k]
-                                                   if k < len(a.get("annual_worth") or [])
-                                                   else None) for a in alts}
-            aw_rows.append([title, k + 1, row])
-        for opt in res.get("study_period_options") or []:
-            out["study_period_options"].append(
-                [title, opt.get("defender_years"), opt.get("challenger"),
-                 opt.get("challenger_years"), opt.get("annual_worth"), opt.get("feasible"),
-                 opt.get("reason")])
+            at = alt.get("after_tax")
+            if isinstance(at, dict):
+                cols = {k: at.get(k) or [] for k in ("depreciation", "book_value_at_disposal",
+                                                     "after_tax_disposal", "present_worth",
+                                                     "annual_worth")}
+                for j in range(len(cols["annual_worth"])):
+                    out["after_tax_detail"].append(
+                        [title, "after-tax", alt.get("name"), alt.get("role"), j + 1,
+                         *[(c[j] if j < len(c) else None) for c in cols.values()]])
+        for view in views[1:]:
+            taxed = True
+            out["summary_before_tax"] += _summary_rows(title, res, view, symbol)
+            before_aw.append((title, view))
+            out["study_period_options_before_tax"] += _option_rows(title, view)
         for w in res.get("warnings") or []:
             out["warnings"].append([title, w])
-    out["annual_worth"] = [aw_header] + [
-        [t, k, *[r.get(n) for n in aw_header[2:]]] for t, k, r in aw_rows]
-    return out
+    out["annual_worth"] = _aw_table(decision_aw)
+    out["annual_worth_before_tax"] = _aw_table(before_aw)
+    if not taxed:
+        for name in TAX_TABLES:
+            del out[name]
+    return {name: out[name] for name in TABLES if name in out}
 
 
 def _rows(table: Sequence[Sequence[Any]]) -> Iterable[list[Any]]:
@@ -137,22 +208,26 @@ def _rows(table: Sequence[Sequence[Any]]) -> Iterable[list[Any]]:
         yield [escape_cell(v) for v in row]
 
 
-def export_csv(results: Any, path: str | Path, table: str = "alternatives") -> Path:
+def export_csv(results: Any, path: str | Path, table: str = "alternatives",
+               currency: str = DEFAULT_CURRENCY) -> Path:
     """Write one table (see :data:`TABLES`) as UTF-8 CSV (with BOM, for spreadsheets)."""
     if table not in TABLES:
         raise StudyError("--table", f"unknown table '{table}' (tables: {', '.join(TABLES)})")
+    tables = result_tables(results, currency)
+    if table not in tables:
+        raise StudyError("--table", f"'{table}' is written only for a study with tax")
     path = Path(path)
     tmp = path.with_name(path.name + ".part")
     try:
         with tmp.open("w", newline="", encoding="utf-8-sig") as fh:
-            csv.writer(fh).writerows(_rows(result_tables(results)[table]))
+            csv.writer(fh).writerows(_rows(tables[table]))
         os.replace(tmp, path)
     except OSError as exc:
         raise StudyError(str(path), f"cannot write ({exc.strerror or exc})") from None
     return path
 
 
-def export_xlsx(results: Any, path: str | Path) -> Path:
+def export_xlsx(results: Any, path: str | Path, currency: str = DEFAULT_CURRENCY) -> Path:
     """Write every table as a sheet of one XLSX workbook (text cells never become formulas)."""
     from openpyxl import Workbook as XLWorkbook
     from openpyxl.styles import Font
@@ -161,7 +236,7 @@ def export_xlsx(results: Any, path: str | Path) -> Path:
     path = Path(path)
     book = XLWorkbook()
     book.remove(book.active)
-    for name, table in result_tables(results).items():
+    for name, table in result_tables(results, currency).items():
         sheet = book.create_sheet(name)
         for row in _rows(table):
             sheet.append(row)

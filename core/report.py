@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from core.bases import basis_views
+from core.currency import DEFAULT_CURRENCY, currency_symbol, format_money
 from core.results import AlternativeResult, StudyResult
 from core.study import money, years
 
@@ -51,34 +53,43 @@ def _alternative_table(alt: AlternativeResult) -> str:
            f"EAC {money(-alt.annual_worth_at_economic_life)})"
 
 
-def format_study(result: StudyResult) -> str:
-    """Every table and the recommendation of one study, as text."""
+def format_study(result: StudyResult, currency: str = DEFAULT_CURRENCY) -> str:
+    """Every table and the recommendation of one study, as text (amounts in ``currency``)."""
     study = result.study
     rec = result.recommendation
     out = [f"Study: {study.title}", "=" * (7 + len(study.title)),
            f"MARR {study.marr:.2%} per year (rate used {result.rate:.4%}); end-of-year cash flows; "
            "AW is signed (costs negative), EAC = -AW.",
+           f"Amounts in {currency_symbol(currency)}.",
            f"Study period: {'none' if study.study_period is None else f'{study.study_period} years'}"]
     if study.inflation is not None:
         from core.inflation import describe
 
         out.append(describe(study))
+    views = basis_views(result)
+    before = next(v for v in views if v.basis == "before-tax")
+    taxed = len(views) > 1
+    if taxed and result.after_tax is not None and hasattr(result.after_tax, "format_text"):
+        head = f"{views[0].title}:"
+        out += ["", head, "-" * len(head), result.after_tax.format_text()]
+    if taxed:
+        head = f"{before.title}:"
+        out += ["", head, "-" * len(head)]
+    label = f" ({before.label})" if taxed else ""
     for alt in result.alternatives:
         out += ["", _alternative_table(alt)]
-    out += ["", "Ranking at each economic service life:",
+    out += ["", f"Ranking at each economic service life{label}:",
             table(["rank", "alternative", "role", "ESL (years)", "AW at ESL", "EAC at ESL"],
                   [[str(a.rank), a.name, a.role, str(a.economic_life),
                     money(a.annual_worth_at_economic_life),
-                    money(-a.annual_worth_at_economic_life)] for a in result.ranking])]
-    if result.study_period_options:
+                    money(-a.annual_worth_at_economic_life)] for a in before.ranking])]
+    if before.options:
         rows = [[str(o.defender_years), o.challenger or "-", str(o.challenger_years),
                  money(o.annual_worth) if o.annual_worth is not None else "-",
-                 "yes" if o.feasible else f"no: {o.reason}"] for o in result.study_period_options]
-        out += ["", f"Study-period options over {study.study_period} years:",
+                 "yes" if o.feasible else f"no: {o.reason}"] for o in before.options]
+        out += ["", f"Study-period options over {study.study_period} years{label}:",
                 table(["defender years", "then challenger", "challenger years", "AW", "feasible"],
                       rows)]
-    if result.after_tax is not None and hasattr(result.after_tax, "format_text"):
-        out += ["", result.after_tax.format_text()]
     if result.risk is not None and hasattr(result.risk, "format_text"):
         out += ["", result.risk.format_text()]
     if getattr(result, "technology", None) is not None:
@@ -87,9 +98,10 @@ def format_study(result: StudyResult) -> str:
     out += ["", f"Recommendation ({rec.basis}): {rec.action.upper()}", rec.reason]
     if rec.replacement_value is not None:
         d = result.defender
-        out.append(f"Replacement value of {d.name}: {money(rec.replacement_value)} "
-                   f"(market value today {money(d.price)}); at a market value above it, "
-                   "replacing wins.")
+        cur = currency_symbol(currency)
+        out.append(f"Replacement value of {d.name}: {format_money(rec.replacement_value, cur)} "
+                   f"(market value today {format_money(d.price, cur)}); at a market value "
+                   "above it, replacing wins.")
     if check:
         verdict = "stays below" if check["keep_next_year"] else "does not stay below"
         out.append(f"One-more-year check: next year's marginal cost of the defender "

@@ -272,6 +272,12 @@ class CostHistoryDialog(QDialog):
         form.addRow("Kind:", _row(self.kind_combo, QLabel("blank or no column means:"),
                                   self.default_kind))
         form.addRow("", self.replace_box)
+        self.keep_duplicates = QCheckBox("Keep exact duplicate rows")
+        self.keep_future = QCheckBox("Keep rows dated after today")
+        for box in (self.keep_duplicates, self.keep_future):
+            box.setToolTip("Such rows are listed as warnings and left out unless ticked.")
+            box.toggled.connect(self._mapping_changed)
+        form.addRow("Flagged rows:", _row(self.keep_duplicates, self.keep_future))
         note = QLabel("Kind words understood: operating, energy, labour; maintenance, repair, "
                       "service, parts, overhaul; resale, quote, market value, trade-in.")
         note.setWordWrap(True)
@@ -286,6 +292,9 @@ class CostHistoryDialog(QDialog):
         self.rejected_table = QTableWidget(0, 3)
         self.rejected_table.setHorizontalHeaderLabels(["Row", "Reason", "Values"])
         self._read_only(self.rejected_table)
+        self.flagged_table = QTableWidget(0, 3)
+        self.flagged_table.setHorizontalHeaderLabels(["Row", "Warning", "Values"])
+        self._read_only(self.flagged_table)
         layout = QVBoxLayout(page)
         layout.addLayout(form)
         layout.addWidget(note)
@@ -293,6 +302,9 @@ class CostHistoryDialog(QDialog):
         layout.addWidget(QLabel("Rejected rows (row numbers as the spreadsheet shows them; "
                                 "the header is row 1):"))
         layout.addWidget(self.rejected_table, 1)
+        layout.addWidget(QLabel("Warnings (exact duplicates and rows dated after today; "
+                                "left out unless kept above):"))
+        layout.addWidget(self.flagged_table, 1)
         return page
 
     def _fit_page(self) -> QWidget:
@@ -635,7 +647,9 @@ class CostHistoryDialog(QDialog):
             return None
         try:
             report = import_history(self.frame, mapping, self._in_service(),
-                                    self.file_path.name if self.file_path else "")
+                                    self.file_path.name if self.file_path else "",
+                                    keep_duplicates=self.keep_duplicates.isChecked(),
+                                    keep_future=self.keep_future.isChecked(), today=self.today)
         except StudyError as exc:
             self._error("Cannot import with these columns", str(exc))
             return None
@@ -644,17 +658,23 @@ class CostHistoryDialog(QDialog):
                         f"{self.file_path}: {type(exc).__name__}: {exc}")
             return None
         self.report = report
-        table = self.rejected_table
-        table.setRowCount(len(report.rejected))
-        for r, bad in enumerate(report.rejected):
-            row = QTableWidgetItem(str(bad.row))
-            row.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-            table.setItem(r, 0, row)
-            table.setItem(r, 1, QTableWidgetItem(bad.reason))
-            table.setItem(r, 2, QTableWidgetItem(" | ".join(bad.values)))
+        for table, listed in ((self.rejected_table, [(b.row, b.reason, b.values)
+                                                     for b in report.rejected]),
+                              (self.flagged_table, [(f.row, f"{f.reason} — "
+                                                     f"{'kept' if f.kept else 'left out'}",
+                                                     f.values) for f in report.flagged])):
+            table.setRowCount(len(listed))
+            for r, (number, reason, values) in enumerate(listed):
+                row = QTableWidgetItem(str(number))
+                row.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                table.setItem(r, 0, row)
+                table.setItem(r, 1, QTableWidgetItem(reason))
+                table.setItem(r, 2, QTableWidgetItem(" | ".join(values)))
         tags = sorted({h.tag for h in report.accepted})
         text = (f"{len(report.accepted)} of {report.rows} rows accepted, "
                 f"{len(report.rejected)} rejected")
+        if report.flagged:
+            text += (f", {len(report.flagged)} flagged ({len(report.left_out)} left out)")
         text += f" — assets: {', '.join(tags)}." if tags else "."
         note = report.decimal_note()
         text += f" {note[0].upper()}{note[1:]}."

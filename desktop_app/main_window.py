@@ -328,8 +328,15 @@ class MainWindow(QMainWindow):
         self.setWindowTitle(f"{name}[*] — {APP_NAME}")
         self._update_modified()
 
+    def currency(self) -> str:
+        """The one currency display: the open workbook's own, else the preferences'."""
+        from core.currency import workbook_currency
+
+        path = self.doc.path if self.doc.kind == "workbook" else None
+        return workbook_currency(path, default=self.prefs.currency)
+
     def apply_preferences(self) -> None:
-        currency = self.prefs.currency
+        currency = self.currency()
         self.editor.set_currency(currency)
         for panel in (self.chart_panel, self.results_panel, self.risk_view,
                       getattr(self, "technology_view", None)):
@@ -355,6 +362,7 @@ class MainWindow(QMainWindow):
         if self.current_key is None:
             self.select_asset(doc.entries[0].key if doc.entries else None)
         self._update_title()
+        self.apply_preferences()  # a workbook keeps its own currency
         self.recompute_fleet()
 
     def open_path(self, path: str, *, offer_recovery: bool = True) -> bool:
@@ -763,6 +771,8 @@ class MainWindow(QMainWindow):
         dialog = IssueMemoDialog(self.current_result, self, workbook_path=workbook)
         if hasattr(dialog, "page_size"):
             dialog.page_size.setCurrentText(self.prefs.page_size)
+        if hasattr(dialog, "currency"):
+            dialog.currency.setText(self.currency())
         dialog.exec()
 
     def import_history(self) -> None:
@@ -776,7 +786,7 @@ class MainWindow(QMainWindow):
             self.report("Import cost history: not available in this build")
             return
         dialog = CostHistoryDialog(self.doc.path, self.current_key, self)
-        dialog.set_currency(self.prefs.currency)
+        dialog.set_currency(self.currency())
         dialog.exec()
         costs, values = dialog.accepted_estimates()
         tag = None
@@ -837,9 +847,10 @@ class MainWindow(QMainWindow):
             if path.lower().endswith(".xlsx"):
                 if export is None:
                     raise StudyError(path, "XLSX export is not available in this build; use .csv")
-                export.export_xlsx(result, path)
+                export.export_xlsx(result, path, currency=self.currency())
             elif export is not None:
-                export.export_csv(result, path, table="alternatives")
+                export.export_csv(result, path, table="alternatives",
+                                  currency=self.currency())
             else:
                 write_tables_csv(result, path)
         except StudyError as exc:

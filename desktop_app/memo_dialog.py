@@ -33,6 +33,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.memo.cautions import caution_texts
+from core.memo.page_one import asset_facts, page_one_facts
 from core.memo.register import record_in_workbook
 from core.memo.render import MemoOptions
 from core.memo.sign import ROLES
@@ -90,6 +91,14 @@ def _preferences() -> tuple[str, str]:
         return "GBP", "A4"
 
 
+def _headline(result: Any) -> str:
+    """The memo's page-one sentence (plain words, EAC as a cost), else the engine's reason."""
+    try:
+        return page_one_facts(result, _preferences()[0]).sentence
+    except Exception:  # noqa: BLE001 - a label; never a reason the dialog cannot open
+        return str(result.recommendation.reason)
+
+
 class IssueMemoDialog(QDialog):
     """Identity, passphrase, sign-off names, page size; issue on a worker; open the PDF."""
 
@@ -107,9 +116,11 @@ class IssueMemoDialog(QDialog):
         self.setMinimumWidth(560)
 
         root = QVBoxLayout(self)
-        rec = QLabel(result.recommendation.reason)
+        rec = QLabel(_headline(result))
         rec.setWordWrap(True)
         rec.setStyleSheet("font-weight: bold;")
+        rec.setMinimumWidth(540)
+        rec.setMinimumHeight(rec.heightForWidth(540))  # a wrapped label is not squeezed
         root.addWidget(rec)
 
         form = QFormLayout()
@@ -201,7 +212,9 @@ class IssueMemoDialog(QDialog):
                            currency=self.currency.text().strip() or "GBP",
                            prepared_by=names["prepared"], reviewed_by=names["reviewed"],
                            approved_by=names["approved"],
-                           organisation=self.organisation.text().strip() or None)
+                           organisation=self.organisation.text().strip() or None,
+                           asset=(asset_facts(self.workbook_path, self.result.study)
+                                  if self.workbook_path else None))
 
     def _fail(self, message: str) -> None:
         self.error = message

@@ -31,7 +31,7 @@ def test_export_csv_and_xlsx(tmp_path: Path) -> None:
     src = _write(tmp_path)
     assert main(["export", str(src), "-o", str(tmp_path / "aw.csv"), "--table", "annual_worth"]) == 0
     rows = list(csv.reader((tmp_path / "aw.csv").read_text(encoding="utf-8-sig").splitlines()))
-    assert rows[0] == ["study", "retention_years", "Hoist H-4", "Hoist 5 t"]
+    assert rows[0] == ["study", "basis", "retention_years", "Hoist H-4", "Hoist 5 t"]
     assert rows[1][0] == "'=Bay 4 hoist"  # formula injection escaped (OWASP CSV injection advice)
     assert len(rows) == 1 + 6
     assert main(["export", str(src), "-o", str(tmp_path / "all.xlsx")]) == 0

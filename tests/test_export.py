@@ -14,7 +14,7 @@ import pytest
 
 from core.errors import StudyError
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
-from core.export import TABLES, escape_cell, export_csv, export_xlsx, result_tables
+from core.export import TABLES, TAX_TABLES, escape_cell, export_csv, export_xlsx, result_tables
 from core.study import run_study
 
 EVIL = "=HYPERLINK(\"http://x\",\"y\")"
@@ -44,16 +44,18 @@ def test_tables_hold_the_result_numbers() -> None:
     r = result()
     js = r.to_json()
     t = result_tables(r)
-    assert set(t) == set(TABLES)
+    assert set(t) == set(TABLES) - set(TAX_TABLES)  # no tax: no after-tax or comparison
     aw = t["annual_worth"]
-    assert aw[0] == ["study", "retention_years", EVIL, "+New press"]
-    assert [row[2] for row in aw[1:5]] == js["alternatives"][0]["annual_worth"]
-    assert [row[3] for row in aw[1:9]] == js["alternatives"][1]["annual_worth"]
+    assert aw[0] == ["study", "basis", "retention_years", EVIL, "+New press"]
+    assert {row[1] for row in aw[1:]} == {"before-tax"}
+    assert [row[3] for row in aw[1:5]] == js["alternatives"][0]["annual_worth"]
+    assert [row[4] for row in aw[1:9]] == js["alternatives"][1]["annual_worth"]
     assert len(t["alternatives"]) == 1 + 4 + 8
     assert len(t["study_period_options"]) == 1 + len(js["study_period_options"])
     summary = t["summary"][1]
     assert summary[4] == js["recommendation"]["action"]
-    assert summary[-1] == -summary[-2]  # EAC = -AW
+    assert summary[-2] == -summary[-3]  # EAC = -AW
+    assert summary[-1] == "£"  # the one currency display (core.currency)
     # several studies, or the CLI's {"studies": [...]} object
     both = result_tables({"studies": [js, js]})
     assert len(both["summary"]) == 1 + 2 * 2
@@ -64,9 +66,9 @@ def test_csv_round_trip_and_escaping(tmp_path: Path) -> None:
     p = export_csv(r, tmp_path / "aw.csv", table="annual_worth")
     with p.open(encoding="utf-8-sig", newline="") as fh:
         rows = list(csv.reader(fh))
-    assert rows[0][2] == "'" + EVIL and rows[0][3] == "'+New press"
+    assert rows[0][3] == "'" + EVIL and rows[0][4] == "'+New press"
     assert rows[1][0] == "'@Kestrel Road — press"
-    assert [float(x) for x in (row[2] for row in rows[1:5])] == \
+    assert [float(x) for x in (row[3] for row in rows[1:5])] == \
         r.to_json()["alternatives"][0]["annual_worth"]
     assert not list(tmp_path.glob("*.part"))
     with pytest.raises(StudyError, match="unknown table"):
@@ -77,12 +79,12 @@ def test_xlsx_has_every_table_numbers_as_numbers_and_no_formulas(tmp_path: Path)
     r = result()
     p = export_xlsx([r, r], tmp_path / "study.xlsx")
     book = openpyxl.load_workbook(p)
-    assert book.sheetnames == list(TABLES)
+    assert book.sheetnames == [t for t in TABLES if t not in TAX_TABLES]
     for sheet in book.worksheets:
         for row in sheet.iter_rows():
             for cell in row:
                 assert cell.data_type != "f", (sheet.title, cell.coordinate, cell.value)
     aw = book["annual_worth"]
-    assert aw["C1"].value == "'" + EVIL and aw["A2"].value == "'@Kestrel Road — press"
-    assert isinstance(aw["C2"].value, (int, float)) and aw["C2"].data_type == "n"
-    assert aw["C2"].value == r.to_json()["alternatives"][0]["annual_worth"][0]
+    assert aw["D1"].value == "'" + EVIL and aw["A2"].value == "'@Kestrel Road — press"
+    assert isinstance(aw["D2"].value, (int, float)) and aw["D2"].data_type == "n"
+    assert aw["D2"].value == r.to_json()["alternatives"][0]["annual_worth"][0]

@@ -292,3 +292,28 @@ def test_decimal_comma_file_is_read_and_the_mark_can_be_chosen(qtbot, workbook, 
     report = dialog.check()
     assert [r.amount for r in report.accepted] == [980.0]
     assert all("decimal point" in r.reason for r in report.rejected)
+
+
+def test_flagged_rows_are_listed_and_can_be_kept(qtbot, workbook, tmp_path, warnings):
+    dialog = make_dialog(qtbot, workbook, tmp_path)
+    csv = tmp_path / "work orders.csv"
+    text = csv.read_text(encoding="utf-8").splitlines()
+    text += [text[1], f"{TAG},2027-03-01,maintenance,100,typed a year ahead"]  # rows 18, 19
+    csv.write_text("\n".join(text) + "\n", encoding="utf-8")
+    assert dialog.load_file(csv)
+    report = dialog.check()
+    assert report is not None and not warnings
+    table = dialog.flagged_table
+    listed = {table.item(r, 0).text(): table.item(r, 1).text() for r in range(table.rowCount())}
+    assert listed == {"18": "exact duplicate of row 2 — left out",
+                      "19": "dated 2027-03-01, after today (2026-12-02) — left out"}
+    assert len(report.accepted) == 11
+    assert "2 flagged (2 left out)" in dialog.check_summary.text()
+    dialog.keep_duplicates.setChecked(True)
+    assert dialog.report is None  # the choice changed: Check again
+    report = dialog.check()
+    assert report is not None and len(report.accepted) == 12
+    assert table.item(0, 1).text() == "exact duplicate of row 2 — kept"
+    dialog.keep_future.setChecked(True)
+    report = dialog.check()
+    assert report is not None and len(report.accepted) == 13 and not report.left_out

@@ -85,7 +85,10 @@ def signed(ids, result, tmp_path_factory):
 def test_text_holds_recommendation_figures_cautions_and_names(result):
     pdf = render_memo(result, MemoOptions(prepared_by="Priya Natarajan", currency="GBP"))
     text = _text(pdf)
-    assert _norm(result.recommendation.reason) in text
+    from core.memo.page_one import page_one_facts
+
+    # page one states the recommendation in its own words, amounts with the currency symbol
+    assert _norm(page_one_facts(result, "£").sentence) in text
     for alt in result.alternatives:
         assert alt.name in text
         assert money(alt.annual_worth_at_economic_life) in text  # AW at ESL, signed
@@ -93,7 +96,7 @@ def test_text_holds_recommendation_figures_cautions_and_names(result):
     for caution in caution_texts():
         assert _norm(caution) in text
     assert "EAC = -AW" in text
-    assert "GBP" in text
+    assert "Amounts in £" in text  # GBP is shown as £, as the window shows it
     assert result.fingerprint in text  # footer
     assert "page 1 of" in text
     assert "Prepared" in text and "Reviewed" in text and "Approved" in text
@@ -129,7 +132,12 @@ def test_study_period_options_are_listed():
     assert feasible
     for o in feasible:
         assert money(o.annual_worth) in text
-    assert _norm(res.recommendation.reason) in text
+    from core.memo.page_one import page_one_facts
+
+    best = max(feasible, key=lambda o: round(o.annual_worth, 2))
+    sentence = page_one_facts(res, "£").sentence
+    assert f"£{money(-best.annual_worth)}" in sentence and "-" not in sentence.split("£")[1][:1]
+    assert _norm(sentence) in text
 
 
 class _FakeRisk:
@@ -407,7 +415,9 @@ def test_after_tax_memo_prints_after_tax_figures():
     assert res.recommendation.basis == "after-tax"
     text = _text(render_memo(res))
     assert "After-tax results" in text
-    assert _norm(res.recommendation.reason) in text
+    from core.memo.page_one import page_one_facts
+
+    assert _norm(page_one_facts(res, "£").sentence) in text
     for alt in res.alternatives:
         at = alt.after_tax.to_json()
         assert money(-at["annual_worth_at_economic_life"]) in text  # after-tax EAC at ESL

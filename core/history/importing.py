@@ -4,7 +4,9 @@ A table (CSV or XLSX) is read as text, a :class:`ColumnMapping` says which
 column holds what, and :func:`import_history` turns every data row into a
 ``core.workbook.HistoryRow`` or a :class:`RejectedRow` with its row number
 (as a spreadsheet shows it: the header is row 1) and the reason. Nothing is
-dropped silently: ``len(accepted) + len(rejected)`` is the number of data rows.
+dropped silently: ``len(accepted) + len(rejected) + len(left_out)`` is the number of
+data rows, where ``left_out`` are the flagged rows (exact duplicates, dated after today)
+that were not kept.
 
 Dates become years of age from the asset's in-service date: year of age j
 (j = 1, 2, ...) runs from ``in_service + (j-1)`` years up to ``in_service + j``
@@ -80,22 +82,57 @@ class RejectedRow:
 
 
 @dataclass(frozen=True)
+class FlaggedRow:
+    """A usable row that looks wrong (an exact duplicate, or dated after today).
+
+    ``kept`` says whether it was imported anyway (the caller asked to keep such rows)
+    or left out (the default).
+    """
+
+    row: int
+    reason: str
+    values: tuple[str, ...] = ()
+    kept: bool = False
+
+    def __str__(self) -> str:
+        return f"row {self.row}: {self.reason} ({'kept' if self.kept else 'left out'})"
+
+
+@dataclass(frozen=True)
 class ImportReport:
-    """What an import accepted and what it rejected (with reasons)."""
+    """What an import accepted, what it rejected (with reasons) and what it flagged.
+
+    ``flagged`` rows are warnings: exact duplicates and rows dated after today, left out
+    unless the import was asked to keep them (then they are in ``accepted`` too).
+    """
 
     source: str
     accepted: tuple[HistoryRow, ...]
     rejected: tuple[RejectedRow, ...]
     decimal: str = "."
     decimal_settled: bool = True
+    flagged: tuple[FlaggedRow, ...] = ()
+
+    @property
+    def left_out(self) -> tuple[FlaggedRow, ...]:
+        """The flagged rows that were not imported."""
+        return tuple(f for f in self.flagged if not f.kept)
 
     @property
     def rows(self) -> int:
-        return len(self.accepted) + len(self.rejected)
+        return len(self.accepted) + len(self.rejected) + len(self.left_out)
 
     def summary(self) -> str:
-        return (f"{self.source}: {len(self.accepted)} of {self.rows} rows imported, "
+        text = (f"{self.source}: {len(self.accepted)} of {self.rows} rows imported, "
                 f"{len(self.rejected)} rejected")
+        if self.flagged:
+            text += (f", {len(self.flagged)} flagged ({len(self.left_out)} left out, "
+                     f"{len(self.flagged) - len(self.left_out)} kept)")
+        return text
+
+    def warning_lines(self) -> list[str]:
+        """One line per flagged row, ``<source>: warning: row N: <reason> (left out|kept)``."""
+        return [f"{self.source}: warning: {f}" for f in self.flagged]
 
     def decimal_note(self) -> str:
         """How the amounts were read, e.g. "amounts read with a decimal comma (1.234,50)"."""
@@ -279,12 +316,19 @@ def years_between(start: _dt.date, end: _dt.date) -> float:
 
 
 def import_history(table: pd.DataFrame, mapping: ColumnMapping,
-                   in_service: Mapping[str, _dt.date | None], source: str = "") -> ImportReport:
+                   in_service: Mapping[str, _dt.date | None], source: str = "", *,
+                   keep_duplicates: bool = False, keep_future: bool = False,
+                   today: _dt.date | None = None) -> ImportReport:
     """Turn the rows of ``table`` into history rows, rejecting (with reasons) what cannot be used.
 
     ``in_service`` maps every known asset tag to its in-service date (None if
     unknown); a tag not in it is rejected as unknown. Raises ``StudyError``
     when a mapped column is missing from the table.
+
+    Usable rows that look wrong are flagged (see :func:`flag_rows`): a row whose cells
+    all repeat an earlier row (an exact duplicate would inflate that year's cost) and a
+    row dated after ``today`` (default: the computer's date). They are left out unless
+    ``keep_duplicates`` / ``keep_future`` say to keep them.
 
     >>> t = pd.DataFrame({"Tag": ["P-1", "P-1", "X"], "Date": ["2021-03-01", "bad", "2021-01-01"],
     ...                   "Cost": ["1,200", "50", "10"]}, index=[2, 3, 4])
@@ -314,6 +358,7 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
         decimal, settled = mapping.decimal, True
     accepted: list[HistoryRow] = []
     rejected: list[RejectedRow] = []
+    whole_rows: list[tuple[str, ...]] = []
     for rownum, row in table.iterrows():
         raw = tuple("" if _blank(row[c]) else str(row[c]) for c in mapping.columns())
 
@@ -401,15 +446,83 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
             reject(f"year of age {age} is implausible (over 100 years)")
             continue
         accepted.append(HistoryRow(tag, age, amount, kind, date_text, source, int(rownum)))
-    return ImportReport(source, tuple(accepted), tuple(rejected), decimal, settled)
+        whole_rows.append(tuple("" if _blank(v) else str(v).strip() for v in row.tolist()))
+    kept, flagged = flag_rows(accepted, whole_rows, in_service,
+                              _dt.date.today() if today is None else today,
+                              calendar_years=mapping.year is not None,
+                              keep_duplicates=keep_duplicates, keep_future=keep_future)
+    return ImportReport(source, kept, tuple(rejected), decimal, settled, flagged)
+
+
+def _anniversary(start: _dt.date, years: int) -> _dt.date:
+    try:
+        return start.replace(year=start.year + years)
+    except ValueError:  # 29 February
+        return start.replace(year=start.year + years, day=28)
+
+
+def flag_rows(rows: list[HistoryRow], cells: list[tuple[str, ...]],
+              in_service: Mapping[str, _dt.date | None], today: _dt.date, *,
+              calendar_years: bool = False, keep_duplicates: bool = False,
+              keep_future: bool = False) -> tuple[tuple[HistoryRow, ...], tuple[FlaggedRow, ...]]:
+    """Split usable rows into those imported and those flagged (with the reason).
+
+    ``cells[i]`` is every cell of ``rows[i]``'s table row. A row is an exact duplicate
+    when all its cells repeat an earlier row's (the first stays). A row is after today
+    when its date is; for a calendar-year column when the year is after today's; for a
+    year-of-age column when that year of age (a resale quote's age) begins after today.
+
+    >>> rows = [HistoryRow("A", 1, 5.0, "operating", "2020-02-01", "f", 2),
+    ...         HistoryRow("A", 1, 5.0, "operating", "2020-02-01", "f", 3),
+    ...         HistoryRow("A", 3, 9.0, "operating", "2031-01-01", "f", 4)]
+    >>> kept, flagged = flag_rows(rows, [("a",), ("a",), ("b",)], {"A": None},
+    ...                           _dt.date(2026, 1, 1))
+    >>> [r.source_row for r in kept]
+    [2]
+    >>> [str(f) for f in flagged]  # doctest: +NORMALIZE_WHITESPACE
+    ['row 3: exact duplicate of row 2 (left out)',
+     'row 4: dated 2031-01-01, after today (2026-01-01) (left out)']
+    """
+    first: dict[tuple[str, ...], int] = {}
+    kept: list[HistoryRow] = []
+    flagged: list[FlaggedRow] = []
+    for h, key in zip(rows, cells, strict=True):
+        where = h.source_row or 0
+        reason, keep = "", True
+        if key in first:
+            reason, keep = f"exact duplicate of row {first[key]}", keep_duplicates
+        else:
+            first[key] = where
+            if h.date is not None:
+                if _dt.date.fromisoformat(h.date) > today:
+                    reason = f"dated {h.date}, after today ({today.isoformat()})"
+            elif in_service.get(h.tag) is not None:
+                start = in_service[h.tag]
+                assert start is not None
+                if calendar_years:
+                    year = start.year + h.age - (0 if h.kind == "resale" else 1)
+                    if year > today.year:
+                        reason = f"year {year} is after this year ({today.year})"
+                else:
+                    begins = _anniversary(start, h.age - (0 if h.kind == "resale" else 1))
+                    if begins > today:
+                        reason = (f"year of age {h.age} begins {begins.isoformat()}, "
+                                  f"after today ({today.isoformat()})")
+            keep = keep_future if reason else True
+        if reason:
+            flagged.append(FlaggedRow(where, reason, key, keep))
+        if keep:
+            kept.append(h)
+    return tuple(kept), tuple(flagged)
 
 
 def import_file(path: str | Path, mapping: ColumnMapping,
-                in_service: Mapping[str, _dt.date | None], sheet: str | int | None = None
-                ) -> ImportReport:
-    """:func:`read_table` then :func:`import_history`, with the file name as the source."""
+                in_service: Mapping[str, _dt.date | None], sheet: str | int | None = None,
+                **checks: Any) -> ImportReport:
+    """:func:`read_table` then :func:`import_history` (``checks``: ``keep_duplicates``,
+    ``keep_future``, ``today``), with the file name as the source."""
     path = Path(path)
-    return import_history(read_table(path, sheet), mapping, in_service, path.name)
+    return import_history(read_table(path, sheet), mapping, in_service, path.name, **checks)
 
 
 def yearly_totals(rows: list[HistoryRow] | tuple[HistoryRow, ...],

@@ -118,9 +118,15 @@ def run_memo(args: argparse.Namespace) -> int:
         load_identity(args.sign, passphrase)
     study = load_one_study(args.file, args.study)
     result = run_study(study)
-    opts = MemoOptions(page_size=args.page_size, currency=args.currency,
+    from core.currency import workbook_currency
+    from core.memo.page_one import asset_facts
+
+    workbook = _is_workbook(args.file)
+    opts = MemoOptions(page_size=args.page_size,
+                       currency=args.currency or workbook_currency(args.file),
                        prepared_by=args.prepared_by, reviewed_by=args.reviewed_by,
-                       approved_by=args.approved_by, organisation=args.organisation)
+                       approved_by=args.approved_by, organisation=args.organisation,
+                       asset=asset_facts(args.file, study) if workbook else None)
     issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
                         role=args.role)
     print(f"memo: {issued.path}")
@@ -260,8 +266,9 @@ def register(subparsers) -> None:
     m.add_argument("--approved-by", metavar="NAME", default=None)
     m.add_argument("--organisation", metavar="ORG", default=None,
                    help="organisation named in the memo header")
-    m.add_argument("--currency", metavar="CODE", default="GBP",
-                   help="currency label for every amount (default GBP)")
+    m.add_argument("--currency", metavar="CODE", default=None,
+                   help="currency of every amount, a symbol or a code such as GBP (default: "
+                        "the workbook's currency, else £)")
     m.set_defaults(func=run_memo)
 
     s = subparsers.add_parser(

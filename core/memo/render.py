@@ -50,9 +50,12 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from core.bases import basis_views
+from core.currency import currency_symbol, format_money
 from core.memo.cautions import caution_texts
 from core.memo.chart import aw_chart
 from core.memo.fonts import FB, FI, FR
+from core.memo.page_one import AssetFacts, PageMarker, page_one_facts, page_one_flowables
 from core.memo.sign import ROLES, finish_pdf
 
 __all__ = ["MemoOptions", "render_memo", "render_memo_pages", "money", "PAGE_SIZES"]
@@ -90,6 +93,20 @@ METHOD = (
     "wins; options a machine's life cannot fill are listed as infeasible.",
     "The replacement value is the market value of the defender today at which keeping it is "
     "exactly as good as the best challenger; an offer above it favours selling.",
+)
+
+
+LEGEND = (
+    "k: years the asset is kept (retention); j: a year within it; n: the longest retention "
+    "considered. i: the interest rate (MARR) per year.",
+    "P: price today (a challenger's first cost, the defender's market value). S_k: market "
+    "value at the end of year k. C_k: operating cost of year k. X_k: extra one-off cost in "
+    "year k (overhaul, retrofit).",
+    "AW_k: annual worth of keeping the asset k years (signed, costs negative); EAC_k = -AW_k, "
+    "the equivalent annual cost. CR_k: capital recovery. MC_k: marginal cost of year k, what "
+    "keeping it that one more year costs. ESL: economic service life, the k with the best AW.",
+    "After tax: t the tax rate, D_k the tax depreciation of year k, BV_k the book value at "
+    "disposal in year k, MV the market value today.",
 )
 
 
@@ -136,7 +153,7 @@ class MemoOptions:
     """How the memo is laid out and who signs it off."""
 
     page_size: str = "A4"
-    currency: str = "GBP"
+    currency: str = "£"  # a symbol, or a code (GBP is shown as £; core.currency)
     prepared_by: str | None = None
     reviewed_by: str | None = None
     approved_by: str | None = None
@@ -144,6 +161,7 @@ class MemoOptions:
     issued: _dt.date | None = None
     signature_fields: bool = True
     extra_notes: tuple[str, ...] = field(default=())
+    asset: AssetFacts | None = None
 
     def names(self) -> dict[str, str | None]:
         return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
@@ -160,9 +178,12 @@ def _styles() -> dict[str, ParagraphStyle]:
                                 leading=19, spaceAfter=2),
         "sub": ParagraphStyle("sub", parent=body, fontSize=8.5, textColor=colors.HexColor("#444444")),
         "h": ParagraphStyle("h", parent=body, fontName=FB(), fontSize=11, leading=14,
-                            spaceBefore=8, spaceAfter=3, textColor=colors.HexColor("#1f4e79")),
+                            spaceBefore=8, spaceAfter=3, textColor=colors.HexColor("#1f4e79"),
+                            keepWithNext=1),
         "h3": ParagraphStyle("h3", parent=body, fontName=FB(), fontSize=9.5,
-                             leading=12, spaceBefore=5, spaceAfter=2),
+                             leading=12, spaceBefore=5, spaceAfter=2, keepWithNext=1),
+        "lead": ParagraphStyle("lead", parent=body, fontSize=7.5, leading=9.5,
+                               keepWithNext=1),
         "body": body,
         "rec": ParagraphStyle("rec", parent=body, fontName=FB(), fontSize=11,
                               leading=14.5),
@@ -350,7 +371,8 @@ class _Builder:
         self.o = opts
         self.w = width
         self.s = _styles()
-        self.cur = opts.currency
+        self.cur = self.sym = currency_symbol(opts.currency)  # one display everywhere
+        self.marks: dict[str, int] = {}
         self.story: list = []
 
     def add(self, *flow):
@@ -370,30 +392,16 @@ class _Builder:
             bits.insert(0, o.organisation)
         bits.append(f"Amounts in {self.cur}; AW is signed (costs negative); EAC = -AW")
         self.add(_p(" | ".join(bits), s["sub"]), Spacer(1, 6))
-        rec = r.recommendation
-        head = "REPLACE" if rec.action == "replace" else "KEEP"
-        box = Table([[Paragraph(f"<font color='#1f4e79'>Recommendation ({head}, "
-                                f"{escape(rec.basis)}):</font>", s["small"])],
-                     [_p(rec.reason, s["rec"])]],
-                    colWidths=[self.w], hAlign="LEFT")
-        box.setStyle(TableStyle([
-            ("BOX", (0, 0), (-1, -1), 1.0, colors.HexColor("#1f4e79")),
-            ("BACKGROUND", (0, 0), (-1, -1), colors.HexColor("#f3f6fa")),
-            ("LEFTPADDING", (0, 0), (-1, -1), 7), ("RIGHTPADDING", (0, 0), (-1, -1), 7),
-            ("TOPPADDING", (0, 0), (-1, 0), 5), ("BOTTOMPADDING", (0, -1), (-1, -1), 7),
-        ]))
-        self.add(box, Spacer(1, 4))
-        btr = getattr(r, "before_tax_recommendation", None)
-        if btr is not None and btr is not rec and getattr(btr, "reason", None) and \
-                btr.reason != rec.reason:
-            self.add(_p(f"Before tax, for comparison: {btr.reason}", s["small"]))
+        facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"))
+        self.add(*page_one_flowables(facts, self.w, s, r.recommendation.basis))
 
     def key_figures(self):
         r, s, cur = self.r, self.s, self.cur
         ats = {a.name: _to_json(getattr(a, "after_tax", None)) for a in r.alternatives}
         with_tax = all(isinstance(d, dict) and isinstance(d.get("economic_life"), int)
                        for d in ats.values())
-        self.h("Key figures")
+        self.h("Key figures" + (" (decision basis: after tax)"
+                                if r.recommendation.basis == "after-tax" else " (before tax)"))
         rows = [["#", "Alternative", "Role", f"Price ({cur})", "Max life",
                  "ESL", f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
         if with_tax:
@@ -441,9 +449,10 @@ class _Builder:
         if "defender_marginal_cost" in omy:
             keep = "keep" if omy.get("keep_next_year") else "do not keep"
             facts.append(["One-more-year check (next year)",
-                          f"defender marginal cost {money(omy['defender_marginal_cost'])} "
-                          f"{cur} vs best challenger EAC {money(omy.get('challenger_annual_cost'))} "
-                          f"{cur}: {keep} it another year"])
+                          f"defender marginal cost "
+                          f"{format_money(omy['defender_marginal_cost'], cur)} vs best "
+                          f"challenger EAC {format_money(omy.get('challenger_annual_cost'), cur)}"
+                          f": {keep} it another year"])
         if rec.action == "keep" and rec.planned_defender_years and r.study.study_period is None:
             facts.append(["Planned replacement (today's estimates)",
                           f"after {yrs(rec.planned_defender_years)}"])
@@ -458,32 +467,25 @@ class _Builder:
                                       header=False))
 
     def chart(self):
-        r = self.r
-        series = [(a.name, [float(v) for v in a.annual_worth], int(a.economic_life))
-                  for a in r.alternatives]
-        title = "Annual worth against years of retention (before tax)" \
-            if r.after_tax is not None or r.recommendation.basis == "after-tax" \
-            else "Annual worth against years of retention"
+        views = basis_views(self.r)
         self.h("Annual worth against retention")
-        self.add(aw_chart(series, self.w, 250, self.cur, title))
-        self.add(_p("Each line is one alternative's AW for keeping it k years; the large filled "
-                    "marker is its economic service life (ESL), the best AW. Higher is better "
-                    f"(less cost). EAC = -AW. Amounts in {self.cur} per year.", self.s["small"]))
-        at_series = []
-        for a in r.alternatives:
-            at = _to_json(getattr(a, "after_tax", None))
-            if at and isinstance(at.get("annual_worth"), list) and at.get("economic_life"):
-                at_series.append((a.name, [float(v) for v in at["annual_worth"]],
-                                  int(at["economic_life"])))
-        if at_series and len(at_series) == len(r.alternatives):
-            self.add(Spacer(1, 4), aw_chart(at_series, self.w, 230, self.cur,
-                                            "After-tax annual worth against years of retention"))
+        for n, view in enumerate(views):
+            series = [(a.name, list(a.annual_worth), a.economic_life) for a in view.alternatives]
+            title = f"Annual worth against years of retention, {view.title.lower()}"
+            if n:
+                self.add(Spacer(1, 4))
+            self.add(aw_chart(series, self.w, 250 if n == 0 else 230, self.cur, title))
+            if n == 0:
+                self.add(_p("Each line is one alternative's AW for keeping it k years; the "
+                            "large filled marker is its economic service life (ESL), the best "
+                            "AW. Higher is better (less cost). EAC = -AW. Amounts in "
+                            f"{self.cur} per year.", self.s["small"]))
 
     def schedules(self):
         """Year-by-year table of every alternative: the inputs and AW's parts."""
         r, s, cur = self.r, self.s, self.cur
         self.add(CondPageBreak(200))
-        self.h("Year by year")
+        self.h("Year by year (before tax)")
         self.add(_p(f"Market value S_k, operating cost C_k and extra cost X_k (inputs), and the "
                     f"annual worth AW_k of keeping the asset k years with its capital-recovery "
                     f"and operating parts, and the marginal cost MC_k of year k. All in {cur}; "
@@ -502,7 +504,7 @@ class _Builder:
             esl_row = a.economic_life
             w = self.w / 9
             self.add(KeepTogether([
-                _p(f"{a.name} ({a.role}, price {money(a.price)} {cur})", s["h3"]),
+                _p(f"{a.name} ({a.role}, price {format_money(a.price, cur)})", s["h3"]),
                 _table(rows, [w] * 9, numeric_from=1, extra=[
                     ("BACKGROUND", (0, esl_row), (-1, esl_row), colors.HexColor("#fff2cc")),
                     ("FONT", (0, esl_row), (-1, esl_row), FB(), 7.5)]),
@@ -510,33 +512,39 @@ class _Builder:
 
     def study_period(self):
         r, s, cur = self.r, self.s, self.cur
-        opts = list(r.study_period_options or ())
-        if not opts:
+        views = [v for v in basis_views(r) if v.options]
+        if not views:
             return
         self.h(f"Study-period options ({yrs(r.study.study_period)})")
         self.add(_p("Keep the defender j years, then the challenger for the remaining years. "
                     f"AW over the whole study period, {cur} per year; the best feasible option "
-                    "is marked.", s["small"]))
-        feasible = [o for o in opts if o.feasible and o.annual_worth is not None]
-        best = max(feasible, key=lambda o: round(o.annual_worth, 2)) if feasible else None
-        rows = [["Keep defender", "Then challenger", "For", f"AW ({cur}/yr)",
-                 f"EAC ({cur}/yr)", "Feasible / note"]]
-        best_row = None
-        for o in opts:
-            if o is best:
-                best_row = len(rows)
-            rows.append([yrs(o.defender_years), Paragraph(escape(o.challenger or "(none)"),
-                                                          s["cell"]),
-                         yrs(o.challenger_years) if o.challenger else "-",
-                         money(o.annual_worth), money(-o.annual_worth) if o.annual_worth is not
-                         None else "", Paragraph(escape("best" if o is best else (
-                             "yes" if o.feasible else f"no: {o.reason}")), s["cell"])])
-        w = self.w
-        extra = []
-        if best_row is not None:
-            extra = [("BACKGROUND", (0, best_row), (-1, best_row), colors.HexColor("#fff2cc"))]
-        self.add(_table(rows, [0.13 * w, 0.25 * w, 0.1 * w, 0.14 * w, 0.14 * w, 0.24 * w],
-                        numeric_from=None, extra=extra + [("ALIGN", (3, 0), (4, -1), "RIGHT")]))
+                    "is marked." + (" The decision basis comes first." if len(views) > 1
+                                    else ""), s["lead"]))
+        for view in views:
+            opts = list(view.options)
+            feasible = [o for o in opts if o.feasible and o.annual_worth is not None]
+            best = max(feasible, key=lambda o: round(o.annual_worth, 2)) if feasible else None
+            rows = [["Keep defender", "Then challenger", "For", f"AW ({cur}/yr)",
+                     f"EAC ({cur}/yr)", "Feasible / note"]]
+            best_row = None
+            for o in opts:
+                if o is best:
+                    best_row = len(rows)
+                rows.append([yrs(o.defender_years), Paragraph(escape(o.challenger or "(none)"),
+                                                              s["cell"]),
+                             yrs(o.challenger_years) if o.challenger else "-",
+                             money(o.annual_worth), money(-o.annual_worth) if o.annual_worth
+                             is not None else "", Paragraph(escape("best" if o is best else (
+                                 "yes" if o.feasible else f"no: {o.reason}")), s["cell"])])
+            w = self.w
+            extra = []
+            if best_row is not None:
+                extra = [("BACKGROUND", (0, best_row), (-1, best_row),
+                          colors.HexColor("#fff2cc"))]
+            self.add(_p(f"Study-period options, {view.title.lower()}", s["h3"]),
+                     _table(rows, [0.13 * w, 0.25 * w, 0.1 * w, 0.14 * w, 0.14 * w, 0.24 * w],
+                            numeric_from=None,
+                            extra=extra + [("ALIGN", (3, 0), (4, -1), "RIGHT")]))
 
     def after_tax(self):
         r, s, cur = self.r, self.s, self.cur
@@ -607,23 +615,6 @@ class _Builder:
                 self.add(KeepTogether([head, tbl]) if len(aw) <= 25 else head, )
                 if len(aw) > 25:
                     self.add(tbl)
-        opts = top.get("study_period_options")
-        if isinstance(opts, list) and opts:
-            rows = [["Keep defender", "Then challenger", "For", f"AW after tax ({cur}/yr)",
-                     "Feasible / note"]]
-            for o in opts:
-                if not isinstance(o, dict):
-                    continue
-                rows.append([yrs(o.get("defender_years")),
-                             Paragraph(escape(str(o.get("challenger") or "(none)")), s["cell"]),
-                             yrs(o.get("challenger_years")) if o.get("challenger") else "-",
-                             money(o.get("annual_worth")),
-                             Paragraph(escape("yes" if o.get("feasible") else
-                                              f"no: {o.get('reason', '')}"), s["cell"])])
-            w = self.w
-            self.add(_p("Study-period options after tax", s["h3"]),
-                     _table(rows, [0.14 * w, 0.28 * w, 0.1 * w, 0.18 * w, 0.3 * w],
-                            numeric_from=None, extra=[("ALIGN", (3, 0), (3, -1), "RIGHT")]))
         known = {"tax_rate", "after_tax_marr", "rate_used", "discount_rate", "money",
                  "conventions", "alternatives", "recommendation", "study_period_options",
                  "before_tax_study_period_options"}
@@ -904,13 +895,13 @@ class _Builder:
             if dep.years:
                 bits.append(f"over {yrs(dep.years)}")
             if dep.basis is not None:
-                bits.append(f"basis {money(dep.basis)} {cur}")
+                bits.append(f"basis {format_money(dep.basis, cur)}")
             if dep.rate is not None:
                 bits.append(f"rate {pct(dep.rate)}")
             if dep.age:
                 bits.append(f"{yrs(dep.age)} already claimed")
             if dep.salvage:
-                bits.append(f"tax salvage {money(dep.salvage)} {cur}")
+                bits.append(f"tax salvage {format_money(dep.salvage, cur)}")
             rows.append(["Tax depreciation", ", ".join(bits)])
         return [rows[0]] + [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in rows[1:]]
 
@@ -918,6 +909,9 @@ class _Builder:
         self.h("Method")
         for m in METHOD:
             self.add(_p(m, self.s["body"]))
+        self.add(_p("Symbols used in the tables", self.s["h3"]))
+        for m in LEGEND:
+            self.add(Paragraph(escape(m), self.s["bullet"], bulletText="\u2022"))
 
     def warnings(self):
         w = list(getattr(self.r, "warnings", ()) or ()) + list(self.o.extra_notes)
@@ -929,6 +923,7 @@ class _Builder:
 
     def cautions(self):
         self.h("Cautions")
+        self.add(PageMarker(self.marks, "cautions"))
         for c in caution_texts():
             self.add(Paragraph(escape(c), self.s["bullet"], bulletText="\u2022"))
 
@@ -984,7 +979,7 @@ def _footer_factory(fingerprint: str, title: str, total: list[int], size):
 
 
 def _build(result: Any, opts: MemoOptions, fingerprint: str, total: list[int],
-           sink: dict) -> tuple[bytes, int]:
+           sink: dict, marks: dict[str, int] | None = None) -> tuple[bytes, int]:
     size = PAGE_SIZES[opts.page_size]
     buf = io.BytesIO()
     title = result.study.title
@@ -997,6 +992,8 @@ def _build(result: Any, opts: MemoOptions, fingerprint: str, total: list[int],
         producer="Tenure (reportlab)",
     )
     b = _Builder(result, opts, doc.width)
+    if marks is not None:  # pages recorded by the first pass (page one points to them)
+        b.marks = marks
     b.header()
     b.key_figures()
     b.chart()
@@ -1035,14 +1032,15 @@ def render_memo_pages(result: Any, options: MemoOptions | None = None) -> tuple[
     fp = fingerprint(result.study)
     total = [0]
     sink: dict = {}
-    _, pages = _build(result, opts, fp, total, sink)  # first pass: count the pages
+    marks: dict[str, int] = {}
+    _, pages = _build(result, opts, fp, total, sink, marks)  # first pass: count the pages
     total[0] = pages
     sink.clear()
-    pdf, pages2 = _build(result, opts, fp, total, sink)
+    pdf, pages2 = _build(result, opts, fp, total, sink, marks)
     if pages2 != pages:  # pragma: no cover - page count is stable between passes
         total[0] = pages2
         sink.clear()
-        pdf, _ = _build(result, opts, fp, total, sink)
+        pdf, _ = _build(result, opts, fp, total, sink, marks)
     attachment = dump_study_document([result.study]).encode("utf-8")
     return finish_pdf(pdf, attachment=attachment, fingerprint=fp,
                       fields=sink if opts.signature_fields else {},
