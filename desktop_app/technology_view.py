@@ -28,13 +28,14 @@ from PySide6.QtGui import (
 from PySide6.QtWidgets import QFrame, QLabel, QScrollArea, QSizePolicy, QVBoxLayout, QWidget
 
 from core.results import StudyResult
+from desktop_app import palette
 from desktop_app.charts import format_money as _money
 
 # Okabe & Ito colours, as the charts and the badge use them; the defender in grey.
 DEFENDER_COLOUR = "#9a9a9a"
-LANE_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9")
-KEEP_BADGE = ("#009E73", "#ffffff")
-REPLACE_BADGE = ("#D55E00", "#ffffff")
+LANE_COLOURS = palette.SERIES[:6]
+KEEP_BADGE = (palette.KEEP, palette.ON_DECISION)
+REPLACE_BADGE = (palette.REPLACE, palette.ON_DECISION)
 
 
 @dataclass(frozen=True)
@@ -145,7 +146,7 @@ class PlanTimeline(QWidget):
         p.drawLine(QPointF(x0, self.TOP - 8), QPointF(x0, bottom))
         p.drawText(QRectF(x0 + 3, 4, 60, 16), Qt.AlignmentFlag.AlignLeft, "now")
         if any(bar.start > 0 for bar in self._bars):
-            p.setPen(QColor("#D55E00"))
+            p.setPen(QColor(palette.REPLACE))
             p.drawText(QRectF(left, 4, self._x(self._horizon, left) - left, 16),
                        Qt.AlignmentFlag.AlignRight, "\u25bc replace")
         # replacements: a dashed line across the lanes and a marker above them
@@ -154,7 +155,7 @@ class PlanTimeline(QWidget):
             p.setPen(QPen(QColor("#555555"), 1, Qt.PenStyle.DashLine))
             p.drawLine(QPointF(x, self.TOP), QPointF(x, bottom))
             p.setPen(Qt.PenStyle.NoPen)
-            p.setBrush(QBrush(QColor("#D55E00")))
+            p.setBrush(QBrush(QColor(palette.REPLACE)))
             p.drawPolygon(QPolygonF([QPointF(x, self.TOP - 1), QPointF(x - 5, self.TOP - 9),
                                      QPointF(x + 5, self.TOP - 9)]))
         # bars
