@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from core.errors import StudyError
+from core.errors import StudyError, error_line, escape_text
 from core.estimates import Study
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -100,7 +100,8 @@ def cmd_study(args: argparse.Namespace) -> int:
     else:
         from core.report import format_study
 
-        sys.stdout.write("\n\n".join(format_study(r) for r in results))
+        text = "\n\n".join(format_study(r) for r in results)
+        sys.stdout.write("\n".join(escape_text(line) for line in text.split("\n")))
         sys.stdout.write("\n")
     return 0
 
@@ -203,7 +204,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             return cmd_window(args)
         return int(args.func(args) or 0)
     except StudyError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+        print(error_line(exc), file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("error: tenure: interrupted", file=sys.stderr)
@@ -212,8 +213,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     except Exception as exc:  # last line of defence: never a traceback to the user
         log = _log_unexpected(exc)
-        print(f"error: tenure: unexpected internal error ({type(exc).__name__}: {exc}); "
-              f"details in {log}", file=sys.stderr)
+        print(escape_text(f"error: tenure: unexpected internal error ({type(exc).__name__}: "
+                          f"{exc}); details in {log}"), file=sys.stderr)
         return 2
 
 

@@ -52,9 +52,11 @@ def read_recovery(path: str | None) -> dict[str, Any] | None:
     target = recovery_file(path)
     if not target.exists():
         return None
+    from core.studyfile import loads_json
+
     try:
-        return json.loads(target.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        return loads_json(target.read_text(encoding="utf-8"), str(target))
+    except (OSError, ValueError):  # a StudyError is a ValueError
         return None
 
 

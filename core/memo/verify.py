@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import contextlib
 import io
-import json
 import logging
 import os
 from dataclasses import dataclass, field
@@ -249,11 +248,11 @@ def read_attachment(pdf: bytes) -> bytes | None:
 def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | None]:
     """(fingerprint, title, problem) of the attached study document."""
     try:
-        from core.studyfile import fingerprint, parse_study_document
+        from core.studyfile import fingerprint, loads_json, parse_study_document
     except Exception:  # pragma: no cover - study file module missing
         return None, None, "cannot check the attached study (core.studyfile unavailable)"
     try:
-        studies = parse_study_document(json.loads(data.decode("utf-8")))
+        studies = parse_study_document(loads_json(data.decode("utf-8"), "attachment"))
     except Exception as e:  # noqa: BLE001
         return None, None, f"the attached study does not load: {e}"
     if len(studies) != 1:

@@ -15,7 +15,13 @@ from typing import Any
 
 from core.errors import StudyError
 from core.estimates import Alternative, Study
-from core.studyfile import alternative_to_dict, fingerprint, parse_study, study_to_dict
+from core.studyfile import (
+    alternative_to_dict,
+    fingerprint,
+    loads_json,
+    parse_study,
+    study_to_dict,
+)
 from core.workbook.files import (
     WorkbookError,
     WorkbookInUse,
@@ -307,8 +313,45 @@ class Workbook:
     def _q(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
         if self._conn is None:
             raise WorkbookError(self.path, "workbook is closed")
-        cur = self._conn.execute(sql, params)
-        return cur.fetchall()
+        try:
+            cur = self._conn.execute(sql, params)
+            return cur.fetchall()
+        except sqlite3.OperationalError as exc:
+            if "decode" not in str(exc).lower():
+                raise
+            raise self._damaged_text() from None
+
+    def _damaged_text(self) -> WorkbookError:
+        """The refusal for text that is not UTF-8 (a flipped bit): names the table and row.
+
+        Only reads (with text read as bytes); the file is not changed.
+        """
+        conn = self._conn
+        saved = conn.text_factory
+        conn.text_factory = bytes
+        try:
+            tables = [r[0] for r in conn.execute(
+                "SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
+            for table in tables:
+                name = table.decode("utf-8", "replace") if isinstance(table, bytes) else table
+                cols = [r[1].decode("utf-8", "replace") if isinstance(r[1], bytes) else r[1]
+                        for r in conn.execute(f'PRAGMA table_info("{name}")')]
+                for n, row in enumerate(conn.execute(f'SELECT * FROM "{name}"'), start=1):
+                    for col, value in zip(cols, row, strict=False):
+                        if isinstance(value, bytes):
+                            try:
+                                value.decode("utf-8")
+                            except UnicodeDecodeError as err:
+                                key = row[0].decode("utf-8", "replace") if isinstance(
+                                    row[0], bytes) else row[0]
+                                return WorkbookError(
+                                    self.path, f"damaged: table {name}, row {n} ({cols[0]} "
+                                    f"{key!s}), column {col} is not valid UTF-8 text (byte "
+                                    f"{err.start + 1}); the file was not changed")
+        finally:
+            conn.text_factory = saved
+        return WorkbookError(self.path, "damaged: some text is not valid UTF-8; the file was "
+                                        "not changed")
 
     # ------------------------------------------------------------------ meta
     @property
@@ -402,8 +445,8 @@ class Workbook:
         study_json, result_json, fp, action, saved_at = rows[0]
         where = f"{self.path}: {tag} {year}"
         try:
-            study = parse_study(json.loads(study_json), where)
-            result = json.loads(result_json) if result_json else None
+            study = parse_study(loads_json(study_json, where), where)
+            result = loads_json(result_json, where) if result_json else None
         except (ValueError, StudyError) as exc:
             raise WorkbookError(self.path, f"the stored study of {tag} {year} is damaged "
                                            f"({exc})") from None
@@ -501,7 +544,12 @@ class Workbook:
         for cid, name, cls, body in self._q(sql + " ORDER BY name", params):
             tags = tuple(r[0] for r in self._q(
                 "SELECT tag FROM asset_candidates WHERE candidate_id = ? ORDER BY tag", (cid,)))
-            alt = _parse_alternative(json.loads(body), f"{self.path}: candidate '{name}'")
+            where = f"{self.path}: candidate '{name}'"
+            try:
+                alt = _parse_alternative(loads_json(body, where), where)
+            except StudyError as exc:
+                raise WorkbookError(self.path, f"candidate '{name}' is damaged ({exc.message})"
+                                    ) from None
             out.append(Candidate(cid, name, cls, alt, tags))
         return out
 
@@ -550,7 +598,7 @@ class Workbook:
         if self.schema_version < 2:
             return []
         year = self.current_year(tag) if year is None else year
-        return [json.loads(r[0]) for r in self._q(
+        return [loads_json(r[0], f"{self.path}: fit of {tag} {year}") for r in self._q(
             "SELECT fit_json FROM fits WHERE tag = ? AND year = ? ORDER BY quantity", (tag, year))]
 
     # ------------------------------------------------------------------ memos
