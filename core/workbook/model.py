@@ -200,9 +200,7 @@ class Workbook:
         if not write:
             return cls(path, cls._connect(path, False), False, None, version)
         lock = WriterLock(path)
-        if break_lock:
-            lock.break_lock()
-        lock.acquire()
+        lock.acquire(force=break_lock)
         try:
             conn = cls._connect(path, True)
             try:
