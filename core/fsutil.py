@@ -28,7 +28,8 @@ def is_disk_full(exc: BaseException) -> bool:
     if isinstance(exc, OSError) and exc.errno in DISK_FULL_ERRNOS:
         return True
     text = str(exc).lower()
-    return "disk is full" in text or "disk full" in text or "file too large" in text
+    return any(words in text for words in ("disk is full", "disk full", "file too large",
+                                           "no space left", "efbig", "enospc", "edquot"))
 
 
 def fsync_dir(folder: str | os.PathLike) -> None:

@@ -370,7 +370,12 @@ class MainWindow(QMainWindow):
         self.set_document(doc, dirty=dirty)
         self.prefs.add_recent(str(path))
         self._update_recent_menu()
-        self.report(f"Opened {Path(path).name}")
+        why = read_only_reason(doc)
+        if why:
+            self.report(f"Opened {Path(path).name} read-only: {why}. Edits can be kept with "
+                        "File ▸ Save As")
+        else:
+            self.report(f"Opened {Path(path).name}")
         self.message_label.setToolTip(str(path))
         return True
 
@@ -431,6 +436,14 @@ class MainWindow(QMainWindow):
             save_document(self.doc, path)
         except StudyError as exc:
             self.report(f"Not saved: {friendly(exc)}")
+            if is_read_only_or_full(exc) and path == old_path:
+                answer = QMessageBox.question(
+                    self, APP_NAME, f"The file was not saved.\n\n{friendly(exc)}\n\nYour "
+                    "changes are still open. Save them elsewhere with Save As?",
+                    QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No)
+                if answer == QMessageBox.StandardButton.Yes:
+                    return self.save_as()
+                return False
             QMessageBox.warning(self, APP_NAME, f"The file was not saved.\n\n{friendly(exc)}")
             return False
         except OSError as exc:
@@ -859,3 +872,19 @@ def dump(obj: Any) -> str:
 
 
 __all__ = ["MainWindow", "QSignalBlocker"]
+
+
+def read_only_reason(doc: Document) -> str | None:
+    """Why the open workbook cannot be saved in place (read-only file or folder), or None."""
+    if doc.kind != "workbook" or not doc.path:
+        return None
+    try:
+        from core.workbook import write_problem
+    except ImportError:
+        return None
+    return write_problem(doc.path)
+
+
+def is_read_only_or_full(exc: StudyError) -> bool:
+    """A save refused because the workbook is read-only or the disk is full."""
+    return "read-only" in exc.message or exc.message.startswith("disk full")

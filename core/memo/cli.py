@@ -37,7 +37,10 @@ def _guard(fn):
         except Exception:  # pragma: no cover
             StudyError = MemoError  # noqa: N806
         try:
-            return int(fn(args) or 0)
+            code = int(fn(args) or 0)
+            for warning in getattr(args, "warnings", []):
+                print(f"warning: {escape_text(warning)}", file=sys.stderr)
+            return code
         except (MemoError, StudyError) as e:
             from core.errors import error_line
 
@@ -91,11 +94,15 @@ def _is_workbook(path: str) -> bool:
 
 
 def _passphrase(args) -> bytes:
-    from core.memo.identity import read_passphrase_file
+    from core.memo.identity import passphrase_file_warning, read_passphrase_file
 
     if not getattr(args, "passphrase_file", None):
         raise MemoError("--passphrase-file", "needed with --sign (a file holding the passphrase)")
-    return read_passphrase_file(args.passphrase_file)
+    passphrase = read_passphrase_file(args.passphrase_file)
+    warning = passphrase_file_warning(args.passphrase_file)
+    if warning:  # printed by _guard after the command, so a refusal stays one line
+        args.warnings = [*getattr(args, "warnings", []), warning]
+    return passphrase
 
 
 @_guard

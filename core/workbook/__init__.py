@@ -53,7 +53,14 @@ the register, and the computed result (``StudyResult.to_json()``) alongside as a
 readable snapshot.
 """
 
-from core.workbook.files import WorkbookError, WorkbookInUse, check_file, lock_path
+from core.workbook.files import (
+    WorkbookError,
+    WorkbookInUse,
+    WorkbookReadOnly,
+    check_file,
+    lock_path,
+    write_problem,
+)
 from core.workbook.model import (
     Asset,
     Candidate,
@@ -78,6 +85,7 @@ from core.workbook.recovery import (
 from core.workbook.schema import APPLICATION_ID, SCHEMA_VERSION
 
 __all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "Asset", "Candidate", "HistoryRow", "MemoRecord",
-           "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse", "autosave",
+           "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse",
+           "WorkbookReadOnly", "write_problem", "autosave",
            "check_file", "discard_recovery", "export_study_json", "import_study_json", "find_recovery", "lock_path", "record_memo",
            "recovery_path", "restore_recovery", "save_studies", "studies_from_workbook"]

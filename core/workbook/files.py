@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
+import errno
 import json
 import os
 import socket
@@ -38,6 +39,33 @@ class WorkbookError(StudyError):
 
 class WorkbookInUse(WorkbookError):
     """Another process has the workbook open for writing."""
+
+
+class WorkbookReadOnly(WorkbookError):
+    """The workbook cannot be written here (file or folder read-only); open it read-only."""
+
+
+def write_problem(path: str | Path) -> str | None:
+    """Why the workbook at ``path`` cannot be written, or None when it can.
+
+    Tries what a save needs without changing anything: opening the file for
+    writing (refused for a read-only or immutable file, even to root where the
+    filesystem says so) and creating files in its folder (SQLite's journal).
+    """
+    path = Path(path)
+    try:
+        fd = os.open(path, os.O_RDWR)
+    except PermissionError:
+        return "the file is read-only"
+    except OSError as exc:
+        if exc.errno == errno.EROFS:
+            return "the file is on a read-only disk"
+        return f"the file cannot be opened for writing ({exc.strerror or exc})"
+    os.close(fd)
+    folder = path.parent
+    if not os.access(folder, os.W_OK | os.X_OK):
+        return "its folder is read-only (a save needs to write a journal file beside it)"
+    return None
 
 
 def _refuse(path: Path, why: str) -> WorkbookError:
