@@ -42,8 +42,9 @@ Files are checked before anything is written: a damaged, truncated or foreign
 file raises :class:`WorkbookError` (a ``core.errors.StudyError``, printed as
 ``error: <file>: not a Tenure workbook (...)``) and is left byte-identical. A
 second process opening the same workbook for writing gets :class:`WorkbookInUse`
-(a lock file ``<name>.lock`` holds pid, host and time; a lock left by a dead
-process on this host is taken over). ``PRAGMA user_version`` is the schema
+(an OS lock on ``<name>.lock``, which also names pid, host and time; it vanishes
+with its process, so nothing is ever "taken over"). A file or folder that cannot
+be written gives :class:`WorkbookReadOnly` when opened for writing. ``PRAGMA user_version`` is the schema
 version; older workbooks are migrated forward in one transaction on opening for
 writing; ``PRAGMA application_id`` marks the file as ours.
 
