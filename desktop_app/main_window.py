@@ -243,6 +243,9 @@ class MainWindow(QMainWindow):
         self.memo_action = self._action("Issue &memo…", self.issue_memo,
                                         tip="Write and sign the decision memo (PDF)")
         m.addAction(self.memo_action)
+        m.addAction(self._action("&Trust a colleague's certificate…", self.trust_certificate,
+                                 tip="Accept memos signed with a colleague's certificate, after "
+                                     "comparing its fingerprint"))
         m.addSeparator()
         m.addAction(self._action("&Preferences…", self.edit_preferences, sk.Preferences))
         m.addSeparator()
@@ -737,6 +740,13 @@ class MainWindow(QMainWindow):
         return ok
 
     # ------------------------------------------------------------------ other actions
+    def trust_certificate(self) -> None:
+        from desktop_app.trust_dialog import trust_certificate
+
+        status = trust_certificate(self)
+        if status:
+            self.report(status)
+
     def issue_memo(self) -> None:
         if self.current_result is None:
             self.report("Issue memo: select a studied asset first")

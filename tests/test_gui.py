@@ -618,3 +618,40 @@ def test_read_only_workbook_opens_read_only_and_offers_save_as(qtbot, monkeypatc
     assert "read-only" in offered[0]
     assert window.is_dirty() and book.read_bytes() == before
     assert mw.is_read_only_or_full(wbmod.WorkbookError(book, "disk full: x"))
+
+
+def test_trust_a_colleagues_certificate_shows_its_fingerprint(qtbot, monkeypatch, tmp_path):
+    from PySide6.QtWidgets import QDialog
+
+    from core.memo import trust
+    from core.memo.identity import certificate_pem, new_identity
+    from desktop_app import trust_dialog
+
+    monkeypatch.setattr(trust, "legacy_trust_dir", lambda: tmp_path / "none")
+    p12 = tmp_path / "tom.p12"
+    new_identity("Tom Ashworth", p12, b"kestrel-road-2026", organisation="Harrowgate Fabrication Ltd.")
+    cert = tmp_path / "tom.pem"
+    cert.write_bytes(certificate_pem(p12, b"kestrel-road-2026"))
+    (entry,) = trust.inspect(cert)
+    shown = []
+
+    def answer(result):
+        def exec_(dialog):
+            shown.append(dialog.fingerprint.text())
+            return result
+        return exec_
+
+    window = make_window(qtbot)
+    monkeypatch.setattr(QFileDialog, "getOpenFileName", staticmethod(lambda *a, **k: (str(cert), "")))
+    monkeypatch.setattr(trust_dialog.TrustCertificateDialog, "exec",
+                        answer(QDialog.DialogCode.Rejected))
+    window.trust_certificate()
+    assert trust.trusted() == [] and window.last_message == "No certificate was trusted"
+    monkeypatch.setattr(trust_dialog.TrustCertificateDialog, "exec",
+                        answer(QDialog.DialogCode.Accepted))
+    window.trust_certificate()
+    assert [t.sha256 for t in trust.trusted()] == [entry.sha256]
+    assert window.last_message.startswith("Trusted: Tom Ashworth (")
+    # shown in four lines of four groups: the whole SHA-256, to compare by phone
+    assert shown[-1].split() == trust.format_fingerprint(entry.sha256).split()
+    assert len(shown[-1].splitlines()) == 4

@@ -163,7 +163,7 @@ def run_sign(args: argparse.Namespace) -> int:
     passphrase = _passphrase(args)
     rep = verify_memo(memo, use_user_trust=False)  # refuses non-memos (exit 2)
     if rep.signatures and not rep.integrity_ok:
-        print(f"error: {memo}: the memo is not intact; refusing to add a signature "
+        print(f"error: {escape_text(str(memo))}: the memo is not intact; refusing to add a signature "
               "(run tenure verify for details)", file=sys.stderr)
         return 1
     res = sign_memo_file(memo, args.sign, passphrase, args.role, output=args.output)

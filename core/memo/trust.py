@@ -25,7 +25,7 @@ from pathlib import Path
 from core.memo.errors import MemoError
 
 __all__ = ["TrustedCert", "trust_dir", "legacy_trust_dir", "read_certificates", "trusted",
-           "add", "remove", "format_fingerprint", "register"]
+           "inspect", "same_name_elsewhere", "add", "remove", "format_fingerprint", "register"]
 
 _HEX = re.compile(r"[0-9a-f]+")
 
@@ -116,14 +116,28 @@ def trusted() -> list[TrustedCert]:
     return sorted(out.values(), key=lambda t: (t.name.lower(), t.sha256))
 
 
-def add(cert_file: str | os.PathLike) -> list[tuple[TrustedCert, bool]]:
-    """Add every certificate of ``cert_file``; returns (entry, newly added) for each."""
+def _read(cert_file: str | os.PathLike) -> list:
     try:
-        certs = read_certificates(cert_file)
+        return read_certificates(cert_file)
     except OSError as e:
         raise MemoError(str(cert_file), f"cannot read: {e.strerror or e}") from None
     except Exception:  # noqa: BLE001
         raise MemoError(str(cert_file), "not a PEM or DER certificate") from None
+
+
+def inspect(cert_file: str | os.PathLike) -> list[TrustedCert]:
+    """What the certificates of ``cert_file`` say (name, fingerprint, ...), without trusting them."""
+    return [_describe(c, Path(cert_file)) for c in _read(cert_file)]
+
+
+def same_name_elsewhere(entry: TrustedCert) -> list[TrustedCert]:
+    """Trusted certificates with the same name as ``entry`` but another fingerprint."""
+    return [t for t in trusted() if t.name == entry.name and t.sha256 != entry.sha256]
+
+
+def add(cert_file: str | os.PathLike) -> list[tuple[TrustedCert, bool]]:
+    """Add every certificate of ``cert_file``; returns (entry, newly added) for each."""
+    certs = _read(cert_file)
     folder = trust_dir()
     try:
         folder.mkdir(parents=True, exist_ok=True)
