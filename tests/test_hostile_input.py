@@ -194,9 +194,13 @@ def test_escape_text_is_one_line_for_every_character():
 
 
 # ------------------------------------------------------------------ property tests
+# text with control characters, bidi marks and lone surrogates among ordinary letters
+_text = st.text(st.characters(exclude_categories=()) | st.characters(
+    min_codepoint=0xD800, max_codepoint=0xDFFF, exclude_categories=()) | st.sampled_from(
+    "\n\r\x1b\x00\x7f\u202e\u2028\ufeff"), max_size=12)
 _json = st.recursive(
-    st.none() | st.booleans() | st.integers() | st.floats() | st.text(),
-    lambda children: st.lists(children, max_size=4) | st.dictionaries(st.text(), children,
+    st.none() | st.booleans() | st.integers() | st.floats() | _text,
+    lambda children: st.lists(children, max_size=4) | st.dictionaries(_text, children,
                                                                       max_size=4),
     max_leaves=12)
 
