@@ -445,3 +445,16 @@ def test_break_lock_after_confirmation(book: Path) -> None:
     with Workbook.open(book, write=True, break_lock=True) as wb:
         assert json.loads(lock_path(book).read_text())["pid"] == os.getpid()
         assert wb.writable
+
+
+def test_a_filesystem_without_locks_is_one_clear_refusal(book: Path, monkeypatch) -> None:
+    import errno
+
+    from core.workbook import files
+
+    def no_locks(fd: int) -> bool:
+        raise OSError(errno.ENOLCK, "No locks available")
+
+    monkeypatch.setattr(files, "_os_lock", no_locks)
+    with pytest.raises(WorkbookError, match="cannot lock it for writing \\(No locks available\\)"):
+        Workbook.open(book, write=True)

@@ -7,9 +7,12 @@ Two questions are kept apart (docs/method.md §8):
   signatures was added after it (pyHanko's coverage + modification analysis);
   and the attached study JSON has the fingerprint printed in the footer
   (stored in the ``/TenureFingerprint`` Info key, so no OCR is needed);
-* trust: whether the signer's certificate chains to a root the user trusts
-  (``--trust CERT.pem`` files or the user's trust folder). A fresh
-  self-signed identity is intact but "not vouched for".
+* trust: whether the signer's certificate is one the user trusts, or chains to
+  one (``--trust CERT.pem`` files or the trust list, :mod:`core.memo.trust`),
+  matched on the certificate's SHA-256 fingerprint, never on a name. A fresh
+  self-signed identity is intact but "not vouched for"; ``exit_code`` is 0
+  only when every signature is intact AND every signer trusted (an untrusted
+  signature proves nothing about who signed), unless ``integrity_only``.
 
 Offline: no revocation fetch, no timestamp server.
 """

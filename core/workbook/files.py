@@ -323,7 +323,14 @@ class WriterLock:
                                                f"({exc.strerror or exc})") from None
             keep = False
             try:
-                if not _os_lock(fd):
+                try:
+                    locked = _os_lock(fd)
+                except OSError as exc:  # e.g. a network share without locks (ENOLCK)
+                    why = exc.strerror or str(exc)
+                    raise WorkbookError(self.path, f"cannot lock it for writing ({why}); copy "
+                                                   "it to a local folder, or open it "
+                                                   "read-only") from None
+                if not locked:
                     raise WorkbookInUse(self.path, f"in use: open for writing by "
                                                    f"{self._who(_read_owner(fd))} "
                                                    "(close it there, or open read-only)")
