@@ -122,7 +122,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         export_xlsx(results, out)
     else:
         export_csv(results, out, table=args.table)
-    print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to {out}")
+    print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to "
+          f"{escape_text(str(out))}")
     return 0
 
 
