@@ -175,6 +175,9 @@ def in_process(raw: bytes, folder: Path) -> str:
     return "result"
 
 
+CLI_EXAMPLES: dict[str, str] = {}
+
+
 def through_cli(raw: bytes, folder: Path) -> str:
     path = folder / "cli.json"
     path.write_bytes(raw)
@@ -183,9 +186,8 @@ def through_cli(raw: bytes, folder: Path) -> str:
     err = proc.stderr.decode("utf-8", "replace")
     if proc.returncode == 0:
         return "result" if not err else "warning output"
-    if proc.returncode != 2:
-        return f"internal: exit {proc.returncode}"
-    if "unexpected internal error" in err or "Traceback" in err:
+    if proc.returncode != 2 or "unexpected internal error" in err or "Traceback" in err:
+        CLI_EXAMPLES.setdefault(f"exit {proc.returncode}", err[-400:])
         return "internal"
     if err.count("\n") != 1 or not err.startswith("error: "):
         return "multi-line"
@@ -229,6 +231,8 @@ def main() -> int:
           f"{cli['warning output']} with warning output")
     for outcome, text in examples.items():
         print(f"  example {outcome}: {text[:200]!r}")
+    for outcome, text in CLI_EXAMPLES.items():
+        print(f"  CLI example ({outcome}): {text!r}")
     bad = (counts["internal"] + counts["multi-line"] + dup_accepted + cli["internal"]
            + cli["multi-line"] + cli["warning output"])
     return 1 if bad else 0
