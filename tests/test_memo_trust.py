@@ -78,6 +78,9 @@ def test_forged_signer_with_a_real_name_never_verifies(people, tmp_path, capsys)
     rc, out, _ = _verify(capsys, people["forged"], tmp_path, "--trust", str(d / "priya.pem"))
     assert rc == 1
     assert "same name as a trusted signer, different certificate" in out
+    assert ("WARNING: you trust a different certificate named Priya Natarajan; this signature "
+            "may be forged") in out
+    assert "tenure trust add" not in out  # no advice to trust the impostor
     rep = verify_memo_bytes(people["forged"], trust=[d / "priya.pem"], use_user_trust=False)
     real = verify_memo_bytes(people["genuine"], trust=[d / "priya.pem"], use_user_trust=False)
     assert rep.integrity_ok and not rep.all_trusted and real.all_trusted

@@ -41,6 +41,7 @@ __all__ = [
 ]
 
 _ROLE_OF_FIELD = {v: k for k, v in FIELD_NAMES.items()}
+_NAME_CLASH = "same name as a trusted signer, different certificate"
 #: Byte strings only a signature dictionary holds (one changed byte leaves the others).
 _SIGNATURE_MARKS = (b"/ByteRange", b"/Type /Sig", b"/SubFilter", b"/Adobe.PPKLite",
                     b"/ETSI.CAdES.detached")
@@ -161,9 +162,13 @@ class VerifyReport:
             verdict = (f"OK (integrity only): intact; trust not required, and these signers are "
                        f"not trusted: {who}")
         else:
+            clash = sorted({s.signer for s in self.untrusted if _NAME_CLASH in s.trust_state})
+            advice = ("WARNING: you trust a different certificate named "
+                      f"{', '.join(clash)}; this signature may be forged" if clash else
+                      "compare the fingerprint with the signer in person or by phone; then "
+                      "'tenure trust add CERT.pem', or --trust CERT.pem")
             verdict = (f"FAILED: intact, but signed by an identity you have not trusted: {who} "
-                       "(compare the fingerprint with the signer in person or by phone; then "
-                       "'tenure trust add CERT.pem', or --trust CERT.pem)")
+                       f"({advice})")
         out.append(f"result: {esc(verdict)}")
         return out
 
@@ -313,7 +318,7 @@ def _trust(st, cert, name: str, roots: list, trusted_fps: set[bytes],
     if cert.self_issued:
         words += "; self-signed"
     if trusted_names.get(name, set()) - {cert.sha256}:
-        words += "; same name as a trusted signer, different certificate"
+        words += "; " + _NAME_CLASH
     return False, words
 
 
