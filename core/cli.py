@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from core.errors import StudyError
+from core.errors import StudyError, error_line, escape_text
 from core.estimates import Study
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -102,7 +102,8 @@ def cmd_study(args: argparse.Namespace) -> int:
         from core.report import format_study
 
         currency = workbook_currency(args.file)
-        sys.stdout.write("\n\n".join(format_study(r, currency) for r in results))
+        text = "\n\n".join(format_study(r, currency) for r in results)
+        sys.stdout.write("\n".join(escape_text(line) for line in text.split("\n")))
         sys.stdout.write("\n")
     return 0
 
@@ -126,7 +127,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         export_xlsx(results, out, currency=currency)
     else:
         export_csv(results, out, table=args.table, currency=currency)
-    print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to {out}")
+    print(f"exported {len(results)} stud{'y' if len(results) == 1 else 'ies'} to "
+          f"{escape_text(str(out))}")
     return 0
 
 
@@ -192,7 +194,7 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--year", type=int, default=None, metavar="YEAR",
                         help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
-    for module in ("core.memo.cli", "core.demo"):
+    for module in ("core.memo.cli", "core.memo.trust", "core.demo"):
         try:
             importlib.import_module(module).register(sub)
         except ImportError:
@@ -208,7 +210,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             return cmd_window(args)
         return int(args.func(args) or 0)
     except StudyError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+        print(error_line(exc), file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("error: tenure: interrupted", file=sys.stderr)
@@ -217,8 +219,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     except Exception as exc:  # last line of defence: never a traceback to the user
         log = _log_unexpected(exc)
-        print(f"error: tenure: unexpected internal error ({type(exc).__name__}: {exc}); "
-              f"details in {log}", file=sys.stderr)
+        print(escape_text(f"error: tenure: unexpected internal error ({type(exc).__name__}: "
+                          f"{exc}); details in {log}"), file=sys.stderr)
         return 2
 
 

@@ -16,14 +16,13 @@ stored study carries its result snapshot. ``tenure demo OUT.tenure`` calls it.
 from __future__ import annotations
 
 import argparse
-import json
 import shutil
 from pathlib import Path
 from typing import Any
 
 from core.errors import StudyError
 from core.estimates import Study
-from core.studyfile import parse_study
+from core.studyfile import loads_json, parse_study
 from core.workbook import Asset, Site, Workbook, WorkbookError
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "resources" / "demo"
@@ -38,7 +37,7 @@ def load_fleet(data_dir: str | Path | None = None) -> dict[str, Any]:
     """The parsed ``fleet.json``."""
     path = _data_dir(data_dir) / "fleet.json"
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        return loads_json(path.read_text(encoding="utf-8"), str(path))
     except (OSError, ValueError) as exc:
         raise StudyError(str(path), f"cannot read the demo fleet ({exc})") from None
 

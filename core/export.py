@@ -26,8 +26,8 @@ Numbers stay numbers.
 from __future__ import annotations
 
 import csv
+import io
 import math
-import os
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Any
@@ -35,6 +35,7 @@ from typing import Any
 from core.bases import BasisView, basis_views
 from core.currency import DEFAULT_CURRENCY, currency_symbol
 from core.errors import StudyError
+from core.fsutil import atomic_write_bytes, is_disk_full, remove_leftovers
 
 TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "after_tax_detail",
           "summary_before_tax", "annual_worth_before_tax", "study_period_options_before_tax",
@@ -216,15 +217,15 @@ def export_csv(results: Any, path: str | Path, table: str = "alternatives",
     tables = result_tables(results, currency)
     if table not in tables:
         raise StudyError("--table", f"'{table}' is written only for a study with tax")
-    path = Path(path)
-    tmp = path.with_name(path.name + ".part")
-    try:
-        with tmp.open("w", newline="", encoding="utf-8-sig") as fh:
-            csv.writer(fh).writerows(_rows(tables[table]))
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise StudyError(str(path), f"cannot write ({exc.strerror or exc})") from None
-    return path
+    buffer = io.StringIO(newline="")
+    csv.writer(buffer).writerows(_rows(tables[table]))
+    return _write(Path(path), buffer.getvalue().encode("utf-8-sig"))
+
+
+def _write(path: Path, data: bytes) -> Path:
+    """Write the export whole or not at all; leftovers of an earlier killed export go first."""
+    remove_leftovers(path.parent, stem=path.name + ".")
+    return atomic_write_bytes(path, data)
 
 
 def export_xlsx(results: Any, path: str | Path, currency: str = DEFAULT_CURRENCY) -> Path:
@@ -248,10 +249,34 @@ def export_xlsx(results: Any, path: str | Path, currency: str = DEFAULT_CURRENCY
             for cell in row:
                 if isinstance(cell.value, str):
                     cell.data_type = "s"  # a string is never a formula, whatever it starts with
-    tmp = path.with_name(path.name + ".part")
+    buffer = io.BytesIO()  # built in memory: a full disk cannot leave half a zip behind
+    failure = _save_quietly(book, buffer)
+    if failure is not None:
+        raise StudyError(str(path), failure)
+    return _write(path, buffer.getvalue())
+
+
+def _save_quietly(book: Any, buffer: io.BytesIO) -> str | None:
+    """Save ``book`` into ``buffer``; the refusal text on failure, else None.
+
+    openpyxl writes each sheet through a temporary file; when that fails (a full disk)
+    the half-made files are closed by the garbage collector, which would print
+    "Exception ignored ..." tracebacks. They are collected here with that hook silenced.
+    """
+    import gc
+    import sys
+
+    failure = None
+    hook = sys.unraisablehook
+    sys.unraisablehook = lambda _unraisable: None
     try:
-        book.save(tmp)
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise StudyError(str(path), f"cannot write ({exc.strerror or exc})") from None
-    return path
+        try:
+            book.save(buffer)
+        except Exception as exc:  # noqa: BLE001 - openpyxl and lxml raise several kinds
+            failure = ("disk full: nothing was written and the previous file is unchanged; "
+                       "free some space or choose another folder" if is_disk_full(exc)
+                       else f"cannot write ({type(exc).__name__}: {exc})")
+        gc.collect()
+    finally:
+        sys.unraisablehook = hook
+    return failure

@@ -5,6 +5,14 @@ example ``$.challengers[0].max_life: must be a whole number of years >= 1``.
 Unknown keys, NaN, infinities, booleans where numbers belong, lists too short
 for the life, extra costs past the life and a study without a challenger are
 all refused.  ``study_to_dict`` gives back the §5 form, so a study round-trips.
+
+Hostile input (docs/method.md §15): a key given twice in one object is refused
+with its path (two readers could take different values, and the fingerprint
+would vouch for either); numbers have physical bounds (:data:`MAX_AMOUNT`,
+:data:`MAX_RATE`, :data:`MAX_GROWTH`) so that no computation overflows; a
+number written with more digits than Python reads is refused, not a crash;
+names, titles and labels are one line of real text (no control characters, no
+lone surrogates).
 """
 
 from __future__ import annotations
@@ -47,6 +55,97 @@ INPUT_SUFFIXES = (
 )
 
 
+#: Largest amount of money anywhere in a study (|x|), in the study's currency units.
+MAX_AMOUNT = 1e12
+#: Largest MARR, after-tax MARR and inflation rate: 100 % a year (as a decimal, 1.0).
+MAX_RATE = 1.0
+#: Largest geometric growth of operating costs: 100 % a year.
+MAX_GROWTH = 1.0
+#: Largest random seed (numpy takes any; 64 bits is plenty and prints on one line).
+MAX_SEED = 2**64 - 1
+#: Longest number (in digits) the reader accepts before refusing it as absurd.
+MAX_DIGITS = 400
+
+
+class _TooManyDigits:
+    """A JSON integer with more digits than :data:`MAX_DIGITS` (never converted to int)."""
+
+    __slots__ = ("digits",)
+
+    def __init__(self, text: str) -> None:
+        self.digits = len(text.lstrip("-"))
+
+
+class _Duplicated(dict):
+    """A JSON object in which ``key`` was given more than once."""
+
+    key: str = ""
+
+
+def _parse_int(text: str) -> int | _TooManyDigits:
+    return int(text) if len(text) <= MAX_DIGITS else _TooManyDigits(text)
+
+
+def _first_duplicate(obj: Any, path: str) -> tuple[str, str] | None:
+    """(path of the object, key) of the first object that had a duplicated key."""
+    stack = [(obj, path)]
+    while stack:
+        value, where = stack.pop()
+        if isinstance(value, _Duplicated):
+            return where, value.key
+        if isinstance(value, dict):
+            stack.extend(reversed([(v, f"{where}.{k}") for k, v in value.items()]))
+        elif isinstance(value, list):
+            stack.extend(reversed([(v, f"{where}[{i}]") for i, v in enumerate(value)]))
+    return None
+
+
+def loads_json(text: str, where: str = "$") -> Any:
+    """Strict JSON for every input Tenure reads: one refusal line, never another exception.
+
+    Syntax errors give line and column; a key given twice in one object is
+    refused with its path; NaN/Infinity literals become floats (refused later
+    with their path); an integer longer than :data:`MAX_DIGITS` digits becomes
+    a marker that every number check refuses; nesting deeper than the
+    interpreter allows is refused.
+
+    >>> loads_json('{"a": {"b": 1, "b": 2}}')
+    Traceback (most recent call last):
+    ...
+    core.errors.StudyError: $.a.b: given twice in one object (remove one; readers disagree on which counts)
+    """
+    duplicated = False
+
+    def pairs(items: list[tuple[str, Any]]) -> dict:
+        nonlocal duplicated
+        obj = dict(items)
+        if len(obj) != len(items):
+            seen: set[str] = set()
+            for key, _ in items:
+                if key in seen:
+                    break
+                seen.add(key)
+            obj = _Duplicated(obj)
+            obj.key = key
+            duplicated = True
+        return obj
+
+    try:
+        obj = json.loads(text, parse_constant=float, parse_int=_parse_int,
+                         object_pairs_hook=pairs)
+    except json.JSONDecodeError as exc:
+        raise StudyError(where, f"not valid JSON: {exc.msg} at line {exc.lineno} column {exc.colno}"
+                         ) from None
+    except RecursionError:
+        raise StudyError(where, "not valid JSON: nested too deeply") from None
+    if duplicated:
+        found = _first_duplicate(obj, where)
+        if found is not None:
+            raise StudyError(f"{found[0]}.{found[1]}", "given twice in one object (remove one; "
+                                                       "readers disagree on which counts)")
+    return obj
+
+
 # --------------------------------------------------------------------------- helpers
 def _keys(obj: Any, path: str, allowed: set[str], required: set[str] = frozenset()) -> dict:
     if not isinstance(obj, Mapping):
@@ -72,11 +171,16 @@ def _kind(value: Any) -> str:
         return "a list"
     if isinstance(value, Mapping):
         return "an object"
+    if isinstance(value, _TooManyDigits):
+        return f"a {value.digits}-digit number"
     return type(value).__name__
 
 
 def _number(value: Any, path: str, *, low: float | None = None, low_open: bool = False,
-            high: float | None = None) -> float:
+            high: float | None = None, bound: str = "") -> float:
+    """A finite number within [low, high]; ``bound`` names the limit in the refusal."""
+    if isinstance(value, _TooManyDigits):
+        raise StudyError(path, f"is far too large ({value.digits} digits)")
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise StudyError(path, f"must be a number, not {_kind(value)}")
     try:
@@ -91,11 +195,22 @@ def _number(value: Any, path: str, *, low: float | None = None, low_open: bool =
         if not low_open and number < low:
             raise StudyError(path, f"must be at least {low:g}")
     if high is not None and number > high:
-        raise StudyError(path, f"must be at most {high:g}")
+        raise StudyError(path, f"must be at most {high:g}{bound}")
+    return number
+
+
+def _amount(value: Any, path: str, *, low: float | None = None) -> float:
+    """Money: finite and within +-MAX_AMOUNT (docs/method.md §5)."""
+    number = _number(value, path, low=low)
+    if abs(number) > MAX_AMOUNT:
+        raise StudyError(path, f"{number:.6g} is beyond the largest amount Tenure accepts "
+                               f"(±{MAX_AMOUNT:,.0f})")
     return number
 
 
 def _integer(value: Any, path: str, *, low: int = 1, what: str = "a whole number") -> int:
+    if isinstance(value, _TooManyDigits):
+        raise StudyError(path, f"is far too large ({value.digits} digits)")
     if isinstance(value, bool):
         raise StudyError(path, f"must be {what}, not true/false")
     if isinstance(value, float) and value.is_integer():
@@ -107,9 +222,18 @@ def _integer(value: Any, path: str, *, low: int = 1, what: str = "a whole number
     return value
 
 
-def _text(value: Any, path: str, *, empty_ok: bool = False) -> str:
+def _text(value: Any, path: str, *, empty_ok: bool = False, lines: bool = False) -> str:
+    """Text; one line without control characters unless ``lines`` (notes: newlines, tabs)."""
     if not isinstance(value, str):
         raise StudyError(path, f"must be text, not {_kind(value)}")
+    for k, ch in enumerate(value):
+        code = ord(ch)
+        if 0xD800 <= code < 0xE000:
+            raise StudyError(path, f"is not valid Unicode text (a lone surrogate U+{code:04X} "
+                                   f"at character {k + 1})")
+        if (code < 0x20 or 0x7F <= code < 0xA0) and not (lines and ch in "\n\r\t"):
+            raise StudyError(path, f"must not contain control characters (U+{code:04X} at "
+                                   f"character {k + 1})")
     if not empty_ok and not value.strip():
         raise StudyError(path, "must not be empty")
     return value
@@ -122,10 +246,10 @@ def _number_list(value: Any, path: str, life: int, what: str) -> tuple[float, ..
         raise StudyError(path, f"has {len(value)} {what}, but max_life {life} needs {life}")
     out = []
     for k, v in enumerate(value):  # fast path for plain finite floats; the path only on failure
-        if type(v) is float and math.isfinite(v):
+        if type(v) is float and -MAX_AMOUNT <= v <= MAX_AMOUNT:
             out.append(v)
         else:
-            out.append(_number(v, f"{path}[{k}]"))
+            out.append(_amount(v, f"{path}[{k}]"))
     return tuple(out)
 
 
@@ -139,7 +263,8 @@ def _market_values(obj: Any, path: str, life: int, warnings: list[str]) -> Marke
         if any(v < 0 for v in values[:life]):
             warnings.append(f"{path}.values: negative market value (a net removal cost)")
         return MarketValues(values=values)
-    rate = _number(data["decline_rate"], f"{path}.decline_rate", high=1.0)
+    rate = _number(data["decline_rate"], f"{path}.decline_rate", high=1.0,
+                   bound=" (a decline rate of 1 is a 100 % loss of value in one year)")
     if rate <= -1.0:
         raise StudyError(f"{path}.decline_rate", "must be greater than -1")
     return MarketValues(decline_rate=rate)
@@ -155,9 +280,10 @@ def _operating_costs(obj: Any, path: str, life: int) -> OperatingCosts:
         raise StudyError(path, "give 'values', or 'first' with an optional 'gradient' or 'growth'")
     if "gradient" in data and "growth" in data:
         raise StudyError(path, "give 'gradient' or 'growth', not both")
-    first = _number(data["first"], f"{path}.first")
-    gradient = _number(data["gradient"], f"{path}.gradient") if "gradient" in data else None
-    growth = (_number(data["growth"], f"{path}.growth", low=-1.0, low_open=True)
+    first = _amount(data["first"], f"{path}.first")
+    gradient = _amount(data["gradient"], f"{path}.gradient") if "gradient" in data else None
+    growth = (_number(data["growth"], f"{path}.growth", low=-1.0, low_open=True,
+                      high=MAX_GROWTH, bound=" (the largest growth Tenure accepts: 100 % a year)")
               if "growth" in data else None)
     return OperatingCosts(first=first, gradient=gradient, growth=growth)
 
@@ -172,7 +298,7 @@ def _extra_costs(obj: Any, path: str, life: int) -> tuple[ExtraCost, ...]:
         year = _integer(data["year"], f"{where}.year", what="a whole year")
         if year > life:
             raise StudyError(f"{where}.year", f"year {year} is past max_life {life}")
-        amount = _number(data["amount"], f"{where}.amount")
+        amount = _amount(data["amount"], f"{where}.amount")
         label = _text(data.get("label", ""), f"{where}.label", empty_ok=True)
         out.append(ExtraCost(year=year, amount=amount, label=label))
     return tuple(out)
@@ -185,7 +311,7 @@ def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
     if method not in ("straight_line", "macrs", "declining_balance"):
         raise StudyError(f"{path}.method",
                          "must be 'straight_line', 'macrs' or 'declining_balance'")
-    basis = _number(data["basis"], f"{path}.basis", low=0.0) if "basis" in data else None
+    basis = _amount(data["basis"], f"{path}.basis", low=0.0) if "basis" in data else None
     if role == "defender" and basis is None:
         raise StudyError(f"{path}.basis", "is required for the defender (its original tax basis)")
     age = _integer(data.get("age", 0), f"{path}.age", low=0, what="a whole number of years")
@@ -215,7 +341,7 @@ def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
         if method == "straight_line":
             if "rate" in data:
                 raise StudyError(f"{path}.rate", "applies only to declining balance")
-            salvage = _number(data.get("salvage", 0.0), f"{path}.salvage", low=0.0)
+            salvage = _amount(data.get("salvage", 0.0), f"{path}.salvage", low=0.0)
             if basis is not None and salvage > basis:
                 raise StudyError(f"{path}.salvage", "must not exceed the basis")
         else:
@@ -236,9 +362,9 @@ def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alterna
                  {"name", price_key, "max_life", "market_values", "operating_costs"})
     name = _text(data["name"], f"{path}.name").strip()
     if role == "challenger":
-        price = _number(data[price_key], f"{path}.{price_key}", low=0.0)
+        price = _amount(data[price_key], f"{path}.{price_key}", low=0.0)
     else:
-        price = _number(data[price_key], f"{path}.{price_key}")
+        price = _amount(data[price_key], f"{path}.{price_key}")
         if price < 0:
             warnings.append(f"{path}.market_value: negative market value today (a net removal cost)")
     life = _integer(data["max_life"], f"{path}.max_life", what="a whole number of years")
@@ -263,7 +389,8 @@ def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alterna
 
 
 def _rate(value: Any, path: str) -> float:
-    return _number(value, path, low=-1.0, low_open=True)
+    return _number(value, path, low=-1.0, low_open=True, high=MAX_RATE,
+                   bound=" (the largest rate Tenure accepts: 100 % a year)")
 
 
 def _uncertainty(obj: Any, path: str, study: Study) -> Uncertainty:
@@ -274,6 +401,8 @@ def _uncertainty(obj: Any, path: str, study: Study) -> Uncertainty:
     seed = data.get("seed")
     if seed is not None:
         seed = _integer(seed, f"{path}.seed", low=0, what="a whole number")
+        if seed > MAX_SEED:
+            raise StudyError(f"{path}.seed", "must be at most 2**64 - 1")
     inputs_obj = data["inputs"]
     if not isinstance(inputs_obj, Mapping) or not inputs_obj:
         raise StudyError(f"{path}.inputs", "must be a non-empty object of input: distribution")
@@ -288,10 +417,18 @@ def _uncertainty(obj: Any, path: str, study: Study) -> Uncertainty:
         arity = DISTRIBUTION_ARITY[kind]
         if not isinstance(params, list) or len(params) != arity:
             raise StudyError(f"{where}.{kind}", f"must be a list of {arity} numbers")
-        values = tuple(_number(p, f"{where}.{kind}[{k}]") for k, p in enumerate(params))
+        check = (_bounded_growth if address == "marr" or address.endswith(".growth")
+                 else _number if address.endswith(".decline_rate") else _amount)
+        values = tuple(check(p, f"{where}.{kind}[{k}]") for k, p in enumerate(params))
         _check_distribution(kind, values, f"{where}.{kind}")
         inputs.append((address, Distribution(kind=kind, params=values)))
     return Uncertainty(trials=trials, seed=seed, inputs=tuple(inputs))
+
+
+def _bounded_growth(value: Any, path: str) -> float:
+    """A MARR or growth in a distribution: at most 100 % (the lower end is the risk check's)."""
+    return _number(value, path, high=max(MAX_GROWTH, MAX_RATE),
+                   bound=" (the largest rate Tenure accepts: 100 % a year)")
 
 
 def _check_distribution(kind: str, p: tuple[float, ...], where: str) -> None:
@@ -417,7 +554,8 @@ def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) ->
     if "tax" in data and data["tax"] is not None:
         tdata = _keys(data["tax"], f"{path}.tax", {"rate", "after_tax_marr"},
                       {"rate", "after_tax_marr"})
-        tax = Tax(rate=_number(tdata["rate"], f"{path}.tax.rate", low=0.0, high=0.99),
+        tax = Tax(rate=_number(tdata["rate"], f"{path}.tax.rate", low=0.0, high=0.99,
+                               bound=" (a tax rate is below 100 %)"),
                   after_tax_marr=_rate(tdata["after_tax_marr"], f"{path}.tax.after_tax_marr"))
     inflation = None
     if "inflation" in data and data["inflation"] is not None:
@@ -426,7 +564,7 @@ def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) ->
         if basis not in ("constant", "then-current"):
             raise StudyError(f"{path}.inflation.estimates", "must be 'constant' or 'then-current'")
         inflation = Inflation(rate=_rate(idata["rate"], f"{path}.inflation.rate"), estimates=basis)
-    notes = _text(data.get("notes", ""), f"{path}.notes", empty_ok=True)
+    notes = _text(data.get("notes", ""), f"{path}.notes", empty_ok=True, lines=True)
     technology = (_technology(data["technology"], f"{path}.technology", horizon_required=True)
                   if data.get("technology") is not None else None)
     study = Study(title=title, marr=marr, study_period=period, defender=defender,
@@ -486,13 +624,7 @@ def loads_study_document(text: str, where: str = "$") -> list[Study]:
     parser refuses them with the JSON path of the value (every number, whole number
     and text check refuses a non-finite float).
     """
-    try:
-        obj = json.loads(text, parse_constant=float)
-    except json.JSONDecodeError as exc:
-        raise StudyError(where, f"not valid JSON: {exc.msg} at line {exc.lineno} column {exc.colno}"
-                         ) from None
-    except RecursionError:
-        raise StudyError(where, "not valid JSON: nested too deeply") from None
+    obj = loads_json(text, where)
     return parse_study_document(obj)
 
 

@@ -93,15 +93,50 @@ def build_window(path: str | None, deferred: bool = False):
     return window
 
 
+def install_interrupt_handler(window) -> None:
+    """Ctrl-C in the terminal that started the window closes it as its close button does.
+
+    Python runs a signal handler only between bytecodes, and Qt's event loop waits in C++;
+    so the handler just posts ``window.close()`` (which asks about unsaved work), and a
+    short idle timer hands control back to Python often enough to notice the signal. A
+    second Ctrl-C while the question is open does nothing more.
+    """
+    import signal
+
+    from PySide6.QtCore import QTimer
+
+    closing = {"now": False}
+
+    def close() -> None:
+        if closing["now"]:
+            return
+        closing["now"] = True
+        try:
+            window.close()
+        finally:
+            closing["now"] = False
+
+    def on_sigint(_signum, _frame) -> None:
+        QTimer.singleShot(0, close)
+
+    signal.signal(signal.SIGINT, on_sigint)
+    timer = QTimer(window)
+    timer.timeout.connect(lambda: None)
+    timer.start(200)
+    window._interrupt_timer = timer
+
+
 def main(path: str | None = None) -> int:
     from core.errors import StudyError
     from desktop_app import recovery
 
     if path is not None and not Path(path).exists():
         raise StudyError(path, "no such file")
+    recovery.remove_leftovers()  # sidecars of a window killed mid-autosave
     app = create_app()
     window = build_window(path, deferred=True)
     recovery.install_excepthook(window.handle_unexpected)
+    install_interrupt_handler(window)
     window.show()
     app.processEvents()  # paint the window first, then load the panels and the file
     from PySide6.QtCore import QTimer

@@ -254,6 +254,9 @@ class MainWindow(QMainWindow):
         self.memo_action = self._action("Issue &memo…", self.issue_memo,
                                         tip="Write and sign the decision memo (PDF)")
         m.addAction(self.memo_action)
+        m.addAction(self._action("&Trust a colleague's certificate…", self.trust_certificate,
+                                 tip="Accept memos signed with a colleague's certificate, after "
+                                     "comparing its fingerprint"))
         m.addSeparator()
         m.addAction(self._action("&Preferences…", self.edit_preferences, sk.Preferences))
         m.addSeparator()
@@ -394,7 +397,12 @@ class MainWindow(QMainWindow):
         self.set_document(doc, dirty=dirty)
         self.prefs.add_recent(str(path))
         self._update_recent_menu()
-        self.report(f"Opened {Path(path).name}")
+        why = read_only_reason(doc)
+        if why:
+            self.report(f"Opened {Path(path).name} read-only: {why}. Edits can be kept with "
+                        "File ▸ Save As")
+        else:
+            self.report(f"Opened {Path(path).name}")
         self.message_label.setToolTip(str(path))
         return True
 
@@ -455,6 +463,14 @@ class MainWindow(QMainWindow):
             save_document(self.doc, path)
         except StudyError as exc:
             self.report(f"Not saved: {friendly(exc)}")
+            if is_read_only_or_full(exc) and path == old_path:
+                answer = QMessageBox.question(
+                    self, APP_NAME, f"The file was not saved.\n\n{friendly(exc)}\n\nYour "
+                    "changes are still open. Save them elsewhere with Save As?",
+                    QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No)
+                if answer == QMessageBox.StandardButton.Yes:
+                    return self.save_as()
+                return False
             QMessageBox.warning(self, APP_NAME, f"The file was not saved.\n\n{friendly(exc)}")
             return False
         except OSError as exc:
@@ -758,6 +774,13 @@ class MainWindow(QMainWindow):
         return ok
 
     # ------------------------------------------------------------------ other actions
+    def trust_certificate(self) -> None:
+        from desktop_app.trust_dialog import trust_certificate
+
+        status = trust_certificate(self)
+        if status:
+            self.report(status)
+
     def issue_memo(self) -> None:
         if self.current_result is None:
             self.report("Issue memo: select a studied asset first")
@@ -896,3 +919,19 @@ def dump(obj: Any) -> str:
 
 
 __all__ = ["MainWindow", "QSignalBlocker"]
+
+
+def read_only_reason(doc: Document) -> str | None:
+    """Why the open workbook cannot be saved in place (read-only file or folder), or None."""
+    if doc.kind != "workbook" or not doc.path:
+        return None
+    try:
+        from core.workbook import write_problem
+    except ImportError:
+        return None
+    return write_problem(doc.path)
+
+
+def is_read_only_or_full(exc: StudyError) -> bool:
+    """A save refused because the workbook is read-only or the disk is full."""
+    return "read-only" in exc.message or exc.message.startswith("disk full")

@@ -41,20 +41,32 @@ def recovery_file(path: str | None) -> Path:
 
 
 def write_recovery(data: dict[str, Any], path: str | None) -> Path:
+    """Write the sidecar whole or not at all (a ``StudyError``, a ValueError, on failure)."""
+    from core.fsutil import atomic_write_bytes
+
     target = recovery_file(path)
-    tmp = target.with_name(target.name + ".part")
-    tmp.write_text(json.dumps(data, ensure_ascii=False), encoding="utf-8")
-    tmp.replace(target)
-    return target
+    return atomic_write_bytes(target, json.dumps(data, ensure_ascii=False).encode("utf-8"))
+
+
+def remove_leftovers() -> list[Path]:
+    """Remove temporary sidecars left by a window that was killed mid-autosave."""
+    from core.fsutil import remove_leftovers as remove
+
+    try:
+        return remove(state_dir("recovery"))
+    except OSError:
+        return []
 
 
 def read_recovery(path: str | None) -> dict[str, Any] | None:
     target = recovery_file(path)
     if not target.exists():
         return None
+    from core.studyfile import loads_json
+
     try:
-        return json.loads(target.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        return loads_json(target.read_text(encoding="utf-8"), str(target))
+    except (OSError, ValueError):  # a StudyError is a ValueError
         return None
 
 

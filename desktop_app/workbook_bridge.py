@@ -51,7 +51,10 @@ def save(doc: Document, path: Path) -> None:
                                     "the workbook with the demo or workbook tools")
     from core.study import run_study
 
-    with module.Workbook.open(str(path), write=True) as wb:
+    saved = []
+    with module.Workbook.open(str(path), write=True) as wb, wb.transaction():
+        # one transaction: a full disk or a crash leaves the workbook as it was, and the
+        # edits stay open (marked unsaved) to be saved again or elsewhere
         for entry in doc.entries:
             if entry.study is None:
                 continue
@@ -62,7 +65,9 @@ def save(doc: Document, path: Path) -> None:
                 from desktop_app.document import this_year
 
                 year = this_year()
-                entry.study_year = year
             result = doc.cached_result(entry.key) or run_study(entry.study)
             wb.save_study(entry.key, year, entry.study, result_json=result.to_json())
-            entry.saved = (entry.study, year)  # type: ignore[attr-defined]
+            saved.append((entry, year))
+    for entry, year in saved:
+        entry.study_year = year
+        entry.saved = (entry.study, year)  # type: ignore[attr-defined]

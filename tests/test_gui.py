@@ -555,3 +555,103 @@ def test_fitted_estimates_apply_to_the_defender_with_undo(qtbot):
     assert d.operating_costs.gradient == 4000.0 and d.market_values.decline_rate == 0.25
     window.undo_stack.undo()
     assert window.current_entry().study == before
+
+
+# ------------------------------------------------------------------ faults (issue 18)
+def test_ctrl_c_in_the_terminal_closes_the_window_asking_about_unsaved_work(qtbot, monkeypatch):
+    import os
+    import signal
+
+    from desktop_app.app import install_interrupt_handler
+
+    window = make_window(qtbot)
+    window.show()
+    window._forced_dirty = True
+    asked = []
+
+    def question(*args, **kwargs):
+        asked.append(args[2])
+        return QMessageBox.StandardButton.Cancel
+
+    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    previous = signal.getsignal(signal.SIGINT)
+    try:
+        install_interrupt_handler(window)
+        os.kill(os.getpid(), signal.SIGINT)
+        qtbot.waitUntil(lambda: bool(asked), timeout=3000)
+        assert "unsaved changes" in asked[0]
+        assert window.isVisible()  # Cancel keeps it open, as the close button does
+        monkeypatch.setattr(QMessageBox, "question",
+                            staticmethod(lambda *a, **k: QMessageBox.StandardButton.Discard))
+        os.kill(os.getpid(), signal.SIGINT)
+        qtbot.waitUntil(lambda: not window.isVisible(), timeout=3000)
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
+def test_read_only_workbook_opens_read_only_and_offers_save_as(qtbot, monkeypatch, tmp_path):
+    import core.workbook as wbmod
+    import core.workbook.model as model
+    from desktop_app import main_window as mw
+
+    book = tmp_path / "plant.tenure"
+    from core.demo import build_demo
+
+    build_demo(book)
+    monkeypatch.setattr(wbmod, "write_problem", lambda p: "the file is read-only")
+    monkeypatch.setattr(model, "write_problem", lambda p: "the file is read-only")
+    window = make_window(qtbot, book)
+    assert "read-only: the file is read-only" in window.last_message
+    assert "Save As" in window.last_message
+    window._forced_dirty = True
+    offered = []
+
+    def question(*args, **kwargs):
+        offered.append(args[2])
+        return QMessageBox.StandardButton.No
+
+    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    before = book.read_bytes()
+    window.doc.entries[0].saved = None  # something to save
+    assert not window._save_to(str(book))
+    assert offered and "Save them elsewhere with Save As?" in offered[0]
+    assert "read-only" in offered[0]
+    assert window.is_dirty() and book.read_bytes() == before
+    assert mw.is_read_only_or_full(wbmod.WorkbookError(book, "disk full: x"))
+
+
+def test_trust_a_colleagues_certificate_shows_its_fingerprint(qtbot, monkeypatch, tmp_path):
+    from PySide6.QtWidgets import QDialog
+
+    from core.memo import trust
+    from core.memo.identity import certificate_pem, new_identity
+    from desktop_app import trust_dialog
+
+    monkeypatch.setattr(trust, "legacy_trust_dir", lambda: tmp_path / "none")
+    p12 = tmp_path / "tom.p12"
+    new_identity("Tom Ashworth", p12, b"kestrel-road-2026", organisation="Harrowgate Fabrication Ltd.")
+    cert = tmp_path / "tom.pem"
+    cert.write_bytes(certificate_pem(p12, b"kestrel-road-2026"))
+    (entry,) = trust.inspect(cert)
+    shown = []
+
+    def answer(result):
+        def exec_(dialog):
+            shown.append(dialog.fingerprint.text())
+            return result
+        return exec_
+
+    window = make_window(qtbot)
+    monkeypatch.setattr(QFileDialog, "getOpenFileName", staticmethod(lambda *a, **k: (str(cert), "")))
+    monkeypatch.setattr(trust_dialog.TrustCertificateDialog, "exec",
+                        answer(QDialog.DialogCode.Rejected))
+    window.trust_certificate()
+    assert trust.trusted() == [] and window.last_message == "No certificate was trusted"
+    monkeypatch.setattr(trust_dialog.TrustCertificateDialog, "exec",
+                        answer(QDialog.DialogCode.Accepted))
+    window.trust_certificate()
+    assert [t.sha256 for t in trust.trusted()] == [entry.sha256]
+    assert window.last_message.startswith("Trusted: Tom Ashworth (")
+    # shown in four lines of four groups: the whole SHA-256, to compare by phone
+    assert shown[-1].split() == trust.format_fingerprint(entry.sha256).split()
+    assert len(shown[-1].splitlines()) == 4

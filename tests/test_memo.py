@@ -232,7 +232,8 @@ def test_signed_memo_verifies_intact_but_not_vouched_for(signed):
     assert s.signer == "Priya Natarajan" and s.role == "prepared"
     assert s.intact and s.valid and s.changes_after == "none" and s.coverage == "entire file"
     assert not s.trusted and "not vouched for" in s.trust_state
-    assert rep.exit_code() == 0 and rep.exit_code(require_trust=True) == 1
+    # intact but untrusted: exit 1, unless only integrity is asked for
+    assert rep.exit_code() == 1 and rep.exit_code(integrity_only=True) == 0
     assert set(rep.empty_fields) == {"Reviewed", "Approved"}
 
 
@@ -254,7 +255,7 @@ def test_second_signature_keeps_the_first_valid(ids, signed, tmp_path, capsys):
                "--role", "approved"])
     assert rc == 2
     capsys.readouterr()
-    rc = main(["verify", str(memo), "--no-user-trust"])
+    rc = main(["verify", str(memo), "--no-user-trust", "--integrity-only"])
     out = capsys.readouterr().out
     assert rc == 0
     assert "Priya Natarajan" in out and "Tom Ashworth" in out
@@ -371,7 +372,7 @@ def test_memo_cli_renders_and_signs(ids, tmp_path, capsys):
     capsys.readouterr()
     text = _text(out.read_bytes())
     assert "Tom Ashworth" in text and "Dana Whitfield" in text and "Priya Natarajan" in text
-    assert main(["verify", str(out), "--json", "--no-user-trust"]) == 0
+    assert main(["verify", str(out), "--json", "--no-user-trust", "--integrity-only"]) == 0
     rep = json.loads(capsys.readouterr().out)
     assert rep["integrity_ok"] and rep["signatures"][0]["signer"] == "Priya Natarajan"
     assert rep["attachment_matches"]

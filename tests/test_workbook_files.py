@@ -252,13 +252,93 @@ def test_lock_from_another_host_is_respected(book: Path) -> None:
     assert lock_path(book).exists()
 
 
-def test_unreadable_old_lock_is_stale(book: Path) -> None:
-    lock_path(book).write_text("{half")
-    with pytest.raises(WorkbookInUse):
-        Workbook.open(book, write=True)  # fresh: might be a writer just starting
-    old = time.time() - 60
-    os.utime(lock_path(book), (old, old))
-    Workbook.open(book, write=True).close()
+@pytest.mark.parametrize("content", ["", "{half", "null", json.dumps(
+    {"pid": 1, "host": socket.gethostname(), "time": "2026-01-01T00:00:00+00:00"})])
+def test_lock_file_without_an_os_lock_never_blocks(book: Path, content: str) -> None:
+    # an empty or half-written lock file, or one naming a live but unrelated process (pid 1,
+    # e.g. after a reboot): nobody holds the OS lock, so the workbook opens at once
+    lock_path(book).write_text(content)
+    with Workbook.open(book, write=True) as wb:
+        assert wb.writable
+        assert json.loads(lock_path(book).read_text())["pid"] == os.getpid()
+    assert not lock_path(book).exists()
+
+
+CHILD_HOLD = """
+import sys, time, pathlib
+from core.workbook import Workbook
+wb = Workbook.open(sys.argv[1], write=True)
+pathlib.Path(sys.argv[2]).write_text("ready")
+time.sleep(60)
+"""
+
+
+@pytest.mark.skipif(not hasattr(signal, "SIGKILL"), reason="needs SIGKILL")
+def test_lock_of_a_killed_writer_vanishes_with_it(book: Path, tmp_path: Path) -> None:
+    ready = tmp_path / "ready"
+    child = run_child(CHILD_HOLD, str(book), str(ready), wait=False)
+    try:
+        deadline = time.time() + 60
+        while not ready.exists():
+            assert child.poll() is None and time.time() < deadline
+            time.sleep(0.05)
+        with pytest.raises(WorkbookInUse, match=f"by process {child.pid} on "):
+            Workbook.open(book, write=True)
+        lock_path(book).write_text("")  # even an emptied lock file does not let us in
+        with pytest.raises(WorkbookInUse):
+            Workbook.open(book, write=True, break_lock=True)  # a live writer is never broken
+    finally:
+        child.send_signal(signal.SIGKILL)
+        child.wait(30)
+    assert lock_path(book).exists()
+    with Workbook.open(book, write=True) as wb:
+        assert wb.writable
+
+
+def _race_worker(book: str, rounds: int, barrier, wins, me: int) -> None:
+    for r in range(rounds):
+        barrier.wait()
+        try:
+            wb = Workbook.open(book, write=True)
+        except WorkbookInUse:
+            wb = None
+        if wb is not None:
+            wins[2 * r + me] = 1
+        barrier.wait()  # both have tried while the winner still holds it
+        if wb is not None:
+            wb.close()
+        barrier.wait()
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(sys.platform == "win32", reason="uses fork")
+def test_two_process_races_never_make_two_writers(book: Path) -> None:
+    import multiprocessing as mp
+
+    rounds = 100
+    ctx = mp.get_context("fork")
+    barrier = ctx.Barrier(3)
+    wins = ctx.Array("b", 2 * rounds)
+    procs = [ctx.Process(target=_race_worker, args=(str(book), rounds, barrier, wins, k))
+             for k in (0, 1)]
+    for p in procs:
+        p.start()
+    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True).stdout.strip()
+    leftovers = ["", json.dumps({"pid": int(dead), "host": socket.gethostname(), "time": "t"})]
+    for r in range(rounds):
+        # what the old takeover raced on: a stale lock left by a dead writer, or an empty one
+        if r % 3:
+            lock_path(book).write_text(leftovers[r % 2])
+        barrier.wait()
+        barrier.wait()
+        barrier.wait()
+    for p in procs:
+        p.join(60)
+        assert p.exitcode == 0
+    per_round = [wins[2 * r] + wins[2 * r + 1] for r in range(rounds)]
+    assert per_round.count(2) == 0  # never two writers at once
+    assert per_round.count(1) == rounds  # and never locked out: someone always wins
 
 
 # --------------------------------------------------------------------------- crashes
@@ -365,3 +445,16 @@ def test_break_lock_after_confirmation(book: Path) -> None:
     with Workbook.open(book, write=True, break_lock=True) as wb:
         assert json.loads(lock_path(book).read_text())["pid"] == os.getpid()
         assert wb.writable
+
+
+def test_a_filesystem_without_locks_is_one_clear_refusal(book: Path, monkeypatch) -> None:
+    import errno
+
+    from core.workbook import files
+
+    def no_locks(fd: int) -> bool:
+        raise OSError(errno.ENOLCK, "No locks available")
+
+    monkeypatch.setattr(files, "_os_lock", no_locks)
+    with pytest.raises(WorkbookError, match="cannot lock it for writing \\(No locks available\\)"):
+        Workbook.open(book, write=True)

@@ -9,7 +9,7 @@ input prints one line ``error: <where>: <what is wrong>`` and returns 2.
                 [--organisation ORG] [--currency CODE]
                 [--sign ID.p12 --passphrase-file F [--role prepared|reviewed|approved]]
     tenure sign MEMO.pdf --sign ID.p12 --passphrase-file F --role approved [-o OUT.pdf]
-    tenure verify MEMO.pdf [--trust CERT.pem ...] [--require-trust] [--no-user-trust] [--json]
+    tenure verify MEMO.pdf [--trust CERT.pem ...] [--integrity-only] [--no-user-trust] [--json]
     tenure identity new --name NAME --out ID.p12 --passphrase-file F
                 [--organisation ORG] [--email ADDRESS]
     tenure identity show ID.p12 --passphrase-file F [--cert-out CERT.pem]
@@ -22,6 +22,7 @@ import json
 import sys
 from pathlib import Path
 
+from core.errors import escape_text
 from core.memo.errors import MemoError
 
 __all__ = ["register", "run_memo", "run_sign", "run_verify", "run_identity", "load_one_study"]
@@ -36,9 +37,14 @@ def _guard(fn):
         except Exception:  # pragma: no cover
             StudyError = MemoError  # noqa: N806
         try:
-            return int(fn(args) or 0)
+            code = int(fn(args) or 0)
+            for warning in getattr(args, "warnings", []):
+                print(f"warning: {escape_text(warning)}", file=sys.stderr)
+            return code
         except (MemoError, StudyError) as e:
-            print(f"error: {e}", file=sys.stderr)
+            from core.errors import error_line
+
+            print(error_line(e), file=sys.stderr)
             return 2
 
     wrapped.__name__ = fn.__name__
@@ -88,11 +94,15 @@ def _is_workbook(path: str) -> bool:
 
 
 def _passphrase(args) -> bytes:
-    from core.memo.identity import read_passphrase_file
+    from core.memo.identity import passphrase_file_warning, read_passphrase_file
 
     if not getattr(args, "passphrase_file", None):
         raise MemoError("--passphrase-file", "needed with --sign (a file holding the passphrase)")
-    return read_passphrase_file(args.passphrase_file)
+    passphrase = read_passphrase_file(args.passphrase_file)
+    warning = passphrase_file_warning(args.passphrase_file)
+    if warning:  # printed by _guard after the command, so a refusal stays one line
+        args.warnings = [*getattr(args, "warnings", []), warning]
+    return passphrase
 
 
 @_guard
@@ -130,7 +140,7 @@ def run_memo(args: argparse.Namespace) -> int:
     issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
                         role=args.role)
     print(f"memo: {issued.path}")
-    print(f"study: {study.title}")
+    print(f"study: {escape_text(study.title)}")
     print(f"study fingerprint: {issued.fingerprint}")
     print(f"pages: {issued.pages}; page size: {args.page_size}")
     if _is_workbook(args.file):
@@ -142,7 +152,7 @@ def run_memo(args: argparse.Namespace) -> int:
         else:
             print(f"recorded in the memo register of {args.file}")
     if issued.signed_by:
-        print(f"signed: {issued.role} by {issued.signed_by}")
+        print(f"signed: {issued.role} by {escape_text(issued.signed_by)}")
     else:
         print("not signed (add signatures with: tenure sign MEMO.pdf --sign ID.p12 "
               "--passphrase-file F --role prepared|reviewed|approved)")
@@ -159,11 +169,11 @@ def run_sign(args: argparse.Namespace) -> int:
     passphrase = _passphrase(args)
     rep = verify_memo(memo, use_user_trust=False)  # refuses non-memos (exit 2)
     if rep.signatures and not rep.integrity_ok:
-        print(f"error: {memo}: the memo is not intact; refusing to add a signature "
+        print(f"error: {escape_text(str(memo))}: the memo is not intact; refusing to add a signature "
               "(run tenure verify for details)", file=sys.stderr)
         return 1
     res = sign_memo_file(memo, args.sign, passphrase, args.role, output=args.output)
-    print(f"signed: {res.role} by {res.signer} -> {res.output}")
+    print(f"signed: {res.role} by {escape_text(res.signer)} -> {escape_text(str(res.output))}")
     return 0
 
 
@@ -174,14 +184,14 @@ def run_verify(args: argparse.Namespace) -> int:
 
     rep = verify_memo(args.memo, trust=args.trust or (), use_user_trust=not args.no_user_trust)
     if args.json:
-        json.dump(report_json(rep, args.require_trust), sys.stdout, indent=2)
+        json.dump(report_json(rep, args.integrity_only), sys.stdout, indent=2)
         sys.stdout.write("\n")
     else:
-        sys.stdout.write("\n".join(rep.lines(args.require_trust)) + "\n")
-    return rep.exit_code(args.require_trust)
+        sys.stdout.write("\n".join(rep.lines(args.integrity_only)) + "\n")
+    return rep.exit_code(args.integrity_only)
 
 
-def report_json(rep, require_trust: bool = False) -> dict:
+def report_json(rep, integrity_only: bool = False) -> dict:
     """The verify report as a JSON-ready dict."""
     return {
         "memo": rep.path, "revisions": rep.revisions,
@@ -199,7 +209,7 @@ def report_json(rep, require_trust: bool = False) -> dict:
         "unsigned_fields": list(rep.empty_fields),
         "problems": list(rep.problems),
         "integrity_ok": rep.integrity_ok, "all_trusted": rep.all_trusted,
-        "exit_code": rep.exit_code(require_trust),
+        "exit_code": rep.exit_code(integrity_only),
     }
 
 
@@ -287,15 +297,20 @@ def register(subparsers) -> None:
         "verify", help="check a memo's signatures, integrity, attached study and trust",
         description="Report each signature's signer, signing time, integrity (the bytes are "
                     "exactly what was signed), changes after signing, and trust; and whether "
-                    "the attached study matches the footer fingerprint. Exit 0 when every "
-                    "integrity check holds, 1 when one fails (or, with --require-trust, a "
-                    "signer is not trusted), 2 for a file that is not a memo.")
+                    "the attached study matches the footer fingerprint. Exit 0 only when every "
+                    "signature is intact AND every signer is trusted (its certificate is in "
+                    "your trust list, 'tenure trust', or given with --trust, or chains to one "
+                    "that is; matched by SHA-256 fingerprint, never by name); 1 when a check "
+                    "fails or a signer is not trusted; 2 for a file that is not a memo.")
     v.add_argument("memo", metavar="MEMO.pdf")
     v.add_argument("--trust", metavar="CERT.pem", action="append", default=[],
                    help="a certificate (PEM or DER) you trust: a colleague's or your "
                         "organisation's CA; repeat for several")
+    v.add_argument("--integrity-only", action="store_true",
+                   help="check integrity only: exit 0 for an intact memo even when a signer is "
+                        "not trusted (proves the bytes are unchanged, not who signed them)")
     v.add_argument("--require-trust", action="store_true",
-                   help="exit 1 unless every signer is trusted")
+                   help=argparse.SUPPRESS)  # the default now; kept so old scripts still run
     v.add_argument("--no-user-trust", action="store_true",
                    help="ignore the trust folder in your Tenure settings folder")
     v.add_argument("--json", action="store_true", help="print the report as JSON")

@@ -36,6 +36,7 @@ __all__ = [
     "new_identity",
     "load_identity",
     "read_passphrase_file",
+    "passphrase_file_warning",
     "certificate_pem",
 ]
 
@@ -68,6 +69,29 @@ def read_passphrase_file(path: str | os.PathLike, option: str = "--passphrase-fi
     if not line.strip():
         raise MemoError(option, f"{path} holds no passphrase (first line is empty)")
     return line
+
+
+def passphrase_file_warning(path: str | os.PathLike) -> str | None:
+    """A warning when a passphrase file can be read by other users (POSIX), else None.
+
+    >>> import tempfile, os
+    >>> fd, p = tempfile.mkstemp(); os.close(fd); os.chmod(p, 0o644)
+    >>> passphrase_file_warning(p).endswith("(chmod 600 " + p + ")")
+    True
+    >>> os.chmod(p, 0o600); passphrase_file_warning(p) is None
+    True
+    """
+    if os.name == "nt":
+        return None
+    try:
+        mode = Path(path).stat().st_mode
+    except OSError:
+        return None
+    if mode & 0o077:
+        who = "everyone on this computer" if mode & 0o004 else "other users"
+        return (f"{path}: the passphrase file can be read by {who} (mode {mode & 0o777:o}); "
+                f"keep it private (chmod 600 {path})")
+    return None
 
 
 def _name(common_name: str, organisation: str | None, email: str | None) -> x509.Name:
@@ -163,7 +187,12 @@ def new_identity(
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(blob)
+            fh.flush()
+            os.fsync(fh.fileno())
         os.replace(tmp, out)
+        from core.fsutil import fsync_dir
+
+        fsync_dir(out.parent)
     except OSError as e:
         tmp.unlink(missing_ok=True)
         raise MemoError("--out", f"cannot write {out}: {e.strerror or e}") from None

@@ -230,10 +230,12 @@ def sign_memo_file(
 
 
 def _atomic_write(target: Path, data: bytes) -> None:
-    tmp = target.with_name(target.name + ".part")
+    """Write the memo whole or not at all (fsync, rename, folder fsync); "disk full" in words."""
+    from core.errors import StudyError
+    from core.fsutil import atomic_write_bytes, remove_leftovers
+
+    remove_leftovers(target.parent, stem=target.name + ".")
     try:
-        tmp.write_bytes(data)
-        os.replace(tmp, target)
-    except OSError as e:
-        tmp.unlink(missing_ok=True)
-        raise MemoError(str(target), f"cannot write: {e.strerror or e}") from None
+        atomic_write_bytes(target, data)
+    except StudyError as e:
+        raise MemoError(e.path, e.message) from None

@@ -7,9 +7,12 @@ Two questions are kept apart (docs/method.md §8):
   signatures was added after it (pyHanko's coverage + modification analysis);
   and the attached study JSON has the fingerprint printed in the footer
   (stored in the ``/TenureFingerprint`` Info key, so no OCR is needed);
-* trust: whether the signer's certificate chains to a root the user trusts
-  (``--trust CERT.pem`` files or the user's trust folder). A fresh
-  self-signed identity is intact but "not vouched for".
+* trust: whether the signer's certificate is one the user trusts, or chains to
+  one (``--trust CERT.pem`` files or the trust list, :mod:`core.memo.trust`),
+  matched on the certificate's SHA-256 fingerprint, never on a name. A fresh
+  self-signed identity is intact but "not vouched for"; ``exit_code`` is 0
+  only when every signature is intact AND every signer trusted (an untrusted
+  signature proves nothing about who signed), unless ``integrity_only``.
 
 Offline: no revocation fetch, no timestamp server.
 """
@@ -18,7 +21,6 @@ from __future__ import annotations
 
 import contextlib
 import io
-import json
 import logging
 import os
 from dataclasses import dataclass, field
@@ -39,6 +41,10 @@ __all__ = [
 ]
 
 _ROLE_OF_FIELD = {v: k for k, v in FIELD_NAMES.items()}
+_NAME_CLASH = "same name as a trusted signer, different certificate"
+#: Byte strings only a signature dictionary holds (one changed byte leaves the others).
+_SIGNATURE_MARKS = (b"/ByteRange", b"/Type /Sig", b"/SubFilter", b"/Adobe.PPKLite",
+                    b"/ETSI.CAdES.detached")
 
 
 @dataclass(frozen=True)
@@ -94,18 +100,27 @@ class VerifyReport:
     def all_trusted(self) -> bool:
         return bool(self.signatures) and all(s.trusted for s in self.signatures)
 
-    def exit_code(self, require_trust: bool = False) -> int:
+    @property
+    def untrusted(self) -> tuple[SignatureReport, ...]:
+        return tuple(s for s in self.signatures if not s.trusted)
+
+    def exit_code(self, integrity_only: bool = False) -> int:
+        """0 only when every signature is intact and (unless ``integrity_only``) trusted."""
         if not self.integrity_ok:
             return 1
-        if require_trust and not self.all_trusted:
+        if not integrity_only and not self.all_trusted:
             return 1
         return 0
 
-    def lines(self, require_trust: bool = False) -> list[str]:
-        out = [f"memo: {self.path}"]
+    def lines(self, integrity_only: bool = False) -> list[str]:
+        """The text report; every name from the file is escaped (docs/method.md §8)."""
+        from core.errors import escape_text as esc
+        from core.memo.trust import format_fingerprint
+
+        out = [f"memo: {esc(self.path)}"]
         if self.attachment_title:
-            out.append(f"study: {self.attachment_title}")
-        out.append(f"study fingerprint (footer): {self.footer_fingerprint or 'missing'}")
+            out.append(f"study: {esc(self.attachment_title)}")
+        out.append(f"study fingerprint (footer): {esc(self.footer_fingerprint or 'missing')}")
         if self.attachment_fingerprint is None:
             out.append("attached study: missing or unreadable")
         elif self.attachment_matches:
@@ -116,32 +131,45 @@ class VerifyReport:
         for n, s in enumerate(self.signatures, 1):
             when = s.signing_time.strftime("%Y-%m-%d %H:%M:%S %Z") if s.signing_time else "unknown"
             org = f", {s.organisation}" if s.organisation else ""
-            out.append(f"signature {n}: field {s.field} ({s.role or 'other'})")
-            out.append(f"  signer: {s.signer}{org}")
+            out.append(f"signature {n}: field {esc(s.field)} ({s.role or 'other'})")
+            out.append(f"  signer: {esc(s.signer + org)}")
             out.append(f"  signing time: {when} (signer's clock)")
             out.append(f"  integrity: {'intact' if s.intact and s.valid else 'BROKEN'}"
                        f" (digest {'ok' if s.intact else 'mismatch'}, signature {'ok' if s.valid else 'invalid'})")
             out.append(f"  coverage: {s.coverage}; changes after signing: {s.changes_after}")
-            out.append(f"  trust: {s.trust_state}")
-            out.append(f"  certificate SHA-256: {s.cert_sha256}")
+            out.append(f"  trust: {esc(s.trust_state)}")
+            out.append("  certificate SHA-256: "
+                       + (format_fingerprint(s.cert_sha256) if s.cert_sha256 else "unknown"))
             for p in s.problems:
-                out.append(f"  problem: {p}")
+                out.append(f"  problem: {esc(p)}")
         if self.empty_fields:
-            out.append("unsigned fields: " + ", ".join(self.empty_fields))
+            out.append("unsigned fields: " + esc(", ".join(self.empty_fields)))
         for p in self.problems:
-            out.append(f"problem: {p}")
-        code = self.exit_code(require_trust)
-        if not self.signatures:
+            out.append(f"problem: {esc(p)}")
+        who = "; ".join(f"{s.signer}, fingerprint {format_fingerprint(s.cert_sha256)}"
+                        for s in self.untrusted)
+        damaged = any("damaged signature" in p for p in self.problems) or any(
+            "damaged signature" in p for s in self.signatures for p in s.problems)
+        if damaged:
+            verdict = "FAILED: damaged signature; the memo is not what was signed"
+        elif not self.signatures:
             verdict = "FAILED: the memo carries no signature"
         elif not self.integrity_ok:
             verdict = "FAILED: the memo is not intact"
-        elif code:
-            verdict = "FAILED: intact, but a signer is not vouched for (--require-trust)"
         elif self.all_trusted:
             verdict = "OK: intact, and every signer is trusted"
+        elif integrity_only:
+            verdict = (f"OK (integrity only): intact; trust not required, and these signers are "
+                       f"not trusted: {who}")
         else:
-            verdict = "OK: intact; some signers are not vouched for"
-        out.append(f"result: {verdict}")
+            clash = sorted({s.signer for s in self.untrusted if _NAME_CLASH in s.trust_state})
+            advice = ("WARNING: you trust a different certificate named "
+                      f"{', '.join(clash)}; this signature may be forged" if clash else
+                      "compare the fingerprint with the signer in person or by phone; then "
+                      "'tenure trust add CERT.pem', or --trust CERT.pem")
+            verdict = (f"FAILED: intact, but signed by an identity you have not trusted: {who} "
+                       f"({advice})")
+        out.append(f"result: {esc(verdict)}")
         return out
 
 
@@ -162,10 +190,10 @@ def quiet_pyhanko():
 
 
 def user_trust_dir() -> Path:
-    """The user's trust folder: ``<user config dir>/tenure/trusted`` (PEM/DER certificates)."""
-    from platformdirs import user_config_dir
+    """The user's trust list folder (see :mod:`core.memo.trust`)."""
+    from core.memo.trust import trust_dir
 
-    return Path(user_config_dir("tenure")) / "trusted"
+    return trust_dir()
 
 
 def _load_cert_file(path: Path):
@@ -195,14 +223,17 @@ def load_trust_certs(paths=(), use_user_dir: bool = True) -> list:
         except Exception:  # noqa: BLE001
             raise MemoError("--trust", f"{p} is not a PEM or DER certificate") from None
     if use_user_dir:
-        d = user_trust_dir()
-        if d.is_dir():
+        from core.memo.trust import legacy_trust_dir
+
+        for d in (user_trust_dir(), legacy_trust_dir()):
+            if not d.is_dir():
+                continue
             for p in sorted(d.iterdir()):
-                if p.suffix.lower() in (".pem", ".crt", ".cer", ".der"):
-                    try:
-                        certs.extend(_load_cert_file(p))
-                    except Exception:  # noqa: BLE001 - a bad file in the folder is skipped
-                        continue
+                    if p.suffix.lower() in (".pem", ".crt", ".cer", ".der"):
+                        try:
+                            certs.extend(_load_cert_file(p))
+                        except Exception:  # noqa: BLE001 - a bad file in the folder is skipped
+                            continue
     return certs
 
 
@@ -225,11 +256,11 @@ def read_attachment(pdf: bytes) -> bytes | None:
 def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | None]:
     """(fingerprint, title, problem) of the attached study document."""
     try:
-        from core.studyfile import fingerprint, parse_study_document
+        from core.studyfile import fingerprint, loads_json, parse_study_document
     except Exception:  # pragma: no cover - study file module missing
         return None, None, "cannot check the attached study (core.studyfile unavailable)"
     try:
-        studies = parse_study_document(json.loads(data.decode("utf-8")))
+        studies = parse_study_document(loads_json(data.decode("utf-8"), "attachment"))
     except Exception as e:  # noqa: BLE001
         return None, None, f"the attached study does not load: {e}"
     if len(studies) != 1:
@@ -240,6 +271,55 @@ def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | 
 def _cert_name(cert) -> tuple[str, str | None]:
     subj = cert.subject.native
     return subj.get("common_name") or cert.subject.human_friendly, subj.get("organization_name")
+
+
+def _padding_problem(es) -> str | None:
+    """The /Contents hex string holds the CMS object then zeros; anything else was changed.
+
+    Those bytes sit outside the signed byte range by design (ISO 32000-1 §12.8.1), so a
+    change there leaves the signature valid; it is still not the file the signer wrote.
+    """
+    try:
+        raw = bytes(es.sig_object["/Contents"])
+        if raw[1] < 0x80:
+            used = 2 + raw[1]
+        else:
+            n = raw[1] & 0x7F
+            used = 2 + n + int.from_bytes(raw[2:2 + n], "big")
+    except Exception:  # noqa: BLE001
+        return None
+    if raw[used:].strip(b"\x00"):
+        return "damaged signature: bytes after the signature in /Contents were changed"
+    return None
+
+
+def _trust(st, cert, name: str, roots: list, trusted_fps: set[bytes],
+           trusted_names: dict[str, set[bytes]]) -> tuple[bool, str]:
+    """(trusted, words) for one signature: matched on certificates, never on names.
+
+    pyHanko must have built a valid path to a trust root, AND that root (or the
+    signer's own certificate) must be one of the certificates the user trusts,
+    compared by SHA-256 fingerprint.
+    """
+    anchor = None
+    if st.trusted and st.validation_path is not None:
+        try:
+            anchor = st.validation_path[0]
+        except Exception:  # noqa: BLE001
+            anchor = None
+    if st.trusted and cert.sha256 in trusted_fps:
+        return True, "trusted (this certificate is in your trust list)"
+    if st.trusted and anchor is not None and anchor.sha256 in trusted_fps:
+        return True, f"trusted (chains to {_cert_name(anchor)[0]}, in your trust list)"
+    if roots and st.trust_problem_indic is not None and st.intact and st.valid:
+        words = "not vouched for (does not chain to a trusted certificate)"
+    else:
+        words = "not vouched for (no trusted certificate given)"
+    if cert.self_issued:
+        words += "; self-signed"
+    if trusted_names.get(name, set()) - {cert.sha256}:
+        words += "; " + _NAME_CLASH
+    return False, words
 
 
 def verify_memo_bytes(
@@ -260,14 +340,23 @@ def verify_memo_bytes(
     if not pdf.startswith(b"%PDF-"):
         raise NotAMemoError(path, "not a PDF file")
     try:
-        r = PdfFileReader(io.BytesIO(pdf), strict=False)
-        info = r.trailer_view.get("/Info")
-        info = info.get_object() if info is not None else {}
-        footer_fp = info.get(INFO_FINGERPRINT_KEY)
-        sigs = list(r.embedded_signatures)
-        empty = tuple(n for n, v, _ in enumerate_sig_fields(r) if v is None)
-        revisions = r.xrefs.total_revisions
+        with quiet_pyhanko():
+            r = PdfFileReader(io.BytesIO(pdf), strict=False)
+            info = r.trailer_view.get("/Info")
+            info = info.get_object() if info is not None else {}
+            footer_fp = info.get(INFO_FINGERPRINT_KEY)
+            sigs = list(r.embedded_signatures)
+            fields = list(enumerate_sig_fields(r))
+            empty = tuple(n for n, v, _ in fields if v is None)
+            filled = [str(n) for n, v, _ in fields if v is not None]
+            revisions = r.xrefs.total_revisions
     except Exception as e:  # noqa: BLE001 - any parser failure: unreadable
+        if any(m in pdf for m in _SIGNATURE_MARKS):  # a signed PDF whose signature was changed
+            return VerifyReport(
+                path=path, revisions=0, footer_fingerprint=None, attachment_fingerprint=None,
+                attachment_title=None, signatures=(), empty_fields=(),
+                problems=(f"damaged signature: the memo cannot be read past a changed byte "
+                          f"({type(e).__name__}); it is not what was signed",))
         raise NotAMemoError(path, f"unreadable PDF ({type(e).__name__})") from None
     if footer_fp is None:
         raise NotAMemoError(path, "not a Tenure memo (no study fingerprint in its metadata)")
@@ -287,10 +376,18 @@ def verify_memo_bytes(
             problems.append(prob)
         elif att_fp != footer_fp:
             problems.append("the attached study does not match the footer fingerprint")
-    if not sigs:
+    unread = sorted(set(filled) - {str(es.field_name) for es in sigs})
+    for fname in unread:
+        problems.append(f"damaged signature: the {fname} field holds a signature that cannot "
+                        "be read")
+    if not sigs and not unread:
         problems.append("the memo carries no signature")
 
     roots = load_trust_certs(trust, use_user_dir=use_user_trust)
+    trusted_fps = {c.sha256 for c in roots}
+    trusted_names: dict[str, set[bytes]] = {}
+    for c in roots:
+        trusted_names.setdefault(_cert_name(c)[0], set()).add(c.sha256)
     reports = []
     last_index = len(sigs) - 1
     for n, es in enumerate(sigs):
@@ -312,7 +409,7 @@ def verify_memo_bytes(
                 signing_time=None, intact=False, valid=False, coverage="unknown",
                 changes_after="unknown", trusted=False, trust_state="unknown",
                 cert_sha256=cert.sha256.hex() if cert is not None else "",
-                problems=(f"the signature cannot be checked ({type(e).__name__})",),
+                problems=(f"damaged signature: it cannot be checked ({type(e).__name__})",),
             ))
             continue
         cert = st.signing_cert
@@ -320,7 +417,10 @@ def verify_memo_bytes(
         if not st.intact:
             sp.append("the signed bytes were changed (digest mismatch)")
         if not st.valid:
-            sp.append("the cryptographic signature does not check out")
+            sp.append("damaged signature: the cryptographic signature does not check out")
+        padding = _padding_problem(es)
+        if padding:
+            sp.append(padding)
         cov = st.coverage
         coverage = {
             SignatureCoverageLevel.ENTIRE_FILE: "entire file",
@@ -354,24 +454,11 @@ def verify_memo_bytes(
             sp.append("the study fingerprint in the metadata was changed after this signature")
         if st.docmdp_ok is False:
             sp.append("changes after signing break the document's signing policy")
-        if st.trusted:
-            anchor = st.validation_path[0] if st.validation_path is not None else None
-            if anchor is not None and anchor.sha256 == cert.sha256:
-                trust_state = "trusted (this certificate is in your trust list)"
-            elif anchor is not None:
-                trust_state = f"trusted (chains to {_cert_name(anchor)[0]}, in your trust list)"
-            else:  # pragma: no cover
-                trust_state = "trusted"
-        elif roots and st.trust_problem_indic is not None and st.intact and st.valid:
-            trust_state = "not vouched for (does not chain to a trusted certificate)"
-        else:
-            trust_state = "not vouched for (no trusted certificate given)"
-        if cert.self_issued and not st.trusted:
-            trust_state += "; self-signed"
+        trusted, trust_state = _trust(st, cert, name, roots, trusted_fps, trusted_names)
         reports.append(SignatureReport(
             field=fname, role=_ROLE_OF_FIELD.get(fname), signer=name, organisation=org,
             signing_time=st.signer_reported_dt, intact=bool(st.intact), valid=bool(st.valid),
-            coverage=coverage, changes_after=changes, trusted=bool(st.trusted),
+            coverage=coverage, changes_after=changes, trusted=trusted,
             trust_state=trust_state, cert_sha256=cert.sha256.hex(), problems=tuple(sp),
         ))
     return VerifyReport(

@@ -42,8 +42,9 @@ Files are checked before anything is written: a damaged, truncated or foreign
 file raises :class:`WorkbookError` (a ``core.errors.StudyError``, printed as
 ``error: <file>: not a Tenure workbook (...)``) and is left byte-identical. A
 second process opening the same workbook for writing gets :class:`WorkbookInUse`
-(a lock file ``<name>.lock`` holds pid, host and time; a lock left by a dead
-process on this host is taken over). ``PRAGMA user_version`` is the schema
+(an OS lock on ``<name>.lock``, which also names pid, host and time; it vanishes
+with its process, so nothing is ever "taken over"). A file or folder that cannot
+be written gives :class:`WorkbookReadOnly` when opened for writing. ``PRAGMA user_version`` is the schema
 version; older workbooks are migrated forward in one transaction on opening for
 writing; ``PRAGMA application_id`` marks the file as ours.
 
@@ -53,7 +54,14 @@ the register, and the computed result (``StudyResult.to_json()``) alongside as a
 readable snapshot.
 """
 
-from core.workbook.files import WorkbookError, WorkbookInUse, check_file, lock_path
+from core.workbook.files import (
+    WorkbookError,
+    WorkbookInUse,
+    WorkbookReadOnly,
+    check_file,
+    lock_path,
+    write_problem,
+)
 from core.workbook.model import (
     Asset,
     Candidate,
@@ -78,6 +86,7 @@ from core.workbook.recovery import (
 from core.workbook.schema import APPLICATION_ID, SCHEMA_VERSION
 
 __all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "Asset", "Candidate", "HistoryRow", "MemoRecord",
-           "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse", "autosave",
+           "Site", "StudyRecord", "Workbook", "WorkbookError", "WorkbookInUse",
+           "WorkbookReadOnly", "write_problem", "autosave",
            "check_file", "discard_recovery", "export_study_json", "import_study_json", "find_recovery", "lock_path", "record_memo",
            "recovery_path", "restore_recovery", "save_studies", "studies_from_workbook"]

@@ -5,14 +5,17 @@ that could write), then opens the file read-only for ``PRAGMA
 integrity_check``. Anything doubtful raises :class:`WorkbookError` and leaves
 the file byte-identical.
 
-:class:`WriterLock` is a sibling ``<file>.lock`` created exclusively, holding
-the pid, host and time of the writer. A lock whose process is gone (same host)
-is stale and taken over; a live one raises :class:`WorkbookInUse`.
+:class:`WriterLock` is an OS-level lock (``fcntl.flock`` / ``msvcrt.locking``)
+on a sibling ``<file>.lock`` that also names the writer (pid, host, time). It
+is held while the workbook is open for writing and vanishes with its process;
+a held one raises :class:`WorkbookInUse`.
 """
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
+import errno
 import json
 import os
 import socket
@@ -36,6 +39,33 @@ class WorkbookError(StudyError):
 
 class WorkbookInUse(WorkbookError):
     """Another process has the workbook open for writing."""
+
+
+class WorkbookReadOnly(WorkbookError):
+    """The workbook cannot be written here (file or folder read-only); open it read-only."""
+
+
+def write_problem(path: str | Path) -> str | None:
+    """Why the workbook at ``path`` cannot be written, or None when it can.
+
+    Tries what a save needs without changing anything: opening the file for
+    writing (refused for a read-only or immutable file, even to root where the
+    filesystem says so) and creating files in its folder (SQLite's journal).
+    """
+    path = Path(path)
+    try:
+        fd = os.open(path, os.O_RDWR)
+    except PermissionError:
+        return "the file is read-only"
+    except OSError as exc:
+        if exc.errno == errno.EROFS:
+            return "the file is on a read-only disk"
+        return f"the file cannot be opened for writing ({exc.strerror or exc})"
+    os.close(fd)
+    folder = path.parent
+    if not os.access(folder, os.W_OK | os.X_OK):
+        return "its folder is read-only (a save needs to write a journal file beside it)"
+    return None
 
 
 def _refuse(path: Path, why: str) -> WorkbookError:
@@ -167,8 +197,73 @@ def lock_path(path: Path) -> Path:
     return path.with_name(path.name + ".lock")
 
 
+#: Windows locks a byte range; it lies far past the owner text so that text stays readable.
+_WINDOWS_LOCK_OFFSET = 1 << 20
+
+
+def _os_lock(fd: int) -> bool:
+    """Take the OS lock on ``fd`` without waiting; False when another process holds it.
+
+    POSIX: ``flock(LOCK_EX | LOCK_NB)`` (whole file, per open file description).
+    Windows: ``msvcrt.locking(LK_NBLCK)`` on one byte far past the text. Either way the
+    OS drops the lock when the process dies, however it dies: no stale locks.
+    """
+    if os.name == "nt":
+        import msvcrt
+
+        os.lseek(fd, _WINDOWS_LOCK_OFFSET, os.SEEK_SET)
+        try:
+            msvcrt.locking(fd, msvcrt.LK_NBLCK, 1)  # type: ignore[attr-defined]
+        except OSError:
+            return False
+        return True
+    import fcntl
+
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except (BlockingIOError, PermissionError):
+        return False
+    return True
+
+
+def _os_unlock(fd: int) -> None:
+    with contextlib.suppress(OSError):
+        if os.name == "nt":
+            import msvcrt
+
+            os.lseek(fd, _WINDOWS_LOCK_OFFSET, os.SEEK_SET)
+            msvcrt.locking(fd, msvcrt.LK_UNLCK, 1)  # type: ignore[attr-defined]
+        else:
+            import fcntl
+
+            fcntl.flock(fd, fcntl.LOCK_UN)
+
+
+def _read_owner(fd: int) -> dict | None:
+    try:
+        os.lseek(fd, 0, os.SEEK_SET)
+        raw = os.read(fd, 4096)
+        owner = json.loads(raw.decode("utf-8"))
+    except (OSError, ValueError):
+        return None
+    return owner if isinstance(owner, dict) else None
+
+
 class WriterLock:
-    """An exclusive lock file ``<workbook>.lock`` with the writer's pid, host and time.
+    """The writer's lock: an OS lock held on ``<workbook>.lock`` while the workbook is open.
+
+    The file names the writer (pid, host, time) for the "in use by ..." message;
+    the OS lock (``fcntl.flock`` / ``msvcrt.locking``) decides. It vanishes with
+    its process, so a lock left by a crash, an empty or half-written lock file,
+    or one naming a process that happens to be alive after a reboot never
+    blocks, and two processes can never both win (there is no read-delete-create
+    takeover to race through). The file is removed on release while the lock is
+    still held; a process that locked a file just removed notices (the path no
+    longer names the file it locked) and tries again.
+
+    A lock file written by another computer is respected even without an OS lock
+    (a network share may not pass locks between machines) until the user
+    confirms it is left over (``acquire(force=True)``).
 
     >>> import tempfile, pathlib
     >>> p = pathlib.Path(tempfile.mkdtemp()) / "a.tenure"
@@ -182,68 +277,108 @@ class WriterLock:
         self.path = Path(path)
         self.file = lock_path(self.path)
         self.held = False
+        self._fd: int | None = None
 
     def _owner(self) -> dict | None:
         try:
-            return json.loads(self.file.read_text(encoding="utf-8"))
+            owner = json.loads(self.file.read_text(encoding="utf-8"))
         except (OSError, ValueError):
             return None
-
-    def _stale(self, owner: dict | None) -> bool:
-        if owner is None:  # unreadable or half-written: stale once it is a few seconds old
-            try:
-                age = _dt.datetime.now().timestamp() - self.file.stat().st_mtime
-            except OSError:
-                return True
-            return age > 10.0
-        if owner.get("host") != socket.gethostname():
-            return False  # cannot tell whether a process on another machine is alive
-        return not _pid_alive(int(owner.get("pid", -1)))
+        return owner if isinstance(owner, dict) else None
 
     def owner(self) -> dict | None:
         """The pid, host and time in the lock file, or None when there is no readable lock."""
         return self._owner() if self.file.exists() else None
 
     def break_lock(self) -> None:
-        """Remove the lock file whoever holds it (only after the user confirms it is stale)."""
+        """Remove a left-over lock file (only when no live process holds its OS lock)."""
         try:
-            self.file.unlink()
-        except FileNotFoundError:
-            pass
+            fd = os.open(self.file, os.O_RDWR)
+        except OSError:
+            return
+        try:
+            if _os_lock(fd):
+                with contextlib.suppress(OSError):
+                    self.file.unlink()
+                _os_unlock(fd)
+        finally:
+            os.close(fd)
 
-    def acquire(self) -> None:
-        me = {"pid": os.getpid(), "host": socket.gethostname(),
-              "time": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")}
-        for _attempt in range(3):
+    @staticmethod
+    def _who(owner: dict | None) -> str:
+        if not owner:
+            return "another process"
+        return (f"process {owner.get('pid')} on {owner.get('host')} since "
+                f"{owner.get('time')}")
+
+    def acquire(self, force: bool = False) -> None:
+        """Take the lock or raise :class:`WorkbookInUse` naming the writer; never waits."""
+        me = json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
+                         "time": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")})
+        for _attempt in range(50):
             try:
-                fd = os.open(self.file, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
-            except FileExistsError:
-                owner = self._owner()
-                if self._stale(owner):
-                    try:
-                        self.file.unlink()
-                    except FileNotFoundError:
-                        pass
-                    continue
-                who = (f"process {owner.get('pid')} on {owner.get('host')} since "
-                       f"{owner.get('time')}") if owner else "another process"
-                raise WorkbookInUse(self.path, f"in use: open for writing by {who} "
-                                               f"(close it there, or open read-only)") from None
+                fd = os.open(self.file, os.O_RDWR | os.O_CREAT, 0o644)
             except OSError as exc:
                 raise WorkbookError(self.path, f"cannot create the lock file {self.file.name} "
                                                f"({exc.strerror or exc})") from None
-            with os.fdopen(fd, "w", encoding="utf-8") as fh:
-                json.dump(me, fh)
-            self.held = True
-            return
-        raise WorkbookInUse(self.path, "in use: the lock file keeps reappearing")
+            keep = False
+            try:
+                try:
+                    locked = _os_lock(fd)
+                except OSError as exc:  # e.g. a network share without locks (ENOLCK)
+                    why = exc.strerror or str(exc)
+                    raise WorkbookError(self.path, f"cannot lock it for writing ({why}); copy "
+                                                   "it to a local folder, or open it "
+                                                   "read-only") from None
+                if not locked:
+                    raise WorkbookInUse(self.path, f"in use: open for writing by "
+                                                   f"{self._who(_read_owner(fd))} "
+                                                   "(close it there, or open read-only)")
+                try:
+                    same = os.path.samestat(os.fstat(fd), os.stat(self.file))
+                except FileNotFoundError:
+                    same = False
+                if not same:  # released and removed between our open and our lock
+                    _os_unlock(fd)
+                    continue
+                owner = _read_owner(fd)
+                if (not force and owner is not None and owner.get("host")
+                        and owner.get("host") != socket.gethostname()):
+                    _os_unlock(fd)
+                    raise WorkbookInUse(self.path, f"in use: open for writing by "
+                                                   f"{self._who(owner)} (close it there, or "
+                                                   "open read-only; if that computer is no "
+                                                   "longer using it, confirm to take it over)")
+                os.lseek(fd, 0, os.SEEK_SET)
+                os.ftruncate(fd, 0)
+                os.write(fd, me.encode("utf-8"))
+                self._fd = fd
+                self.held = keep = True
+                return
+            finally:
+                if not keep:
+                    os.close(fd)
+        raise WorkbookInUse(self.path, "in use: the lock file keeps changing")
 
     def release(self) -> None:
-        if self.held:
-            owner = self._owner()
-            if owner is None or owner.get("pid") == os.getpid():
-                try:
-                    self.file.unlink()
-                except FileNotFoundError:
-                    pass
-            self.held = False
+        if not self.held or self._fd is None:
+            return
+        fd, self._fd, self.held = self._fd, None, False
+        if os.name == "nt":  # an open file cannot be removed there: unlock, close, then remove
+            _os_unlock(fd)
+            os.close(fd)
+            with contextlib.suppress(OSError):
+                self.file.unlink()
+            return
+        try:
+            if os.path.samestat(os.fstat(fd), os.stat(self.file)):
+                self.file.unlink()
+        except OSError:
+            pass
+        finally:
+            _os_unlock(fd)
+            os.close(fd)
+
+    def __del__(self) -> None:  # pragma: no cover - the OS releases it anyway
+        with contextlib.suppress(Exception):
+            self.release()

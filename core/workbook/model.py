@@ -15,13 +15,21 @@ from typing import Any
 
 from core.errors import StudyError
 from core.estimates import Alternative, Study
-from core.studyfile import alternative_to_dict, fingerprint, parse_study, study_to_dict
+from core.studyfile import (
+    alternative_to_dict,
+    fingerprint,
+    loads_json,
+    parse_study,
+    study_to_dict,
+)
 from core.workbook.files import (
     WorkbookError,
     WorkbookInUse,
+    WorkbookReadOnly,
     WriterLock,
     _uri,
     check_file,
+    write_problem,
 )
 from core.workbook.schema import SCHEMA_VERSION, create_v1, migrate
 
@@ -124,6 +132,48 @@ class _State:
     depth: int = 0
 
 
+def _disk_full(path: Path, exc: BaseException) -> bool:
+    """True when a failed write is a full disk (or this process's file-size limit).
+
+    SQLite says SQLITE_FULL for ENOSPC, but a plain write error (SQLITE_IOERR_WRITE) for
+    EFBIG and some filesystems, so the free space and the size limit are looked at too.
+    """
+    from core.fsutil import is_disk_full
+
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    if name == "SQLITE_FULL" or is_disk_full(exc):
+        return True
+    if not name.startswith("SQLITE_IOERR"):
+        return False
+    import shutil
+
+    try:
+        if shutil.disk_usage(path.parent).free < 4 * 1024 * 1024:
+            return True
+    except OSError:
+        pass
+    try:
+        import resource
+
+        soft = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
+        return soft != resource.RLIM_INFINITY
+    except (ImportError, OSError, ValueError):
+        return False
+
+
+def _write_failed(path: Path, exc: sqlite3.Error) -> WorkbookError:
+    """The refusal for a save that SQLite could not complete (the transaction is rolled back)."""
+    if _disk_full(path, exc):
+        return WorkbookError(path, "disk full: the save did not happen; the workbook is as it "
+                                   "was before it and your changes are still open (free some "
+                                   "space, or save them elsewhere)")
+    refused = _write_refused(path, exc)
+    if isinstance(refused, WorkbookInUse) and "locked" not in str(exc):
+        return WorkbookError(path, f"the save did not happen ({exc}); the workbook is as it "
+                                   "was before it")
+    return refused
+
+
 def _write_refused(path: Path, exc: sqlite3.Error) -> WorkbookError:
     text = str(exc)
     if "readonly" in text or "read-only" in text:
@@ -178,6 +228,12 @@ class Workbook:
                                isolation_level=None, check_same_thread=False)
         conn.execute("PRAGMA foreign_keys = ON")
         if write:
+            # Durability (docs/method.md §7, §15): a rollback journal (DELETE mode) with
+            # synchronous = FULL makes SQLite fsync the journal before it touches the
+            # workbook and the workbook before it deletes the journal, so a committed save
+            # survives a power cut and an interrupted one is rolled back on the next open.
+            # NORMAL would save a few fsyncs per save at the risk of losing the last saves
+            # after a power cut; saves are rare and small here, so FULL costs nothing felt.
             conn.execute("PRAGMA journal_mode = DELETE")
             conn.execute("PRAGMA synchronous = FULL")
         return conn
@@ -196,10 +252,15 @@ class Workbook:
         version = check_file(path)
         if not write:
             return cls(path, cls._connect(path, False), False, None, version)
+        why = write_problem(path)
+        if why is not None:
+            raise WorkbookReadOnly(path, f"read-only: {why}; open it read-only, or save your "
+                                         "changes elsewhere")
         lock = WriterLock(path)
-        if break_lock:
-            lock.break_lock()
-        lock.acquire()
+        lock.acquire(force=break_lock)
+        from core.fsutil import remove_leftovers
+
+        remove_leftovers(path.parent, stem=path.name + ".recovery.tmp")
         try:
             conn = cls._connect(path, True)
             try:
@@ -300,18 +361,67 @@ class Workbook:
         self._state.depth = 1
         try:
             yield self._conn
-        except BaseException:
+        except BaseException as exc:
             self._state.depth = 0
-            self._conn.execute("ROLLBACK")
+            self._rollback()
+            if isinstance(exc, sqlite3.OperationalError):
+                raise _write_failed(self.path, exc) from None
             raise
         self._state.depth = 0
-        self._conn.execute("COMMIT")
+        try:
+            self._conn.execute("COMMIT")
+        except sqlite3.OperationalError as exc:
+            self._rollback()
+            raise _write_failed(self.path, exc) from None
+
+    def _rollback(self) -> None:
+        """Undo the open transaction, if SQLite has not already (it does on a full disk)."""
+        if self._conn is not None and self._conn.in_transaction:
+            with contextlib.suppress(sqlite3.Error):
+                self._conn.execute("ROLLBACK")
 
     def _q(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
         if self._conn is None:
             raise WorkbookError(self.path, "workbook is closed")
-        cur = self._conn.execute(sql, params)
-        return cur.fetchall()
+        try:
+            cur = self._conn.execute(sql, params)
+            return cur.fetchall()
+        except sqlite3.OperationalError as exc:
+            if "decode" not in str(exc).lower():
+                raise
+            raise self._damaged_text() from None
+
+    def _damaged_text(self) -> WorkbookError:
+        """The refusal for text that is not UTF-8 (a flipped bit): names the table and row.
+
+        Only reads (with text read as bytes); the file is not changed.
+        """
+        conn = self._conn
+        saved = conn.text_factory
+        conn.text_factory = bytes
+        try:
+            tables = [r[0] for r in conn.execute(
+                "SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
+            for table in tables:
+                name = table.decode("utf-8", "replace") if isinstance(table, bytes) else table
+                cols = [r[1].decode("utf-8", "replace") if isinstance(r[1], bytes) else r[1]
+                        for r in conn.execute(f'PRAGMA table_info("{name}")')]
+                for n, row in enumerate(conn.execute(f'SELECT * FROM "{name}"'), start=1):
+                    for col, value in zip(cols, row, strict=False):
+                        if isinstance(value, bytes):
+                            try:
+                                value.decode("utf-8")
+                            except UnicodeDecodeError as err:
+                                key = row[0].decode("utf-8", "replace") if isinstance(
+                                    row[0], bytes) else row[0]
+                                return WorkbookError(
+                                    self.path, f"damaged: table {name}, row {n} ({cols[0]} "
+                                    f"{key!s}), column {col} is not valid UTF-8 text (byte "
+                                    f"{err.start + 1}); the file was not changed")
+        finally:
+            conn.text_factory = saved
+        return WorkbookError(self.path, "damaged: some text is not valid UTF-8; the file was "
+                                        "not changed")
 
     # ------------------------------------------------------------------ meta
     @property
@@ -405,8 +515,8 @@ class Workbook:
         study_json, result_json, fp, action, saved_at = rows[0]
         where = f"{self.path}: {tag} {year}"
         try:
-            study = parse_study(json.loads(study_json), where)
-            result = json.loads(result_json) if result_json else None
+            study = parse_study(loads_json(study_json, where), where)
+            result = loads_json(result_json, where) if result_json else None
         except (ValueError, StudyError) as exc:
             raise WorkbookError(self.path, f"the stored study of {tag} {year} is damaged "
                                            f"({exc})") from None
@@ -504,7 +614,12 @@ class Workbook:
         for cid, name, cls, body in self._q(sql + " ORDER BY name", params):
             tags = tuple(r[0] for r in self._q(
                 "SELECT tag FROM asset_candidates WHERE candidate_id = ? ORDER BY tag", (cid,)))
-            alt = _parse_alternative(json.loads(body), f"{self.path}: candidate '{name}'")
+            where = f"{self.path}: candidate '{name}'"
+            try:
+                alt = _parse_alternative(loads_json(body, where), where)
+            except StudyError as exc:
+                raise WorkbookError(self.path, f"candidate '{name}' is damaged ({exc.message})"
+                                    ) from None
             out.append(Candidate(cid, name, cls, alt, tags))
         return out
 
@@ -553,7 +668,7 @@ class Workbook:
         if self.schema_version < 2:
             return []
         year = self.current_year(tag) if year is None else year
-        return [json.loads(r[0]) for r in self._q(
+        return [loads_json(r[0], f"{self.path}: fit of {tag} {year}") for r in self._q(
             "SELECT fit_json FROM fits WHERE tag = ? AND year = ? ORDER BY quantity", (tag, year))]
 
     # ------------------------------------------------------------------ memos

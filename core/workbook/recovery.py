@@ -22,6 +22,7 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from core.estimates import Study
+from core.fsutil import fsync_dir, remove_leftovers
 from core.studyfile import fingerprint, study_to_dict
 from core.workbook.files import WorkbookError, check_file
 from core.workbook.model import Workbook
@@ -64,16 +65,24 @@ def autosave(workbook: Workbook, path: str | Path | None = None,
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
         os.replace(tmp, target)
-    except BaseException:
+    except BaseException as exc:
         with contextlib.suppress(OSError):
             tmp.unlink()
+        if isinstance(exc, OSError | sqlite3.OperationalError):
+            from core.workbook.model import _disk_full
+
+            if _disk_full(target, exc):
+                raise WorkbookError(target, "disk full: the recovery copy was not written (the "
+                                            "previous one, if any, is kept)") from None
         raise
+    fsync_dir(target.parent)
     return target
 
 
 def find_recovery(path: str | Path) -> Path | None:
     """The recovery copy of the workbook at ``path`` if one exists and is intact, else None."""
     rec = recovery_path(path)
+    remove_leftovers(rec.parent, stem=rec.name + ".tmp")  # autosaves cut short by a kill
     if not rec.exists():
         return None
     try:
@@ -109,6 +118,7 @@ def restore_recovery(path: str | Path) -> Path:
         finally:
             conn.close()
         os.replace(rec, path)
+        fsync_dir(path.parent)
     finally:
         lock.release()
     return path
