@@ -722,7 +722,8 @@ class MainWindow(QMainWindow):
             self._current_job = None
             entry = self.current_entry()
             if entry is not None and self.doc.cached_result(entry.key) is not None:
-                self.report("")
+                if self.last_message.startswith("Recomputing with"):
+                    self.report("")  # clear only our own progress note, never a warning
                 self.show_result()
 
     def _compute_async(self, items: list[tuple[str, Study]], show: bool = False) -> FleetJob:
