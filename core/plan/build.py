@@ -12,7 +12,7 @@ from core.plan.inputs import AssetInput
 from core.plan.options import AFTER, OptionTable, option_table
 from core.plan.result import NO_SITE, CapitalPlan, PlannedAsset, SiteCapital
 from core.plan.rule import simple_rule
-from core.plan.solve import Solution, allowed_mask, solve
+from core.plan.solve import TIME_LIMIT, Solution, allowed_mask, solve
 
 DEFAULT_HORIZON = 10
 
@@ -48,7 +48,7 @@ def make_plan(assets: Sequence[AssetInput], *, horizon: int = DEFAULT_HORIZON,
               budgets: Sequence[float | None] | None = None, net: bool = False,
               per_site_limit: int | None = None, pins: Mapping[int, int] | None = None,
               first_year: int = 0, table: OptionTable | None = None,
-              solution: Solution | None = None) -> CapitalPlan:
+              solution: Solution | None = None, time_limit: float = TIME_LIMIT) -> CapitalPlan:
     """The capital plan of ``assets`` (docs/method.md §10); see core.plan.solve for the model.
 
     ``pins`` maps an asset's position to a plan year (``AFTER`` = after the horizon).
@@ -63,7 +63,7 @@ def make_plan(assets: Sequence[AssetInput], *, horizon: int = DEFAULT_HORIZON,
         if b is not None and not (np.isfinite(b) and b >= 0):
             raise StudyError("--budget", f"plan year {y}: the budget must be a number >= 0")
     sol = solution or solve(table, budgets, net=net, per_site_limit=per_site_limit, pins=pins,
-                            first_year=first_year)
+                            first_year=first_year, time_limit=time_limit)
     allowed = allowed_mask(table, pins)
     best = table.best(allowed)
     rule = simple_rule(table, budgets, net=net, per_site_limit=per_site_limit, pins=pins)

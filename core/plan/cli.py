@@ -16,6 +16,7 @@ from typing import Any
 from core.errors import StudyError
 from core.plan.build import DEFAULT_HORIZON, make_plan
 from core.plan.result import CapitalPlan
+from core.plan.solve import TIME_LIMIT
 
 
 def _amount(text: str, where: str) -> float:
@@ -97,6 +98,8 @@ def run_plan(args: argparse.Namespace) -> int:
     from core.plan.load import load_plan_source
 
     horizon, budgets = parse_budgets(args.budget, args.budgets, args.horizon)
+    if not (math.isfinite(args.time_limit) and args.time_limit > 0):
+        raise StudyError("--time-limit", "must be a number of seconds above 0")
     out = Path(args.output) if args.output else None
     if out is not None:
         if out.suffix.lower() not in (".pdf", ".xlsx"):
@@ -107,7 +110,8 @@ def run_plan(args: argparse.Namespace) -> int:
             raise StudyError("-o", f"folder {out.parent} does not exist")
     source = load_plan_source(args.file, args.must or ())
     plan = make_plan(source.inputs, horizon=horizon, budgets=budgets, net=args.net,
-                     per_site_limit=args.per_site_limit, first_year=source.first_year)
+                     per_site_limit=args.per_site_limit, first_year=source.first_year,
+                     time_limit=args.time_limit)
     if out is not None:
         _write(plan, source, out, args)
     if args.json:
@@ -164,6 +168,9 @@ def register(subparsers: Any) -> None:
                    help="assets to replace now (tags; study titles for a study file)")
     p.add_argument("--per-site-limit", type=int, default=None, metavar="N",
                    help="at most N replacements per site per year")
+    p.add_argument("--time-limit", type=float, default=TIME_LIMIT, metavar="SECONDS",
+                   help=f"stop the solver after this long and report the gap to the best "
+                        f"possible plan (default {TIME_LIMIT:g})")
     p.add_argument("--json", action="store_true", help="print the plan as one JSON object")
     p.add_argument("-o", "--output", default=None, metavar="PLAN.pdf|PLAN.xlsx",
                    help="write the plan memo (PDF) or the plan tables (XLSX)")

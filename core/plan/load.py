@@ -85,7 +85,8 @@ def load_plan_source(path: str | Path, must: Sequence[str] = ()) -> PlanSource:
     for (study, tag, site), result in zip(records, results, strict=True):
         key = tag if tag is not None else study.title
         inputs.append(plan_input(result, study, tag=tag, site=site, must=key in wanted,
-                                 must_reason="must be replaced now (--must)"
+                                 must_reason="marked must-replace for this plan (safety, "
+                                             "regulation or a failed inspection)"
                                  if key in wanted else ""))
     return PlanSource(str(file), tuple(inputs), tuple(s for s, _, _ in records), first_year,
                       tag is not None if records else False)

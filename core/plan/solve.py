@@ -23,7 +23,16 @@ import numpy as np
 from core.errors import StudyError
 from core.plan.options import AFTER, OptionTable
 
-TIME_LIMIT = 120.0
+TIME_LIMIT = 60.0
+REL_GAP = 1e-6  #: HiGHS stops when (bound - best) / |best| falls below this; reported
+
+
+def dominated(table: OptionTable, allowed: np.ndarray, net: bool) -> np.ndarray:
+    """Options no optimal plan needs: inside the horizon, using capital >= 0, and worth no
+    more than the same asset's allowed after-the-horizon option (which uses none)."""
+    after = np.where(allowed & (table.year == AFTER), table.value, -np.inf).max(axis=1)
+    cap = table.net_capital if net else table.capital
+    return (table.year >= 0) & (cap >= 0) & (table.value <= after[:, None])
 
 
 @dataclass(frozen=True)
@@ -136,8 +145,8 @@ def solve(table: OptionTable, budgets: Sequence[float | None] | None = None, *,
         raise StudyError("--budgets", f"{len(budgets)} amounts for a {h}-year horizon")
     allowed = allowed_mask(table, pins)
     check_feasible(table, allowed, budgets, net, first_year)
-    rows, cols = np.nonzero(allowed)
     best = table.best(allowed)
+    rows, cols = np.nonzero(allowed & ~dominated(table, allowed, net))
     constrained = any(b is not None for b in budgets) or per_site_limit is not None
     if not constrained or rows.size == 0:
         value = float(table.value[np.arange(table.size), best].sum())
@@ -167,13 +176,13 @@ def solve(table: OptionTable, budgets: Sequence[float | None] | None = None, *,
                         shape=(len(sites) * h, m))
         blocks.append(LinearConstraint(mat, -np.inf, float(per_site_limit)))
     res = milp(-value, constraints=blocks, integrality=np.ones(m),
-               bounds=(0.0, 1.0), options={"time_limit": time_limit, "mip_rel_gap": 1e-9,
+               bounds=(0.0, 1.0), options={"time_limit": time_limit, "mip_rel_gap": REL_GAP,
                                            "presolve": True})
     if res.x is None:
         if res.status == 2:
             raise _explain_infeasible(table, allowed, budgets, net, first_year)
         raise StudyError("plan", f"the solver found no plan ({res.message})")
-    x = np.round(res.x).astype(bool)
+    x = res.x > 0.5
     choice = best.copy()
     choice[rows[x]] = cols[x]
     objective = float(table.value[np.arange(table.size), choice].sum())
