@@ -62,11 +62,11 @@ def make_plan(assets: Sequence[AssetInput], *, horizon: int = DEFAULT_HORIZON,
     for y, b in enumerate(budgets):
         if b is not None and not (np.isfinite(b) and b >= 0):
             raise StudyError("--budget", f"plan year {y}: the budget must be a number >= 0")
+    rule = simple_rule(table, budgets, net=net, per_site_limit=per_site_limit, pins=pins)
     sol = solution or solve(table, budgets, net=net, per_site_limit=per_site_limit, pins=pins,
-                            first_year=first_year, time_limit=time_limit)
+                            first_year=first_year, time_limit=time_limit, extra_plan=rule)
     allowed = allowed_mask(table, pins)
     best = table.best(allowed)
-    rule = simple_rule(table, budgets, net=net, per_site_limit=per_site_limit, pins=pins)
     rows = np.arange(table.size)
     chosen_value = table.value[rows, sol.choice]
     best_value = table.value[rows, best]
