@@ -158,14 +158,17 @@ class _PlanBuilder:
 
     def by_year(self) -> None:
         p, cur = self.plan, self.cur
-        self.h(f"Budget and capital by year ({cur})")
+        biggest = max([*p.capital_by_year, *[b for b in p.budgets if b is not None], 0.0])
+        unit = 1000.0 if sum(p.capital_by_year) >= 1e6 or biggest >= 1e6 else 1.0
+        self.h(f"Budget and capital by year ({cur}{' thousands' if unit > 1 else ''})")
         head = ["", *[str(y) for y in p.calendar_years], "Total"]
         rows: list[list[Any]] = [head]
 
         def row(label: str, values: Any) -> list[Any]:
             vals = list(values)
             total = sum(v for v in vals if v is not None)
-            return [label, *[money(v) if v is not None else "-" for v in vals], money(total)]
+            return [label, *[money(v / unit) if v is not None else "-" for v in vals],
+                    money(total / unit)]
 
         bold = []
         if any(b is not None for b in p.budgets):
@@ -352,10 +355,10 @@ def _build(plan: CapitalPlan, opts: PlanMemoOptions, fp: str, total: list[int],
     b = _PlanBuilder(plan, opts, doc.width)
     b.header()
     b.by_year()
-    b.assets()
     b.deferred()
     b.must()
     b.comparison()
+    b.assets()
     b.method()
     b.cautions()
     b.signoff(sink)

@@ -108,7 +108,8 @@ def _explain_infeasible(table: OptionTable, allowed: np.ndarray,
                 f"{_label(years[0], first_year)} to {_label(years[-1], first_year)}")
         name = table.title[a] if table.title else str(a)
         return StudyError("--budget", f"no plan fits: '{name}' must be replaced in {span} and "
-                          f"needs at least {_money(float(cap[a, k].min()))} of capital; no "
+                          f"needs at least {_money(float(cap[a, k].min()))} of "
+                          f"{'net ' if net else ''}capital; no "
                           f"year's budget in that span is that large")
     last = np.where(allowed, table.year, -2).max(axis=1)
     cheapest = np.where(allowed, cap, np.inf).min(axis=1)
@@ -119,7 +120,8 @@ def _explain_infeasible(table: OptionTable, allowed: np.ndarray,
         if all(b is not None for b in budgets[:y + 1]) and need > room + 0.005:
             return StudyError("--budget", f"no plan fits: by {_label(y, first_year)}, "
                               f"{int(due.sum())} assets reach the end of their life and need "
-                              f"at least {_money(need)} of capital; the budgets to then total "
+                              f"at least {_money(need)} of {'net ' if net else ''}capital; the "
+                              f"budgets to then total "
                               f"{_money(room)}")
     return StudyError("--budget", "no plan fits the budgets (and the per-site limit): "
                       "raise a year's budget or the limit")
