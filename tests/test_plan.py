@@ -285,3 +285,29 @@ def test_cli_study_file_titles(tmp_path: Path) -> None:
     assets = json.loads(run.stdout)["plan"]["assets"]
     assert all(a["tag"] is None and a["site"] is None for a in assets)
     assert assets[3]["forced"] and assets[3]["year"] == 0
+
+
+@pytest.mark.parametrize("estimates", ["constant", "then-current"])
+def test_unconstrained_plan_with_inflation_and_tax(estimates: str) -> None:
+    # reference: each study's planned_defender_years, for studies with inflation (both
+    # money bases), before and after tax (the adapter reads the decision basis)
+    from dataclasses import replace
+
+    from core.demo import demo_studies
+    from core.estimates import Inflation
+
+    studies = [replace(s, inflation=Inflation(0.04, estimates)) for s in demo_studies()]
+    results = [run_study(s) for s in studies]
+    inputs = [plan_input(r, s) for r, s in zip(results, studies, strict=True)]
+    assert {a.basis for a in inputs} == {"before-tax", "after-tax"}
+    plan = make_plan(inputs, horizon=10)
+    for r, a, inp in zip(results, plan.assets, inputs, strict=True):
+        rec = r.recommendation
+        if rec.study_period is not None and rec.challenger is None:
+            continue
+        planned = rec.planned_defender_years
+        assert a.year == (planned if planned < 10 else None), a.title
+        if a.year is not None and a.year > 0:
+            growth = 1.04 if estimates == "then-current" else 1.0
+            # hand calculation: the first cost in year y in the study's money, P (1+f)^y
+            assert a.capital == pytest.approx(inp.price(a.challenger) * growth ** a.year)
