@@ -85,6 +85,14 @@ def test_plan_window_shows_the_core_plan_and_prices_a_pin(qtbot, window, tmp_pat
     assert dialog.override is not None and dialog.override >= 0
     assert dialog.override == pytest.approx(plan.objective - dialog.plan.objective)
     assert "pins cost" in dialog.summary.text()
+    # must-replace on an asset planned after the horizon: it moves to the first year
+    row = next(r for r in range(14) if dialog.table.item(r, 2).text() == "after horizon")
+    later = dialog.table.item(row, 0).data(0x0100)
+    dialog.table.selectRow(row)
+    with qtbot.waitSignal(dialog.plan_ready, timeout=60_000):
+        dialog.must_box.setChecked(True)
+    moved = {a.tag: a for a in dialog.plan.assets}[later]
+    assert moved.forced and moved.year == 0
     dialog.shutdown()
 
 
