@@ -62,6 +62,7 @@ class PlanJob(QRunnable):
         self.items, self.first_year, self.horizon = items, first_year, horizon
         self.budgets, self.net, self.limit = budgets, net, limit
         self.must, self.pins = set(must), dict(pins)
+        self.inputs: list[Any] = []
         self.signals = PlanSignals()
         self._cancel = threading.Event()
         self.setAutoDelete(False)
@@ -87,6 +88,7 @@ class PlanJob(QRunnable):
                                          if key in self.must else ""))
                 if n % 25 == 0:
                     self.signals.progress.emit(int(40 * n / total), "Reading the studies")
+            self.inputs = inputs
             self.signals.progress.emit(45, "Solving the plan")
             index = {key: n for n, (key, *_rest) in enumerate(self.items)}
             pins = {index[k]: y for k, y in self.pins.items() if k in index}
@@ -102,6 +104,26 @@ class PlanJob(QRunnable):
         except StudyError as exc:
             self.signals.failed.emit(str(exc))
         except Exception as exc:  # noqa: BLE001 - reported in the dialog, never a crash
+            self.signals.failed.emit(f"{type(exc).__name__}: {exc}")
+
+
+class MemoJob(QRunnable):
+    """Write the plan memo (core.plan.memo.issue_plan_memo) off the GUI thread."""
+
+    def __init__(self, plan: Any, source: Any, path: str, pins: dict[int, int]) -> None:
+        super().__init__()
+        self.plan, self.source, self.path, self.pins = plan, source, path, pins
+        self.signals = PlanSignals()
+        self.setAutoDelete(False)
+
+    def run(self) -> None:
+        from core.plan.memo import issue_plan_memo
+
+        try:
+            issued = issue_plan_memo(self.plan, self.source, self.path, pins=self.pins,
+                                     progress=lambda p, t: self.signals.progress.emit(p, t))
+            self.signals.done.emit(issued, None)
+        except Exception as exc:  # noqa: BLE001 - reported in the dialog
             self.signals.failed.emit(f"{type(exc).__name__}: {exc}")
 
 
@@ -121,6 +143,9 @@ class PlanDialog(QDialog):
         self.must: set[str] = set()
         self.pins: dict[str, int] = {}
         self.job: PlanJob | None = None
+        self.inputs: list[Any] = []
+        self.memo_job: MemoJob | None = None
+        self.memo_written: Any = None
         self._old_jobs: list[PlanJob] = []
         self.pool = QThreadPool(self)
         self.pool.setMaxThreadCount(1)
@@ -150,6 +175,11 @@ class PlanDialog(QDialog):
         self.cancel_button = QPushButton("Cancel")
         self.cancel_button.setEnabled(False)
         self.cancel_button.clicked.connect(self.cancel)
+        self.memo_button = QPushButton("Write plan memo…")
+        self.memo_button.setToolTip("The plan as a PDF memo with sign-off boxes (sign it with "
+                                    "tenure sign; check it with tenure verify)")
+        self.memo_button.setEnabled(False)
+        self.memo_button.clicked.connect(self.write_memo)
         self.progress = QProgressBar()
         self.progress.setRange(0, 100)
         self.progress.setMaximumWidth(180)
@@ -165,6 +195,7 @@ class PlanDialog(QDialog):
         top.addWidget(self.limit)
         top.addWidget(self.solve_button)
         top.addWidget(self.cancel_button)
+        top.addWidget(self.memo_button)
         top.addWidget(self.progress)
 
         self.summary = QLabel("Enter a budget and press Solve.")
@@ -327,9 +358,11 @@ class PlanDialog(QDialog):
     def _done(self, plan: Any, cost: float | None) -> None:
         if self.sender() is not (self.job.signals if self.job else None):
             return
+        self.inputs = self.job.inputs
         self.job = None
         self.cancel_button.setEnabled(False)
         self.show_plan(plan, cost)
+        self.memo_button.setEnabled(True)
 
     # ------------------------------------------------------------------ showing
     def show_plan(self, plan: Any, cost: float | None = None) -> None:
@@ -424,6 +457,44 @@ class PlanDialog(QDialog):
         widths = (280, 120, 100, 100, 260, 90, 90, 100, 50, 60)
         for c, w in enumerate(widths):
             self.table.setColumnWidth(c, w)
+
+    # ------------------------------------------------------------------ memo
+    def write_memo(self, path: str | None = None) -> None:
+        """Ask where, then write the plan memo of the plan shown, in the background."""
+        from PySide6.QtWidgets import QFileDialog
+
+        from core.plan.load import PlanSource
+
+        if self.plan is None or not self.inputs:
+            return
+        if path is None:
+            path, _ = QFileDialog.getSaveFileName(self, "Write plan memo", "capital-plan.pdf",
+                                                  "PDF (*.pdf)")
+            if not path:
+                return
+        by_key = {k: study for k, _site, study, _r in self.items}
+        studies = tuple(by_key[a.tag] for a in self.inputs)
+        source = PlanSource("", tuple(self.inputs), studies, self.first_year, True)
+        index = {a.tag: n for n, a in enumerate(self.inputs)}
+        pins = {index[k]: y for k, y in self.pins.items() if k in index}
+        job = MemoJob(self.plan, source, path, pins)
+        job.signals.progress.connect(lambda p, t: (self.progress.setValue(p),
+                                                   self.progress.setFormat(t)))
+        job.signals.done.connect(self._memo_written)
+        job.signals.failed.connect(self._failed_memo)
+        self.memo_job = job
+        self.memo_button.setEnabled(False)
+        self.pool.start(job)
+
+    def _memo_written(self, issued: Any, _none: object) -> None:
+        self.memo_button.setEnabled(True)
+        self.memo_written = issued
+        self.summary.setText(self.summary.text() + f"<br>Plan memo written: {issued.path} "
+                             f"({issued.pages} pages, fingerprint {issued.fingerprint[:12]}…).")
+
+    def _failed_memo(self, message: str) -> None:
+        self.memo_button.setEnabled(True)
+        self.summary.setText(f"<span style='color:#b00020'>Plan memo: {message}</span>")
 
     # ------------------------------------------------------------------ pins and must
     def selected_key(self) -> str | None:

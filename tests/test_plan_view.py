@@ -93,6 +93,14 @@ def test_plan_window_shows_the_core_plan_and_prices_a_pin(qtbot, window, tmp_pat
         dialog.must_box.setChecked(True)
     moved = {a.tag: a for a in dialog.plan.assets}[later]
     assert moved.forced and moved.year == 0
+    # the plan memo of what is shown, written in the background, verifies
+    from core.memo.verify import verify_memo
+
+    target = tmp_path / "window-plan.pdf"
+    dialog.write_memo(str(target))
+    qtbot.waitUntil(lambda: getattr(dialog, "memo_written", None) is not None, timeout=60_000)
+    report = verify_memo(target, use_user_trust=False)
+    assert report.attachment_matches and report.footer_fingerprint == dialog.memo_written.fingerprint
     dialog.shutdown()
 
 
