@@ -35,7 +35,8 @@ sys.path.insert(0, str(HERE.parent))
 
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study  # noqa: E402
 from core.fleet import run_fleet  # noqa: E402
-from core.plan import make_plan, option_table, plan_input, solve  # noqa: E402
+from core.plan import make_plan, option_table, plan_input  # noqa: E402
+from core.plan.solve import solve  # noqa: E402
 from core.study import keep_values  # noqa: E402
 
 SITES = ("Kestrel Road", "Millbrook", "Ouseburn Yard")

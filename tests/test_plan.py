@@ -15,8 +15,9 @@ import pytest
 
 from core.errors import StudyError
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
-from core.plan import AFTER, AssetInput, OptionTable, make_plan, option_table, plan_input, solve
+from core.plan import AFTER, AssetInput, OptionTable, make_plan, option_table, plan_input
 from core.plan.rule import simple_rule
+from core.plan.solve import solve
 from core.study import run_study
 
 ROOT = Path(__file__).resolve().parents[1]
