@@ -90,6 +90,11 @@ def naive_values(inputs: list, horizon: int) -> list[np.ndarray]:
     return out
 
 
+def plan_first_tight(free, budget: float) -> str:
+    years = [free.first_year + y for y, c in enumerate(free.capital_by_year) if c > budget]
+    return ", ".join(map(str, years)) or "no year"
+
+
 def timed(fn):
     start = time.perf_counter()
     value = fn()
@@ -147,8 +152,11 @@ def main() -> int:
             print(f"  study results {t_res:7.3f} s | plan inputs {t_in:7.3f} s | option table "
                   f"{t_tab:7.3f} s (naive loop {t_naive:7.3f} s, {t_naive / t_tab:5.1f}x; "
                   f"same values: {same})")
-            print(f"  MILP {t_solve:7.3f} s: {sol.status} (gap {sol.gap:.2e}); "
-                  f"{int(table.valid.sum()):,} options")
+            print(f"  MILP {t_solve:7.3f} s: {sol.status}; {int(table.valid.sum()):,} options")
+            loose = round(2.0 * float(np.mean(free.capital_by_year)), -3)
+            t_loose, sol2 = timed(lambda table=table, loose=loose: solve(table, [loose] * args.horizon))
+            print(f"  MILP {t_loose:7.3f} s: {sol2.status} with a looser budget {loose:,.0f} a "
+                  f"year (tight in {plan_first_tight(free, loose)})")
             print(f"  value: plan {plan.objective:,.0f}; without budget "
                   f"{plan.unconstrained_objective:,.0f} (budget costs {plan.budget_cost:,.0f}); "
                   f"simple rule {'none' if plan.rule_objective is None else f'{plan.rule_objective:,.0f}'}"
