@@ -266,6 +266,8 @@ def test_cli_must_and_infeasible(demo: Path) -> None:
     (["--budget", "1", "--budgets", "1"], "--budgets"),
     (["--per-site-limit", "0"], "--per-site-limit"),
     (["-o", "plan.txt"], "-o"),
+    (["--sign", "id.p12"], "--sign"),
+    (["--time-limit", "0"], "--time-limit"),
 ])
 def test_cli_refusals(demo: Path, args: list[str], where: str) -> None:
     run = _cli("plan", str(demo), *args)

@@ -108,6 +108,16 @@ def run_plan(args: argparse.Namespace) -> int:
             raise StudyError("-o", f"{out} is a folder")
         if not out.parent.exists():
             raise StudyError("-o", f"folder {out.parent} does not exist")
+    if args.sign and (out is None or out.suffix.lower() != ".pdf"):
+        raise StudyError("--sign", "signs the plan memo: give -o PLAN.pdf")
+    if args.passphrase_file and not args.sign:
+        raise StudyError("--sign", "needed with --passphrase-file (the identity file, .p12)")
+    if args.sign:  # a wrong passphrase is refused before any work is done
+        from core.memo.identity import load_identity, read_passphrase_file
+
+        if not args.passphrase_file:
+            raise StudyError("--passphrase-file", "needed with --sign")
+        load_identity(args.sign, read_passphrase_file(args.passphrase_file))
     source = load_plan_source(args.file, args.must or ())
     plan = make_plan(source.inputs, horizon=horizon, budgets=budgets, net=args.net,
                      per_site_limit=args.per_site_limit, first_year=source.first_year,
@@ -142,7 +152,7 @@ def _write(plan: CapitalPlan, source: Any, out: Path, args: argparse.Namespace) 
         opts = PlanMemoOptions(currency=args.currency, prepared_by=args.prepared_by,
                                organisation=args.organisation)
         issue_plan_memo(plan, source, out, opts, identity=args.sign, passphrase=passphrase,
-                        role=args.role)
+                        role=args.role, time_limit=args.time_limit)
     print(f"plan written to {out}", file=sys.stderr if args.json else sys.stdout)
 
 

@@ -392,6 +392,7 @@ def issue_plan_memo(plan: CapitalPlan, source: Any, out: str | os.PathLike,
                     options: PlanMemoOptions | None = None, *,
                     identity: str | os.PathLike | None = None, passphrase: bytes | None = None,
                     role: str = "prepared", pins: dict[int, int] | None = None,
+                    time_limit: float | None = None,
                     progress: Callable[[int, str], None] | None = None) -> IssuedPlanMemo:
     """Render the plan memo into ``out``; sign it in ``role``'s field when an identity is given.
 
@@ -415,7 +416,7 @@ def issue_plan_memo(plan: CapitalPlan, source: Any, out: str | os.PathLike,
         if not opts.names().get(role):
             opts = dataclasses.replace(opts, **{f"{role}_by": info.common_name})
     step(15, "Laying out the plan memo")
-    document = plan_document(plan, source.inputs, source.studies, pins)
+    document = plan_document(plan, source.inputs, source.studies, pins, time_limit)
     pdf, pages = render_plan_memo(plan, document, opts)
     signer = None
     if identity is not None and passphrase is not None:
