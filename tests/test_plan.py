@@ -314,3 +314,29 @@ def test_unconstrained_plan_with_inflation_and_tax(estimates: str) -> None:
             growth = 1.04 if estimates == "then-current" else 1.0
             # hand calculation: the first cost in year y in the study's money, P (1+f)^y
             assert a.capital == pytest.approx(inp.price(a.challenger) * growth ** a.year)
+
+
+def test_asset_flag_is_read_when_the_workbook_has_one(demo: Path, monkeypatch) -> None:
+    # a must-replace flag on the asset (a later schema) forces year 0 like --must does
+    import dataclasses
+
+    from core.plan.load import load_plan_source
+    from core.workbook import Asset, Workbook
+
+    @dataclasses.dataclass(frozen=True)
+    class FlaggedAsset(Asset):
+        must_replace: bool = False
+
+    real = Workbook.assets
+
+    def assets(self, site=None):
+        return [FlaggedAsset(**{f.name: getattr(a, f.name) for f in dataclasses.fields(a)},
+                             must_replace=a.tag == "PB-05") for a in real(self, site)]
+
+    monkeypatch.setattr(Workbook, "assets", assets)
+    source = load_plan_source(demo)
+    flagged = [a for a in source.inputs if a.must]
+    assert [a.tag for a in flagged] == ["PB-05"]
+    assert "flagged must-replace on the asset" in flagged[0].must_reason
+    plan = make_plan(source.inputs)
+    assert {a.tag: a.year for a in plan.assets}["PB-05"] == 0

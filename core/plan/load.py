@@ -62,8 +62,11 @@ def load_plan_source(path: str | Path, must: Sequence[str] = ()) -> PlanSource:
         from core.workbook import Workbook, WorkbookError
 
         with Workbook.open(file, write=False) as wb:
-            sites = {a.tag: a.site for a in wb.assets()}
+            register = wb.assets()
             stored = wb.studies()
+        sites = {a.tag: a.site for a in register}
+        # an asset flag, when the workbook schema has one (read if present, never required)
+        flagged = {a.tag for a in register if getattr(a, "must_replace", False)}
         if not stored:
             raise WorkbookError(file, "the workbook holds no study yet")
         first_year = max(r.year for r in stored)
@@ -71,6 +74,7 @@ def load_plan_source(path: str | Path, must: Sequence[str] = ()) -> PlanSource:
         names = {r.tag for r in stored}
         kind = "asset tagged"
     else:
+        flagged = set()
         studies = load_studies(file)
         first_year = _dt.date.today().year
         records = [(s, None, None) for s in studies]
@@ -84,9 +88,10 @@ def load_plan_source(path: str | Path, must: Sequence[str] = ()) -> PlanSource:
     inputs = []
     for (study, tag, site), result in zip(records, results, strict=True):
         key = tag if tag is not None else study.title
-        inputs.append(plan_input(result, study, tag=tag, site=site, must=key in wanted,
-                                 must_reason="marked must-replace for this plan (safety, "
-                                             "regulation or a failed inspection)"
-                                 if key in wanted else ""))
+        reason = ("flagged must-replace on the asset (safety or regulation)" if key in flagged
+                  else "marked must-replace for this plan (safety, regulation or a failed "
+                       "inspection)" if key in wanted else "")
+        inputs.append(plan_input(result, study, tag=tag, site=site, must=bool(reason),
+                                 must_reason=reason))
     return PlanSource(str(file), tuple(inputs), tuple(s for s, _, _ in records), first_year,
                       tag is not None if records else False)
