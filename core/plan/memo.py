@@ -279,6 +279,9 @@ class _PlanBuilder:
             text = ("Funding each year's due replacements in order of value per unit of "
                     "capital cannot keep the budgets: it leaves an asset that cannot wait "
                     "unfunded. This plan keeps every budget.")
+        elif (p.rule_gap or 0.0) < 0.5:
+            text = (f"Funding each year's due replacements in order of value per unit of "
+                    f"capital gives the same total value here ({money(p.rule_objective)}).")
         else:
             text = (f"Funding each year's due replacements in order of value per unit of "
                     f"capital gives a total value of {money(p.rule_objective)}; this plan "
