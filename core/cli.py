@@ -194,7 +194,7 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--year", type=int, default=None, metavar="YEAR",
                         help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
-    for module in ("core.memo.cli", "core.memo.trust", "core.demo"):
+    for module in ("core.memo.cli", "core.memo.trust", "core.demo", "core.plan.cli"):
         try:
             importlib.import_module(module).register(sub)
         except ImportError:

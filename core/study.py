@@ -57,16 +57,29 @@ def alternative_arrays(study: Study, alt: Alternative) -> tuple[float, np.ndarra
     return alt.price, alt.market_value_array(), alt.cost_array()
 
 
-def keep_values(defender_aw: np.ndarray, challenger_aw: float, rate: float) -> np.ndarray:
+def keep_values(defender_aw: np.ndarray, challenger_aw: float | np.ndarray,
+                rate: float | np.ndarray) -> np.ndarray:
     """Worth of keeping the defender j = 0..n years, then the challenger repeated forever,
     relative to replacing now:  V_j = PW_D(j) - AW_c (P/A,i,j),  V_0 = 0.
 
+    Vectorised over leading batch dimensions: ``defender_aw`` (..., n) with
+    ``challenger_aw`` and ``rate`` (...) gives (..., n + 1) (the capital plan values a
+    whole fleet at once; NaN padding stays NaN).
+
     >>> keep_values(np.array([-100.0, -120.0]), -110.0, 0.0).round(2).tolist()
     [0.0, 10.0, -20.0]
+    >>> keep_values(np.array([[-100.0], [-90.0]]), np.array([-110.0, -80.0]), 0.0).tolist()
+    [[0.0, 10.0], [0.0, -10.0]]
     """
-    years = np.arange(1, len(defender_aw) + 1)
-    pw = defender_aw * pa(rate, years)
-    return np.concatenate([[0.0], pw - challenger_aw * pa(rate, years)])
+    d = np.asarray(defender_aw, dtype=float)
+    years = np.arange(1, d.shape[-1] + 1)
+    c = np.asarray(challenger_aw, dtype=float)
+    i = np.asarray(rate, dtype=float)
+    if d.ndim > 1:
+        c, i = c[..., None], i[..., None]
+    factor = pa(i, years)
+    pw = d * factor
+    return np.concatenate([np.zeros(d.shape[:-1] + (1,)), pw - c * factor], axis=-1)
 
 
 def study_period_options(study: Study, aw: Mapping[str, np.ndarray], rate: float,

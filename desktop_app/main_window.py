@@ -298,6 +298,9 @@ class MainWindow(QMainWindow):
         a.addAction(self.study_years_action)
         a.addSeparator()
         a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
+        self.plan_action = self._action("Capital &plan…", self.show_capital_plan,
+                                        tip="Which assets to replace in which year under a budget")
+        a.addAction(self.plan_action)
 
         h = self.menuBar().addMenu("&Help")
         h.addAction(self._action("&About Tenure", self.about))
@@ -826,6 +829,17 @@ class MainWindow(QMainWindow):
         from desktop_app.study_years import StudyYearsDialog
 
         StudyYearsDialog(self.doc.path, self.current_key, self).exec()
+
+    def show_capital_plan(self) -> None:
+        """The non-modal "Capital plan" window on the register's current studies."""
+        from desktop_app.plan_view import PlanDialog
+
+        dialog = getattr(self, "plan_dialog", None)
+        if dialog is None:
+            dialog = self.plan_dialog = PlanDialog(self)
+        dialog.set_document(self.doc)
+        dialog.show()
+        dialog.raise_()
 
     def apply_fitted_estimates(self, key: str | None, costs, values) -> bool:
         if key is None or (costs is None and values is None):

@@ -33,6 +33,7 @@ __all__ = [
 ROLES = ("prepared", "reviewed", "approved")
 FIELD_NAMES = {"prepared": "Prepared", "reviewed": "Reviewed", "approved": "Approved"}
 ATTACHMENT_NAME = "study.tenure.json"
+PLAN_ATTACHMENT_NAME = "plan.tenure.json"
 INFO_FINGERPRINT_KEY = "/TenureFingerprint"
 INFO_VERSION_KEY = "/TenureMemoVersion"
 
@@ -54,10 +55,14 @@ def finish_pdf(
     fingerprint: str,
     fields: dict[str, tuple[int, tuple[float, float, float, float]]],
     title: str | None = None,
+    attachment_name: str = ATTACHMENT_NAME,
+    description: str | None = None,
 ) -> bytes:
     """Embed the study JSON, add the fingerprint keys and the empty signature fields.
 
     ``fields`` maps role -> (page index from 0, (x1, y1, x2, y2) in points).
+    ``attachment_name`` and ``description`` name another attachment (the capital plan's
+    inputs, ``PLAN_ATTACHMENT_NAME``).
     Returns the new PDF bytes (an incremental update on ``pdf``).
     """
     from pyhanko.pdf_utils import generic
@@ -73,10 +78,11 @@ def finish_pdf(
         params=EmbeddedFileParams(embed_size=True),
     )
     spec = FileSpec(
-        file_spec_string=ATTACHMENT_NAME,
-        file_name=ATTACHMENT_NAME,
+        file_spec_string=attachment_name,
+        file_name=attachment_name,
         embedded_data=ef,
-        description=f"Tenure study file{f' ({title})' if title else ''}; SHA-256 fingerprint {fingerprint}",
+        description=description or (f"Tenure study file{f' ({title})' if title else ''}; "
+                                    f"SHA-256 fingerprint {fingerprint}"),
         af_relationship=generic.pdf_name("/Source"),
     )
     embed_file(w, spec)

@@ -28,7 +28,12 @@ from datetime import datetime
 from pathlib import Path
 
 from core.memo.errors import MemoError, NotAMemoError
-from core.memo.sign import ATTACHMENT_NAME, FIELD_NAMES, INFO_FINGERPRINT_KEY
+from core.memo.sign import (
+    ATTACHMENT_NAME,
+    FIELD_NAMES,
+    INFO_FINGERPRINT_KEY,
+    PLAN_ATTACHMENT_NAME,
+)
 
 __all__ = [
     "SignatureReport",
@@ -248,7 +253,7 @@ def read_attachment(pdf: bytes) -> bytes | None:
         return None
     for i in range(0, len(names) - 1, 2):
         spec = names[i + 1].get_object()
-        if str(names[i]) == ATTACHMENT_NAME or str(spec.get("/UF", "")) == ATTACHMENT_NAME:
+        if {str(names[i]), str(spec.get("/UF", ""))} & {ATTACHMENT_NAME, PLAN_ATTACHMENT_NAME}:
             return spec["/EF"]["/F"].get_object().data
     return None
 
@@ -260,7 +265,15 @@ def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | 
     except Exception:  # pragma: no cover - study file module missing
         return None, None, "cannot check the attached study (core.studyfile unavailable)"
     try:
-        studies = parse_study_document(loads_json(data.decode("utf-8"), "attachment"))
+        doc = loads_json(data.decode("utf-8"), "attachment")
+    except Exception as e:  # noqa: BLE001
+        return None, None, f"the attachment is not JSON: {e}"
+    if isinstance(doc, dict) and doc.get("format") == "tenure-plan":
+        from core.plan.document import check_plan_document
+
+        return check_plan_document(doc)
+    try:
+        studies = parse_study_document(doc)
     except Exception as e:  # noqa: BLE001
         return None, None, f"the attached study does not load: {e}"
     if len(studies) != 1:
