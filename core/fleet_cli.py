@@ -232,6 +232,9 @@ def cmd_import_assets(args: argparse.Namespace) -> int:
                                  Path(args.list).name)
         for line in plan.lines():
             print(line)
+        if plan.rejected and plan.rows == len(plan.rejected):
+            raise StudyError(plan.source, f"no row could be imported ({len(plan.rejected)} "
+                                          f"rejected; first: {plan.rejected[0]})")
         print(plan.summary())
         if args.dry_run:
             print("dry run: nothing written")
@@ -279,6 +282,9 @@ def cmd_import_history(args: argparse.Namespace) -> int:
                                 Path(args.history).name)
         for line in report.lines():
             print(line)
+        if report.rejected and not report.accepted:
+            raise StudyError(Path(args.history).name, f"no row could be imported ("
+                             f"{len(report.rejected)} rejected; first: {report.rejected[0]})")
         have = {(h.tag, h.kind, h.age, h.amount, h.source, h.source_row)
                 for tag in {r.tag for r in report.accepted} for h in wb.history(tag)}
         fresh = [r for r in report.accepted

@@ -228,7 +228,10 @@ def parse_map(pairs: Iterable[str], fields: Iterable[str], where: str = "--map"
                                     f"{', '.join(known)})")
         if field in out:
             raise StudyError(where, f"field '{field}' is mapped twice")
-        out[field] = column.strip() or None
+        column = column.strip()
+        if column and column in out.values():
+            raise StudyError(where, f"column '{column}' is mapped to two fields")
+        out[field] = column or None
     return out
 
 
