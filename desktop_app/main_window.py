@@ -278,6 +278,11 @@ class MainWindow(QMainWindow):
                                                    "the decision changed (read only)")
         self.study_years_action.setEnabled(False)
         a.addAction(self.study_years_action)
+        from desktop_app.fleet_actions import FleetActions
+
+        self.fleet = FleetActions(self)
+        a.addSeparator()
+        self.fleet.install(m, a, self.open_action)
         a.addSeparator()
         a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
 
@@ -333,9 +338,8 @@ class MainWindow(QMainWindow):
         self.register.set_document(doc)  # the register observes the document first
         doc.subscribe(self._on_doc_event)
         workbook = doc.kind == "workbook"
-        self.add_asset_action.setEnabled(not workbook)
         self.history_action.setEnabled(workbook)
-        self.remove_asset_action.setEnabled(not workbook)
+        self.fleet.enable(workbook)
         if self.current_key is None:
             self.select_asset(doc.entries[0].key if doc.entries else None)
         self._update_title()
@@ -419,14 +423,16 @@ class MainWindow(QMainWindow):
         start = self.doc.path or str(Path.home() / "study.json")
         path, _ = QFileDialog.getSaveFileName(self, "Save as", start,
                                               "Study files (*.json);;Workbooks (*.tenure)")
+        _ = _ or ""
         if not path:
             return False
         if Path(path).suffix == "" and self.doc.kind != "workbook":
-            path += ".json"
+            path += ".tenure" if "tenure" in _ else ".json"
         return self._save_to(path)
 
     def _save_to(self, path: str) -> bool:
         old_path = self.doc.path
+        to_workbook = self.doc.kind != "workbook" and Path(path).suffix.lower() == ".tenure"
         try:
             save_document(self.doc, path)
         except StudyError as exc:
@@ -446,6 +452,9 @@ class MainWindow(QMainWindow):
         self._update_recent_menu()
         self._update_title()
         self.report(f"Saved {path}")
+        if to_workbook:  # a study file became a workbook: go on editing the workbook
+            self.open_path(path, offer_recovery=False)
+            self.report(f"Saved {path} as a workbook")
         return True
 
     def maybe_save(self) -> bool:
@@ -579,6 +588,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         if entry is None:
             return False
+        if entry.retired:
+            self.report(f"{entry.name} is {entry.retired}; its studies are read only")
+            return False
         try:
             check_study(new)
         except StudyError as exc:
@@ -617,7 +629,7 @@ class MainWindow(QMainWindow):
 
     def add_asset(self) -> None:
         if self.doc.kind == "workbook":
-            self.report("Add asset: assets of a workbook are added with the workbook tools")
+            self.fleet.add_asset()
             return
         name, ok = QInputDialog.getText(self, "Add asset", "Site — asset name:",
                                         text="Kestrel Road — New asset")
@@ -636,7 +648,10 @@ class MainWindow(QMainWindow):
 
     def remove_asset(self) -> None:
         entry = self.current_entry()
-        if entry is None or self.doc.kind == "workbook":
+        if entry is not None and self.doc.kind == "workbook":
+            self.fleet.remove_asset()
+            return
+        if entry is None:
             return
         if len(self.doc.entries) <= 1:
             self.report("Remove asset: a study file keeps at least one asset")
