@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QUndoCommand
+from PySide6.QtGui import QBrush, QColor, QUndoCommand
 from PySide6.QtWidgets import (
     QButtonGroup,
     QCheckBox,
@@ -149,7 +149,7 @@ class NewWorkbookDialog(QDialog):
             self.path.setText(path if path.endswith(".tenure") else path + ".tenure")
 
     def create(self) -> bool:
-        path = Path(self.path.text().strip())
+        path = Path(self.path.text().strip()).expanduser()
         if path.suffix.lower() != ".tenure":
             path = path.with_name(path.name + ".tenure")
         try:
@@ -192,7 +192,7 @@ class AssetDialog(QDialog):
                                     if asset and asset.in_service else "")
         self.in_service.setPlaceholderText("YYYY-MM-DD (optional)")
         self.original_cost = QLineEdit("" if not asset or asset.original_cost is None
-                                       else f"{asset.original_cost:g}")
+                                       else _text(asset.original_cost))
         self.original_cost.setPlaceholderText("tax basis (optional)")
         self.depreciation = QLineEdit(_dep_text(asset.depreciation) if asset else "")
         self.depreciation.setPlaceholderText("MACRS 7, SL 10, DB 8 25% or none")
@@ -325,7 +325,7 @@ def _dep_text(dep: Any) -> str:
         return f"MACRS {d['class']}"
     if d["method"] == "straight_line":
         return f"SL {d['years']}"
-    return f"DB {d['years']} {d['rate'] * 100:g}%"
+    return f"DB {d['years']} {_text(d['rate'] * 100)}%"
 
 
 class RetireDialog(QDialog):
@@ -407,12 +407,14 @@ class CatalogueDialog(QDialog):
         self.op_growth = QLineEdit()
         form.addRow("Name:", self.name)
         form.addRow("Asset class:", self.asset_class)
-        form.addRow("First cost:", self.first_cost)
+        money = actions.window.prefs.currency
+        unit = f" ({money})" if money else ""
+        form.addRow(f"First cost{unit}:", self.first_cost)
         form.addRow("Max life (years):", self.max_life)
-        form.addRow("Market value decline rate:", self.decline)
-        form.addRow("Operating cost, first year:", self.op_first)
-        form.addRow("… arithmetic gradient:", self.op_gradient)
-        form.addRow("… or geometric growth:", self.op_growth)
+        form.addRow("Market value decline (% a year):", self.decline)
+        form.addRow(f"Operating cost, first year{unit}:", self.op_first)
+        form.addRow(f"… arithmetic gradient{unit.replace(')', ' a year)')}:", self.op_gradient)
+        form.addRow("… or geometric growth (% a year):", self.op_growth)
         self.preview_button = QPushButton("Which assets change?")
         self.preview_button.clicked.connect(self.preview)
         self.apply_button = QPushButton("Apply")
@@ -442,7 +444,7 @@ class CatalogueDialog(QDialog):
 
     def refresh(self, select: str | None = None) -> None:
         with Workbook.open(self.actions.path) as wb:
-            self.candidates = wb.candidates()
+            self.candidates = sorted(wb.candidates(), key=lambda c: (c.asset_class, c.name))
             classes = sorted({c.asset_class for c in self.candidates if c.asset_class}
                              | {a.asset_class for a in wb.assets() if a.asset_class})
         self.asset_class.clear()
@@ -468,15 +470,15 @@ class CatalogueDialog(QDialog):
         self._extra = alt
         self.name.setText(alt.name)
         self.asset_class.setCurrentText(asset_class)
-        self.first_cost.setText(f"{alt.price:g}")
+        self.first_cost.setText(_text(alt.price))
         self.max_life.setText(str(alt.max_life))
         mv = alt.market_values
-        self.decline.setText("" if mv.decline_rate is None else f"{mv.decline_rate:g}")
+        self.decline.setText("" if mv.decline_rate is None else _text(mv.decline_rate * 100))
         self.decline.setEnabled(mv.values is None)
         oc = alt.operating_costs
-        self.op_first.setText("" if oc.first is None else f"{oc.first:g}")
-        self.op_gradient.setText("" if oc.gradient is None else f"{oc.gradient:g}")
-        self.op_growth.setText("" if oc.growth is None else f"{oc.growth:g}")
+        self.op_first.setText("" if oc.first is None else _text(oc.first))
+        self.op_gradient.setText("" if oc.gradient is None else _text(oc.gradient))
+        self.op_growth.setText("" if oc.growth is None else _text(oc.growth * 100))
         for w in (self.op_first, self.op_gradient, self.op_growth):
             w.setEnabled(oc.values is None)
         self.changes.clear()
@@ -523,7 +525,7 @@ class CatalogueDialog(QDialog):
         life = int(life_text)
         mv = base.market_values
         if mv.values is None:
-            mv = MarketValues(decline_rate=number(self.decline, "Decline rate"))
+            mv = MarketValues(decline_rate=number(self.decline, "Decline rate") / 100.0)
         elif len(mv.values) < life:
             raise StudyError("Max life", f"the market values list {len(mv.values)} years; "
                                          "edit them in the study")
@@ -533,6 +535,7 @@ class CatalogueDialog(QDialog):
         if oc.values is None:
             gradient = number(self.op_gradient, "Gradient", True)
             growth = number(self.op_growth, "Growth", True)
+            growth = None if growth is None else growth / 100.0
             if gradient is not None and growth is not None:
                 raise StudyError("Growth", "give a gradient or a growth rate, not both")
             oc = OperatingCosts(first=number(self.op_first, "Operating cost"),
@@ -711,6 +714,9 @@ class AssetListDialog(QDialog):
         self.plan = plan
         for line in plan.lines():
             self.preview_list.addItem(line.split(": ", 1)[1])
+        red = QBrush(QColor("#b03a2e"))
+        for i in range(len(plan.lines()) - len(plan.rejected), len(plan.lines())):
+            self.preview_list.item(i).setForeground(red)
         self.summary.setText(plan.summary())
         self.error.setText("")
         self.import_button.setEnabled(bool(plan.new or plan.changed))
@@ -1171,6 +1177,15 @@ class FleetActions:
         for a in (*self.site_actions, *self.asset_actions, self.catalogue_action,
                   self.asset_list_action):
             a.setEnabled(workbook)
+
+
+def _text(x: float) -> str:
+    """A number for an edit box, to 12 significant digits (so a value round-trips).
+
+    >>> _text(0.11 * 100), _text(1234567.5), _text(3.0)
+    ('11', '1234567.5', '3')
+    """
+    return f"{x:.12g}"
 
 
 def _alt_json(alt: Alternative) -> str:

@@ -311,7 +311,14 @@ class MainWindow(QMainWindow):
         self._update_modified()
 
     def is_dirty(self) -> bool:
-        return self._forced_dirty or not self.undo_stack.isClean()
+        if self._forced_dirty:
+            return True
+        if self.doc.kind == "workbook" and self.doc.path is not None:
+            # register edits are written at once; only study edits wait for Save
+            return any(e.study is not None and getattr(e, "saved", None) != (e.study,
+                                                                             e.study_year)
+                       for e in self.doc.entries)
+        return not self.undo_stack.isClean()
 
     def _update_title(self) -> None:
         name = Path(self.doc.path).name if self.doc.path else "Untitled"

@@ -260,7 +260,7 @@ def test_catalogue_preview_then_apply_with_undo(qtbot, book, monkeypatch) -> Non
     before = dump(book)
     changes = dialog.preview()
     assert [c.tag for c in changes] == ["PB-1", "PB-2"] and dump(book) == before
-    assert dialog.changes.item(0).text().startswith("PB-1 2026 (Ouseburn Yard — PB-1 press)")
+    assert dialog.changes.item(0).text() == "PB-1 2026: price 60,000 -> 65,000"
     dialog.max_life.setText("2.5")
     assert dialog.preview() is None and "Max life" in dialog.error.text()
     assert dialog.first_cost.text() == "65000"  # kept

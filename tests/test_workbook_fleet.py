@@ -189,7 +189,7 @@ def test_candidate_catalogue_preview_then_apply(wb: Workbook) -> None:
     snapshot = dump(wb.path)
     changes = candidate_changes(wb, "IE4 pump 30 kW", dearer)
     assert [(c.tag, c.year) for c in changes] == [("PU-1", 2025), ("PU-2", 2025)]  # not retired
-    assert changes[0].describe().endswith(": price")
+    assert changes[0].describe() == "PU-1 2025: price 17,800 -> 19,500"
     assert dump(wb.path) == snapshot  # the preview writes nothing
     assert candidate_changes(wb, "IE4 pump 30 kW", NEW_PUMP) == []  # same model: no change
     applied = apply_candidate(wb, dearer, "pump")

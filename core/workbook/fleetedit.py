@@ -72,9 +72,17 @@ class CandidateChange:
     after: Alternative
 
     def describe(self) -> str:
-        diffs = [f.name.replace("_", " ") for f in dataclasses.fields(Alternative)
-                 if getattr(self.before, f.name) != getattr(self.after, f.name)]
-        return f"{self.tag} {self.year} ({self.title}): {', '.join(diffs) or 'no change'}"
+        """e.g. "PB-2 2026: price 158,000 -> 168,000; operating costs"."""
+        diffs = []
+        for f in dataclasses.fields(Alternative):
+            old, new = getattr(self.before, f.name), getattr(self.after, f.name)
+            if old == new:
+                continue
+            name = f.name.replace("_", " ")
+            if isinstance(old, (int, float)) and isinstance(new, (int, float)):
+                name += f" {old:,.6g} -> {new:,.6g}"
+            diffs.append(name)
+        return f"{self.tag} {self.year}: {'; '.join(diffs) or 'no change'}"
 
 
 def offered(wb: Workbook, tag: str) -> list[Candidate]:
