@@ -132,7 +132,8 @@ def cmd_add(args: argparse.Namespace) -> int:
             chosen = [s for s in studies
                       if s.title.rpartition(" — ")[2].split(" ", 1)[0] == args.study]
         if not chosen:
-            titles = "; ".join(s.title for s in studies)
+            titles = "; ".join(s.title for s in studies[:4]) + (
+                f"; … {len(studies)} in all" if len(studies) > 4 else "")
             raise StudyError("--study", f"no study titled '{args.study}' (titles: {titles})")
         studies = chosen[:1]
     if len(studies) != 1:

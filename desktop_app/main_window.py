@@ -618,6 +618,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         if entry is None:
             return
+        if entry.retired:
+            self.report(f"{entry.name} is {entry.retired}; its studies are read only")
+            return
         year = this_year()
         if entry.study is None:
             study = default_study(join_title(entry.site, entry.name) if self.doc.kind != "workbook"
