@@ -123,6 +123,14 @@ def test_add_list_study_by_tag(book: Path, files: dict[str, Path]) -> None:
     assert [s["title"] for s in one["studies"]] == ["Ouseburn Yard — PB-9 press brake"]
     proc = cli("study", str(book), "--study", "XX-1", check=2)
     assert proc.stderr.startswith("error: --study: no study titled 'XX-1'")
+    out = book.with_name("pb9.csv")
+    cli("export", str(book), "-o", str(out), "--study", "PB-9", "--table", "summary")
+    assert "Ouseburn Yard — PB-9 press brake" in out.read_text(encoding="utf-8")
+    assert "Millbrook — PU-4" not in out.read_text(encoding="utf-8")
+    memo = book.with_name("pu4.pdf")
+    text = cli("memo", str(book), "--study", "PU-4", "-o", str(memo)).stdout
+    assert "study: Millbrook — PU-4 cooling pump" in text and memo.read_bytes()[:5] == b"%PDF-"
+    assert integrity(book) == "ok"
 
 
 def test_workbook_gives_the_figures_of_the_files(book: Path, files: dict[str, Path]) -> None:

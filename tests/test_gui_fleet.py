@@ -311,3 +311,44 @@ def test_save_as_turns_a_study_file_into_a_workbook(qtbot, tmp_path, monkeypatch
         assert wb.study("PB-5").title == "Kestrel Road — PB-5 press line"
         assert wb.record("PB-5").result_json is not None and wb.integrity_check() == "ok"
     assert [e.key for e in window.doc.entries] == ["PB-5"]
+
+
+def test_add_asset_from_a_study_file_then_remove_with_undo(qtbot, book, tmp_path,
+                                                           monkeypatch) -> None:
+    window = make_window(qtbot, book)
+    src = tmp_path / "two.json"
+    src.write_text(json.dumps({"format": "tenure-study", "version": 1, "studies": [
+        {**BASE_STUDY, "title": "first"}, {**BASE_STUDY, "title": "Kestrel Road — second"}]}))
+    before = dump(book)
+
+    def from_file(d: AssetDialog) -> None:
+        d.tag.setText("PB-7")
+        d.site.setCurrentText("Kestrel Road")
+        d.from_file.setChecked(True)
+        d.study_file.setText(str(src))
+        d._read_titles()
+        d.study_title.setCurrentIndex(1)
+        d.check()
+
+    accept(monkeypatch, AssetDialog, from_file)
+    assert window.fleet.add_asset()
+    assert window.doc.entry("PB-7").study.title == "Kestrel Road — second"
+    undo_restores(window, book, before)
+    window.undo_stack.undo()
+    assert dump(book) == before
+
+    def empty(d: AssetDialog) -> None:
+        d.tag.setText("PB-8")
+        d.site.setCurrentText("Ouseburn Yard")
+        d.no_study.setChecked(True)
+        d.check()
+
+    accept(monkeypatch, AssetDialog, empty)
+    assert window.fleet.add_asset()
+    assert window.doc.entry("PB-8").study is None
+    before = dump(book)
+    window.select_asset("PB-8")
+    window.remove_asset()  # nothing recorded yet: removed
+    with pytest.raises(KeyError):
+        window.doc.entry("PB-8")
+    undo_restores(window, book, before)
