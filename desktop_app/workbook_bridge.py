@@ -47,8 +47,10 @@ def load(path: Path) -> Document:
                                retired_text(asset))
             entry.saved = (study, year)  # type: ignore[attr-defined]
             entries.append(entry)
+        empty = [s.name for s in wb.sites() if not any(e.site == s.name for e in entries)]
     doc = Document(entries, str(path), "workbook")
     doc.company = company  # type: ignore[attr-defined]
+    doc.empty_sites = empty  # type: ignore[attr-defined]
     return doc
 
 
@@ -82,6 +84,8 @@ def sync(doc: Document, renamed: dict[str, str] | None = None, reload: tuple[str
             entry.name = asset_label(asset)
             entry.retired = retired_text(asset)
             entries.append(entry)
+        doc.empty_sites = [s.name for s in wb.sites()  # type: ignore[attr-defined]
+                           if not any(e.site == s.name for e in entries)]
     doc.entries[:] = entries
     doc._emit("assets", None)
     for key in reload:

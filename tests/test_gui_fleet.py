@@ -155,6 +155,9 @@ def test_sites_add_rename_remove_with_undo(qtbot, book, monkeypatch) -> None:
     window = make_window(qtbot, book)
     before = dump(book)
     assert window.fleet.add_site("Kestrel Road")
+    model = window.register.model
+    rows = {model.item(r, 0).text(): model.item(r, 1).text() for r in range(model.rowCount())}
+    assert rows == {"Ouseburn Yard": "", "Kestrel Road": "no assets yet"}  # shown though empty
     undo_restores(window, book, before)
     before = dump(book)
     assert window.fleet.rename_site("Ouseburn Yard", "Ouseburn Works")
