@@ -538,6 +538,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         study = entry.study if entry else None
         self.editor.set_study(study, entry.study_year if entry else None)
+        if entry is not None and entry.retired:  # kept for reading; no edits
+            self.editor.setEnabled(False)
+            self.report(f"{entry.name}: {entry.retired}; its studies are read only")
         self.start_study_action.setEnabled(entry is not None)
         self.study_years_action.setEnabled(entry is not None and self.doc.kind == "workbook"
                                            and self.doc.path is not None)

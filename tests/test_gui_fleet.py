@@ -235,6 +235,8 @@ def test_add_asset_blank_study_edit_move_retire_with_undo(qtbot, book, monkeypat
     entry = window.doc.entry("PB-1")
     assert entry.retired == "retired 2026-06-30: sold to a dealer"
     assert window.doc.state("PB-1").recommendation == "retired"
+    window.select_asset("PB-1")
+    assert not window.editor.isEnabled()
     old = entry.study
     assert not window.commit(dataclasses.replace(old, marr=0.2), "MARR")  # read only
     assert "read only" in window.last_message and entry.study == old
