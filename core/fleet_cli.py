@@ -98,8 +98,14 @@ def cmd_new(args: argparse.Namespace) -> int:
     # meanwhile is never overwritten, and a crash leaves no half-made workbook
     part = out.with_name(f".{out.name}.{os.getpid()}.new")
     try:
-        Workbook.create(part, company=args.organisation, currency=args.currency,
-                        first_year=year).close()
+        try:
+            Workbook.create(part, company=args.organisation, currency=args.currency,
+                            first_year=year).close()
+        except StudyError as exc:
+            option = {"currency": "--currency", "first study year": "--first-year"}
+            if exc.path in option:
+                raise StudyError(option[exc.path], exc.message) from None
+            raise
         try:
             os.link(part, out)
         except FileExistsError:

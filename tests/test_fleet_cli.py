@@ -98,6 +98,10 @@ def test_new_refuses_to_overwrite(book: Path, tmp_path: Path) -> None:
     assert other.read_text() == "keep me"
     proc = cli("new", str(tmp_path / "no" / "such" / "w.tenure"), check=2)
     assert "the folder does not exist" in proc.stderr
+    proc = cli("new", str(tmp_path / "x.tenure"), "--currency", "POUNDS STERLING", check=2)
+    assert proc.stderr.startswith("error: --currency: must be a short code")
+    proc = cli("new", str(tmp_path / "x.tenure"), "--first-year", "26", check=2)
+    assert proc.stderr.startswith("error: --first-year: must be a year from 1900 to 2200")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["notes.txt", "plant.tenure"]
 
 
