@@ -57,10 +57,15 @@ def load_studies(path: str | Path, year: int | None = None) -> list[Study]:
     return load_study_file(file)
 
 
-def _select(studies: list[Study], title: str | None) -> list[Study]:
+def _select(studies: list[Study], title: str | None, file: str | None = None,
+            year: int | None = None) -> list[Study]:
     if title is None:
         return studies
     chosen = [s for s in studies if s.title == title]
+    if not chosen and file is not None:  # a workbook's asset tag
+        from core.fleet_cli import tagged_studies
+
+        chosen = tagged_studies(file, title, year)
     if not chosen:
         titles = "; ".join(s.title for s in studies)
         raise StudyError("--study", f"no study titled '{title}' (titles: {titles})")
@@ -74,7 +79,8 @@ def cmd_study(args: argparse.Namespace) -> int:
         from core.fleet import study_file_json_text
 
         text = study_file_json_text(args.file)
-    studies = _select(load_studies(args.file, args.year), args.study) if text is None else []
+    studies = (_select(load_studies(args.file, args.year), args.study, args.file, args.year)
+               if text is None else [])
     if text is not None or (args.json and len(studies) > 1):
         # A fleet: one vectorised pass (core.fleet, same results as run_study), written
         # compact, one study per line (the indenting encoder is pure Python, ~5x slower).
@@ -119,7 +125,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         raise StudyError("--table", f"must be one of {', '.join(TABLES)}")
     from core.study import run_study
 
-    results = [run_study(s) for s in _select(load_studies(args.file, args.year), args.study)]
+    chosen = _select(load_studies(args.file, args.year), args.study, args.file, args.year)
+    results = [run_study(s) for s in chosen]
     from core.currency import workbook_currency
 
     currency = workbook_currency(args.file)
@@ -173,7 +180,7 @@ def build_parser() -> argparse.ArgumentParser:
     study.add_argument("--json", action="store_true",
                        help="print one JSON object {\"studies\": [...]} instead of tables")
     study.add_argument("--study", metavar="TITLE", default=None,
-                       help="only the study with this title")
+                       help="only the study with this title (or, in a workbook, this asset tag)")
     study.add_argument("--year", type=int, default=None, metavar="YEAR",
                        help="for a workbook: the studies of this year (e.g. last year's), "
                             "recomputed, instead of each asset's current one")
@@ -190,11 +197,11 @@ def build_parser() -> argparse.ArgumentParser:
                         help="for CSV: summary, annual_worth, alternatives (default), "
                              "study_period_options or warnings")
     export.add_argument("--study", metavar="TITLE", default=None,
-                        help="only the study with this title")
+                        help="only the study with this title (or, in a workbook, this asset tag)")
     export.add_argument("--year", type=int, default=None, metavar="YEAR",
                         help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
-    for module in ("core.memo.cli", "core.memo.trust", "core.demo", "core.plan.cli"):
+    for module in ("core.memo.cli", "core.memo.trust", "core.demo", "core.plan.cli", "core.fleet_cli"):
         try:
             importlib.import_module(module).register(sub)
         except ImportError:

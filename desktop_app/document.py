@@ -88,6 +88,7 @@ class AssetEntry:
     name: str
     study: Study | None
     study_year: int | None = None
+    retired: str | None = None  # "retired 2026-03-01: sold" for a retired workbook asset
 
     @property
     def title(self) -> str:
@@ -137,6 +138,7 @@ class Document:
         self.kind = kind  # "json" | "workbook" | "new"
         self._listeners: list[Listener] = []
         self._results: dict[str, StudyResult] = {}
+        self.aliases: dict[str, str] = {}  # an asset tag renamed in the workbook: old -> new
 
     # ------------------------------------------------------------------ observers
     def subscribe(self, listener: Listener) -> None:
@@ -152,10 +154,24 @@ class Document:
 
     # ------------------------------------------------------------------ access
     def entry(self, key: str) -> AssetEntry:
-        for e in self.entries:
-            if e.key == key:
-                return e
-        raise KeyError(key)
+        seen = {key}
+        while True:
+            for e in self.entries:
+                if e.key == key:
+                    return e
+            key = self.aliases.get(key, key)
+            if key in seen:
+                raise KeyError(key)
+            seen.add(key)
+
+    def rename_key(self, old: str, new: str) -> None:
+        """An asset's tag changed: its entry answers to the new key (and the old one)."""
+        entry = self.entry(old)
+        entry.key = new
+        self.aliases.pop(new, None)
+        self.aliases[old] = new
+        if old in self._results:
+            self._results[new] = self._results.pop(old)
 
     def keys(self) -> list[str]:
         return [e.key for e in self.entries]
@@ -229,6 +245,8 @@ class Document:
         entry = self.entry(key)
         year = this_year() if year is None else year
         rec = recommendation_state(self.cached_result(key), entry.study)
+        if entry.retired:
+            return AssetState("retired", str(entry.study_year or "—"), False, (7, 0))
         if entry.study is None:
             est, old = "—", False
         elif entry.study_year is None:

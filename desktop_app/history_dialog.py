@@ -64,6 +64,7 @@ from core.history import (
     TrendFit,
     fit_market_values,
     fit_operating_costs,
+    guess_history_columns,
     import_history,
     read_table,
     yearly_totals,
@@ -90,43 +91,14 @@ DECIMAL_CHOICES = (("auto", "read from the column"), (".", "point (1,234.50)"),
 KINDS = (("operating", "operating cost"), ("maintenance", "maintenance cost"),
          ("resale", "resale quote"))
 
-_HINTS: dict[str, tuple[str, ...]] = {
-    "tag": ("asset", "tag", "machine", "equipment", "unit", "plant no", "serial"),
-    "date": ("date", "closed", "completed", "posted", "when", "day"),
-    "year": ("year", "fy", "period"),
-    "age": ("age",),
-    "amount": ("amount", "cost", "quote", "value", "total", "spend", "price", "eur", "gbp"),
-    "kind": ("kind", "type", "category", "class"),
-}
-
-
 def guess_columns(columns: list[str]) -> dict[str, str | None]:
-    """Guess which header names hold which role (tag, date, year, age, amount, kind).
-
-    Each column serves at most one role; an exact name beats a name that only
-    contains the hint.
+    """Guess which header names hold which role (``core.history.guess_history_columns``).
 
     >>> g = guess_columns(["Asset", "Closed", "Type", "Cost (EUR)", "Notes"])
     >>> g["tag"], g["date"], g["kind"], g["amount"], g["year"]
     ('Asset', 'Closed', 'Type', 'Cost (EUR)', None)
     """
-    out: dict[str, str | None] = dict.fromkeys(_HINTS)
-    used: set[str] = set()
-    for role in ("age", "tag", "date", "year", "kind", "amount"):
-        hints = _HINTS[role]
-        lowered = [(c, c.strip().lower()) for c in columns if c not in used]
-        exact = [c for c, low in lowered if low in hints]
-        loose = [c for c, low in lowered
-                 if any(h in low.replace("_", " ").split() or low.startswith(h) for h in hints)]
-        pick = (exact or loose or [None])[0]
-        if role == "year" and pick is not None and out["date"] is not None:
-            pick = None  # a date column already places the rows in time
-        if role == "age" and pick is not None and "stage" in pick.lower():
-            pick = None
-        if pick is not None:
-            used.add(pick)
-        out[role] = pick
-    return out
+    return guess_history_columns(columns)
 
 
 def _money(value: float, symbol: str) -> str:

@@ -296,6 +296,11 @@ class MainWindow(QMainWindow):
                                                    "the decision changed (read only)")
         self.study_years_action.setEnabled(False)
         a.addAction(self.study_years_action)
+        from desktop_app.fleet_actions import FleetActions
+
+        self.fleet = FleetActions(self)
+        a.addSeparator()
+        self.fleet.install(m, a, self.open_action)
         a.addSeparator()
         a.addAction(self._action("Recompute &register", self.recompute_fleet, sk.Refresh))
         self.plan_action = self._action("Capital &plan…", self.show_capital_plan,
@@ -327,7 +332,14 @@ class MainWindow(QMainWindow):
         self._update_modified()
 
     def is_dirty(self) -> bool:
-        return self._forced_dirty or not self.undo_stack.isClean()
+        if self._forced_dirty:
+            return True
+        if self.doc.kind == "workbook" and self.doc.path is not None:
+            # register edits are written at once; only study edits wait for Save
+            return any(e.study is not None and getattr(e, "saved", None) != (e.study,
+                                                                             e.study_year)
+                       for e in self.doc.entries)
+        return not self.undo_stack.isClean()
 
     def _update_title(self) -> None:
         name = Path(self.doc.path).name if self.doc.path else "Untitled"
@@ -362,9 +374,8 @@ class MainWindow(QMainWindow):
         self.register.set_document(doc)  # the register observes the document first
         doc.subscribe(self._on_doc_event)
         workbook = doc.kind == "workbook"
-        self.add_asset_action.setEnabled(not workbook)
         self.history_action.setEnabled(workbook)
-        self.remove_asset_action.setEnabled(not workbook)
+        self.fleet.enable(workbook)
         if self.current_key is None:
             self.select_asset(doc.entries[0].key if doc.entries else None)
         self._update_title()
@@ -454,14 +465,16 @@ class MainWindow(QMainWindow):
         start = self.doc.path or str(Path.home() / "study.json")
         path, _ = QFileDialog.getSaveFileName(self, "Save as", start,
                                               "Study files (*.json);;Workbooks (*.tenure)")
+        _ = _ or ""
         if not path:
             return False
         if Path(path).suffix == "" and self.doc.kind != "workbook":
-            path += ".json"
+            path += ".tenure" if "tenure" in _ else ".json"
         return self._save_to(path)
 
     def _save_to(self, path: str) -> bool:
         old_path = self.doc.path
+        to_workbook = self.doc.kind != "workbook" and Path(path).suffix.lower() == ".tenure"
         try:
             save_document(self.doc, path)
         except StudyError as exc:
@@ -489,6 +502,9 @@ class MainWindow(QMainWindow):
         self._update_recent_menu()
         self._update_title()
         self.report(f"Saved {path}")
+        if to_workbook:  # a study file became a workbook: go on editing the workbook
+            self.open_path(path, offer_recovery=False)
+            self.report(f"Saved {path} as a workbook")
         return True
 
     def maybe_save(self) -> bool:
@@ -574,6 +590,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         study = entry.study if entry else None
         self.editor.set_study(study, entry.study_year if entry else None)
+        if entry is not None and entry.retired:  # kept for reading; no edits
+            self.editor.setEnabled(False)
+            self.report(f"{entry.name}: {entry.retired}; its studies are read only")
         self.start_study_action.setEnabled(entry is not None)
         self.study_years_action.setEnabled(entry is not None and self.doc.kind == "workbook"
                                            and self.doc.path is not None)
@@ -632,6 +651,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         if entry is None:
             return False
+        if entry.retired:
+            self.report(f"{entry.name} is {entry.retired}; its studies are read only")
+            return False
         try:
             check_study(new)
         except StudyError as exc:
@@ -652,6 +674,9 @@ class MainWindow(QMainWindow):
         entry = self.current_entry()
         if entry is None:
             return
+        if entry.retired:
+            self.report(f"{entry.name} is {entry.retired}; its studies are read only")
+            return
         year = this_year()
         if entry.study is None:
             study = default_study(join_title(entry.site, entry.name) if self.doc.kind != "workbook"
@@ -670,7 +695,7 @@ class MainWindow(QMainWindow):
 
     def add_asset(self) -> None:
         if self.doc.kind == "workbook":
-            self.report("Add asset: assets of a workbook are added with the workbook tools")
+            self.fleet.add_asset()
             return
         name, ok = QInputDialog.getText(self, "Add asset", "Site — asset name:",
                                         text="Kestrel Road — New asset")
@@ -689,7 +714,10 @@ class MainWindow(QMainWindow):
 
     def remove_asset(self) -> None:
         entry = self.current_entry()
-        if entry is None or self.doc.kind == "workbook":
+        if entry is not None and self.doc.kind == "workbook":
+            self.fleet.remove_asset()
+            return
+        if entry is None:
             return
         if len(self.doc.entries) <= 1:
             self.report("Remove asset: a study file keeps at least one asset")

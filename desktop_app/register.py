@@ -141,6 +141,19 @@ class RegisterPane(QWidget):
             site.appendRow(items)
             self._items[entry.key] = items
             self.update_row(entry.key)
+        for name in getattr(doc, "empty_sites", ()):  # a workbook's site without assets yet
+            if name not in sites:
+                site = QStandardItem(name)
+                font = site.font()
+                font.setBold(True)
+                site.setFont(font)
+                site.setData(name.lower(), SORT_ROLE)
+                note = QStandardItem("no assets yet")
+                note.setForeground(QBrush(QColor("#777777")))
+                note.setData("", SORT_ROLE)
+                empty = QStandardItem("")
+                empty.setData("", SORT_ROLE)
+                self.model.appendRow([site, note, empty])
         self.view.expandAll()
         self.select(self._selected if self._selected in self._items else
                     (doc.entries[0].key if doc.entries else None))

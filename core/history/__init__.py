@@ -24,11 +24,13 @@ from core.history.fitting import (
 )
 from core.history.importing import (
     DECIMAL_MARKS,
+    HISTORY_HINTS,
     ColumnMapping,
     FlaggedRow,
     ImportReport,
     RejectedRow,
     detect_decimal,
+    guess_history_columns,
     import_file,
     import_history,
     parse_amount,
@@ -37,7 +39,7 @@ from core.history.importing import (
     yearly_totals,
 )
 
-__all__ = ["DECIMAL_MARKS", "ColumnMapping", "FlaggedRow", "ImportReport", "RejectedRow", "TrendFit",
+__all__ = ["DECIMAL_MARKS", "HISTORY_HINTS", "guess_history_columns", "ColumnMapping", "FlaggedRow", "ImportReport", "RejectedRow", "TrendFit",
            "arithmetic_fit", "decline_fit", "detect_decimal", "fit_market_values", "fit_operating_costs", "geometric_fit",
            "import_file", "import_history", "parse_amount", "parse_date", "r_squared",
            "read_table", "yearly_totals"]

@@ -69,6 +69,10 @@ def load_one_study(path: str, title: str | None):
         studies = load_study_file(p)
     if title is not None:
         chosen = [s for s in studies if s.title == title]
+        if not chosen:  # a workbook's asset tag
+            from core.fleet_cli import tagged_studies
+
+            chosen = tagged_studies(p, title)
         if not chosen:
             titles = "; ".join(s.title for s in studies)
             raise MemoError("--study", f"no study titled '{title}' (titles: {titles})")

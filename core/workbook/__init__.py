@@ -26,7 +26,18 @@ Overview for the window, the memo helpers and the CLI (no Qt anywhere here)::
         wb.record_memo("AC-101", 2026, fingerprint, signer, path, time=None)
         wb.memos(tag=None)               # [MemoRecord(...)]
 
-    Workbook.create("new.tenure", company="...")   # a new empty workbook (refuses to overwrite)
+        wb.add_site(Site(name)); wb.rename_site(old, new); wb.remove_site(name)  # only empty
+        wb.new_asset(asset)              # an existing tag is refused, never merged
+        wb.edit_asset(tag, asset); wb.move_asset(tag, site)
+        wb.retire_asset(tag, date, reason)   # keeps everything, read only afterwards
+        wb.remove_asset(tag)             # only while nothing is recorded for it
+        wb.currency; wb.study_year       # meta (schema 3)
+
+    Workbook.create("new.tenure", company="...", currency="GBP", first_year=2026)
+                                                   # a new empty workbook (refuses to overwrite)
+    core.workbook.fleetedit: candidate_changes / apply_candidate (catalogue), offered,
+        add_studied_asset, restudy, result_snapshot, register_state
+    core.workbook.assetlist: AssetMapping, plan_asset_import (preview), apply_asset_import
     studies_from_workbook(path) -> list[Study]     # current year per asset (the CLI's loader)
     save_studies(path, studies, year=None, results=None)   # the window's Save: by title
                                                    # "Site — TAG description" to assets

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import datetime as _dt
 import json
 import os
@@ -14,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from core.errors import StudyError
-from core.estimates import Alternative, Study
+from core.estimates import Alternative, Depreciation, Study
 from core.studyfile import (
     alternative_to_dict,
     fingerprint,
@@ -57,7 +58,12 @@ class Site:
 
 @dataclass(frozen=True)
 class Asset:
-    """One machine in the register. ``original_cost`` is for tax only (sunk before tax)."""
+    """One machine in the register. ``original_cost`` is for tax only (sunk before tax).
+
+    ``depreciation`` is the asset's tax depreciation (method and period; its
+    basis defaults to ``original_cost``). A retired asset (``retired_on`` set)
+    keeps its studies, history and memos, read only.
+    """
 
     tag: str
     description: str
@@ -66,6 +72,13 @@ class Asset:
     in_service: _dt.date | None = None
     original_cost: float | None = None
     notes: str = ""
+    depreciation: Depreciation | None = None
+    retired_on: _dt.date | None = None
+    retired_reason: str = ""
+
+    @property
+    def retired(self) -> bool:
+        return self.retired_on is not None
 
     def age_in(self, year: int) -> int | None:
         """Whole years in service at the end of calendar ``year`` (None without a date).
@@ -125,6 +138,32 @@ class MemoRecord:
     signed_at: str
     file_name: str
     title: str = ""
+
+
+def _name(text: str, what: str) -> str:
+    name = str(text).strip()
+    if not name:
+        raise StudyError(what, "must not be empty")
+    if len(name) > 120 or any(not ch.isprintable() for ch in name):
+        raise StudyError(what, f"'{name[:40]}' must be printable text of at most 120 "
+                               "characters")
+    return name
+
+
+def _check_asset(asset: Asset) -> None:
+    """Refuse a register entry a study could not use (where = the field)."""
+    _name(asset.tag, "tag")
+    if asset.tag != asset.tag.strip() or any(ch.isspace() for ch in asset.tag):
+        raise StudyError("tag", f"'{asset.tag}' must not contain spaces")
+    _name(asset.site, "site")
+    if asset.original_cost is not None:
+        cost = asset.original_cost
+        if isinstance(cost, bool) or not isinstance(cost, (int, float)) or cost != cost \
+                or cost in (float("inf"), float("-inf")) or cost < 0:
+            raise StudyError("original cost", f"must be a number >= 0, not {cost!r}")
+    if asset.in_service is not None and asset.in_service > _dt.date.today() + _dt.timedelta(
+            days=366 * 5):
+        raise StudyError("in-service date", f"{asset.in_service} is too far in the future")
 
 
 @dataclass
@@ -197,6 +236,35 @@ def _parse_alternative(obj: dict, where: str) -> Alternative:
         raise WorkbookError(where, exc.message) from None
 
 
+_DEPRECIATION_HOLDER = {"name": " challenger", "first_cost": 1, "max_life": 1,
+                        "market_values": {"decline_rate": 0}, "operating_costs": {"first": 0}}
+
+
+def depreciation_to_dict(dep: Depreciation) -> dict[str, Any]:
+    """The §5 depreciation object of ``dep`` (as a study file writes it)."""
+    alt = Alternative(" challenger", "challenger", 1.0, 1, depreciation=dep)
+    return alternative_to_dict(alt)["depreciation"]
+
+
+def parse_depreciation(obj: Any, where: str = "depreciation") -> Depreciation:
+    """A §5 depreciation object (no age: the asset's tax age follows the study year).
+
+    >>> parse_depreciation({"method": "macrs", "class": 7}).macrs_class
+    7
+    """
+    holder = {"title": "asset", "marr": 0.1,
+              "defender": {"name": " defender", "market_value": 1, "max_life": 1,
+                           "market_values": {"decline_rate": 0}, "operating_costs": {"first": 0}},
+              "challengers": [{**_DEPRECIATION_HOLDER, "depreciation": obj}]}
+    try:
+        dep = parse_study(holder, "$").challengers[0].depreciation
+    except StudyError as exc:
+        raise StudyError(where + exc.path.removeprefix("$.challengers[0].depreciation"),
+                         exc.message) from None
+    assert dep is not None
+    return dep
+
+
 class Workbook:
     """An open ``.tenure`` workbook. Use :meth:`open` or :meth:`create`, ideally in ``with``.
 
@@ -207,7 +275,7 @@ class Workbook:
     ...     wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
     >>> with Workbook.open(p) as wb:
     ...     [a.tag for a in wb.assets(site="Millbrook")], wb.schema_version
-    (['P-7'], 2)
+    (['P-7'], 3)
     """
 
     def __init__(self, path: Path, conn: sqlite3.Connection, write: bool,
@@ -283,11 +351,20 @@ class Workbook:
         return cls(path, conn, True, lock, version)
 
     @classmethod
-    def create(cls, path: str | Path, company: str = "", *, schema: int | None = None) -> Workbook:
+    def create(cls, path: str | Path, company: str = "", *, currency: str = "",
+               first_year: int | None = None, schema: int | None = None) -> Workbook:
         """Create a new workbook at ``path`` (refused if the file exists), open for writing.
 
-        ``schema`` (tests only) stops the migrations at that version.
+        ``currency`` is a code or symbol shown with money ("EUR", "£"); ``first_year``
+        is the first study year (default: this calendar year). ``schema`` (tests
+        only) stops the migrations at that version.
         """
+        year = _dt.date.today().year if first_year is None else first_year
+        if isinstance(year, bool) or not isinstance(year, int) or not 1900 <= year <= 2200:
+            raise StudyError("first study year", f"must be a year from 1900 to 2200, not {year!r}")
+        if len(currency) > 8 or any(ch.isspace() or not ch.isprintable() for ch in currency):
+            raise StudyError("currency", f"must be a short code or symbol such as EUR or £, "
+                                         f"not {currency!r}")
         path = Path(path)
         if path.exists():
             raise WorkbookError(path, "already exists; not overwritten")
@@ -304,6 +381,10 @@ class Workbook:
                 target = SCHEMA_VERSION if schema is None else schema
                 version = migrate(conn, 1) if target == SCHEMA_VERSION else _migrate_to(
                     conn, target)
+                if version >= 3:
+                    conn.execute("INSERT OR REPLACE INTO meta VALUES ('currency', ?), "
+                                 "('first_year', ?), ('current_year', ?)",
+                                 (currency, str(year), str(year)))
                 conn.execute("COMMIT")
             finally:
                 conn.close()
@@ -429,6 +510,24 @@ class Workbook:
         rows = self._q("SELECT value FROM meta WHERE key = 'company'")
         return rows[0][0] if rows else ""
 
+    @property
+    def currency(self) -> str:
+        return self.meta().get("currency", "")
+
+    @property
+    def study_year(self) -> int:
+        """The current study year: meta ``current_year``, else the latest stored year,
+        else ``first_year``, else this calendar year."""
+        meta = self.meta()
+        with contextlib.suppress(KeyError, ValueError):
+            return int(meta["current_year"])
+        latest = self._q("SELECT MAX(year) FROM studies")[0][0]
+        if latest is not None:
+            return int(latest)
+        with contextlib.suppress(KeyError, ValueError):
+            return int(meta["first_year"])
+        return _dt.date.today().year
+
     def meta(self) -> dict[str, str]:
         return dict(self._q("SELECT key, value FROM meta"))
 
@@ -445,24 +544,66 @@ class Workbook:
         return [Site(*r) for r in self._q("SELECT name, location FROM sites ORDER BY name")]
 
     def add_site(self, site: Site) -> None:
+        """Add a site, or set the location of an existing one."""
+        name = _name(site.name, "site")
         with self.transaction() as c:
-            c.execute("INSERT OR REPLACE INTO sites VALUES (?, ?)", (site.name, site.location))
+            c.execute("INSERT INTO sites VALUES (?, ?) ON CONFLICT(name) DO UPDATE SET "
+                      "location = excluded.location", (name, site.location))
+
+    def rename_site(self, old: str, new: str) -> None:
+        """Rename a site; its assets follow (one transaction). Stored study titles stay as saved."""
+        new = _name(new, "site")
+        if old not in {s.name for s in self.sites()}:
+            raise WorkbookError(self.path, f"no site '{old}'")
+        if new == old:
+            return
+        if new in {s.name for s in self.sites()}:
+            raise WorkbookError(self.path, f"a site '{new}' already exists")
+        with self.transaction() as c:
+            c.execute("UPDATE sites SET name = ? WHERE name = ?", (new, old))
+
+    def remove_site(self, name: str) -> None:
+        """Remove an empty site; a site that still holds assets (retired ones too) is refused."""
+        if name not in {s.name for s in self.sites()}:
+            raise WorkbookError(self.path, f"no site '{name}'")
+        held = self.assets(site=name)
+        if held:
+            tags = ", ".join(a.tag + (" (retired)" if a.retired else "") for a in held[:8])
+            more = f" and {len(held) - 8} more" if len(held) > 8 else ""
+            raise WorkbookError(self.path, f"site '{name}' still holds {len(held)} asset"
+                                           f"{'s' if len(held) != 1 else ''}: {tags}{more}; "
+                                           "move them to another site first")
+        with self.transaction() as c:
+            c.execute("DELETE FROM sites WHERE name = ?", (name,))
 
     def _asset(self, row: Sequence[Any]) -> Asset:
         date = _dt.date.fromisoformat(row[4]) if row[4] else None
         notes = row[6] if len(row) > 6 else ""
-        return Asset(row[0], row[1], row[2], row[3], date, row[5], notes)
+        dep = retired_on = None
+        reason = ""
+        if len(row) > 7:
+            if row[7]:
+                where = f"{self.path}: asset {row[0]} depreciation"
+                dep = parse_depreciation(loads_json(row[7], where), where)
+            retired_on = _dt.date.fromisoformat(row[8]) if row[8] else None
+            reason = row[9]
+        return Asset(row[0], row[1], row[2], row[3], date, row[5], notes, dep, retired_on, reason)
 
     def _asset_cols(self) -> str:
         base = "tag, description, site, asset_class, in_service, original_cost"
-        return base + (", notes" if self.schema_version >= 2 else "")
+        if self.schema_version >= 2:
+            base += ", notes"
+        if self.schema_version >= 3:
+            base += ", depreciation_json, retired_on, retired_reason"
+        return base
 
-    def assets(self, site: str | None = None) -> list[Asset]:
+    def assets(self, site: str | None = None, include_retired: bool = True) -> list[Asset]:
         """Every asset, by site then tag; only one site's with ``site``."""
         sql = f"SELECT {self._asset_cols()} FROM assets"
         rows = (self._q(sql + " WHERE site = ? ORDER BY tag", (site,)) if site is not None
                 else self._q(sql + " ORDER BY site, tag"))
-        return [self._asset(r) for r in rows]
+        out = [self._asset(r) for r in rows]
+        return out if include_retired else [a for a in out if not a.retired]
 
     def asset(self, tag: str) -> Asset:
         rows = self._q(f"SELECT {self._asset_cols()} FROM assets WHERE tag = ?", (tag,))
@@ -470,27 +611,129 @@ class Workbook:
             raise KeyError(tag)
         return self._asset(rows[0])
 
+    def _known(self, tag: str) -> Asset:
+        try:
+            return self.asset(tag)
+        except KeyError:
+            raise WorkbookError(self.path, f"no asset '{tag}'") from None
+
+    def _active(self, tag: str) -> Asset:
+        """The asset ``tag``, refused when it is retired (its records are read only)."""
+        asset = self._known(tag)
+        if asset.retired:
+            raise WorkbookError(self.path, f"asset {tag} was retired on "
+                                           f"{asset.retired_on}; its records are read only")
+        return asset
+
+    def _write_asset(self, c: sqlite3.Connection, asset: Asset, insert: bool) -> None:
+        _check_asset(asset)
+        c.execute("INSERT OR IGNORE INTO sites (name) VALUES (?)", (asset.site,))
+        cols = ["tag", "description", "site", "asset_class", "in_service", "original_cost"]
+        values: list[Any] = [asset.tag, asset.description, asset.site, asset.asset_class,
+                             asset.in_service.isoformat() if asset.in_service else None,
+                             asset.original_cost]
+        if self.schema_version >= 2:
+            cols.append("notes")
+            values.append(asset.notes)
+        if self.schema_version >= 3:
+            cols += ["depreciation_json", "retired_on", "retired_reason"]
+            values += [None if asset.depreciation is None
+                       else _dumps(depreciation_to_dict(asset.depreciation)),
+                       asset.retired_on.isoformat() if asset.retired_on else None,
+                       asset.retired_reason]
+        elif asset.depreciation is not None or asset.retired_on is not None:
+            raise WorkbookError(self.path, "depreciation and retirement need schema 3; open "
+                                           "the workbook for writing")
+        if insert:
+            c.execute(f"INSERT INTO assets ({', '.join(cols)}) VALUES "
+                      f"({', '.join('?' * len(cols))})", values)
+        else:
+            sets = ", ".join(f"{col} = ?" for col in cols[1:])
+            c.execute(f"UPDATE assets SET {sets} WHERE tag = ?", [*values[1:], asset.tag])
+
     def add_asset(self, asset: Asset) -> None:
         """Add or update an asset (its site is added when new)."""
         with self.transaction() as c:
-            c.execute("INSERT OR IGNORE INTO sites (name) VALUES (?)", (asset.site,))
-            values = [asset.tag, asset.description, asset.site, asset.asset_class,
-                      asset.in_service.isoformat() if asset.in_service else None,
-                      asset.original_cost]
+            exists = c.execute("SELECT 1 FROM assets WHERE tag = ?", (asset.tag,)).fetchone()
+            self._write_asset(c, asset, insert=exists is None)
+
+    def new_asset(self, asset: Asset) -> None:
+        """Add an asset whose tag is new (an existing tag is refused, never merged)."""
+        with self.transaction() as c:
+            if c.execute("SELECT 1 FROM assets WHERE tag = ?", (asset.tag,)).fetchone():
+                raise WorkbookError(self.path, f"asset tag '{asset.tag}' already exists "
+                                               f"(at {self.asset(asset.tag).site})")
+            self._write_asset(c, asset, insert=True)
+
+    def edit_asset(self, tag: str, asset: Asset) -> None:
+        """Replace the register entry of ``tag`` by ``asset`` (one transaction).
+
+        A new tag carries the asset's studies, history, fits, candidate links and
+        memos with it. A retired asset is read only.
+        """
+        old = self._active(tag)
+        if asset.retired_on != old.retired_on:
+            raise WorkbookError(self.path, "retire an asset with retire_asset, not edit_asset")
+        with self.transaction() as c:
+            if asset.tag == tag:
+                self._write_asset(c, asset, insert=False)
+                return
+            if c.execute("SELECT 1 FROM assets WHERE tag = ?", (asset.tag,)).fetchone():
+                raise WorkbookError(self.path, f"asset tag '{asset.tag}' already exists")
+            self._write_asset(c, asset, insert=True)
+            tables = ["studies", "history", "asset_candidates", "memos"]
             if self.schema_version >= 2:
-                c.execute("INSERT INTO assets (tag, description, site, asset_class, in_service, "
-                          "original_cost, notes) VALUES (?, ?, ?, ?, ?, ?, ?) "
-                          "ON CONFLICT(tag) DO UPDATE SET description = excluded.description, "
-                          "site = excluded.site, asset_class = excluded.asset_class, "
-                          "in_service = excluded.in_service, "
-                          "original_cost = excluded.original_cost, notes = excluded.notes",
-                          [*values, asset.notes])
-            else:
-                c.execute("INSERT INTO assets (tag, description, site, asset_class, in_service, "
-                          "original_cost) VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT(tag) DO UPDATE "
-                          "SET description = excluded.description, site = excluded.site, "
-                          "asset_class = excluded.asset_class, in_service = excluded.in_service, "
-                          "original_cost = excluded.original_cost", values)
+                tables.append("fits")
+            for table in tables:
+                c.execute(f"UPDATE {table} SET tag = ? WHERE tag = ?", (asset.tag, tag))
+            c.execute("DELETE FROM assets WHERE tag = ?", (tag,))
+
+    def move_asset(self, tag: str, site: str) -> None:
+        """Move an asset to another site (added when new)."""
+        asset = self._active(tag)
+        self.edit_asset(tag, dataclasses.replace(asset, site=_name(site, "site")))
+
+    def retire_asset(self, tag: str, on: _dt.date, reason: str) -> None:
+        """Retire ``tag`` on ``on`` for ``reason``: it keeps everything, read only."""
+        asset = self._active(tag)
+        if self.schema_version < 3:
+            raise WorkbookError(self.path, "retiring needs schema 3; open the workbook for "
+                                           "writing")
+        if not reason.strip():
+            raise StudyError("reason", "say why the asset is retired")
+        if asset.in_service is not None and on < asset.in_service:
+            raise StudyError("retired on", f"{on} is before {tag} entered service "
+                                           f"({asset.in_service})")
+        with self.transaction() as c:
+            c.execute("UPDATE assets SET retired_on = ?, retired_reason = ? WHERE tag = ?",
+                      (on.isoformat(), reason.strip(), tag))
+
+    def reinstate_asset(self, tag: str) -> None:
+        """Undo a retirement (the window's Undo; nothing else changes)."""
+        self._known(tag)
+        with self.transaction() as c:
+            c.execute("UPDATE assets SET retired_on = NULL, retired_reason = '' WHERE tag = ?",
+                      (tag,))
+
+    def remove_asset(self, tag: str) -> None:
+        """Remove an asset that holds nothing yet (a mistaken entry).
+
+        An asset with studies, history or memos is refused: retire it instead,
+        so nothing is deleted silently.
+        """
+        self._known(tag)
+        held = []
+        for table, what in (("studies", "studies"), ("history", "cost-history rows"),
+                            ("memos", "memos")):
+            n = self._q(f"SELECT count(*) FROM {table} WHERE tag = ?", (tag,))[0][0]
+            if n:
+                held.append(f"{n} {what}")
+        if held:
+            raise WorkbookError(self.path, f"asset {tag} holds {', '.join(held)}; retire it "
+                                           "instead (its records stay, read only)")
+        with self.transaction() as c:
+            c.execute("DELETE FROM asset_candidates WHERE tag = ?", (tag,))
+            c.execute("DELETE FROM assets WHERE tag = ?", (tag,))
 
     # ------------------------------------------------------------------ studies
     def years(self, tag: str) -> list[int]:
@@ -539,7 +782,7 @@ class Workbook:
         ``result_json`` is ``StudyResult.to_json()`` of this very study, kept
         as a readable snapshot; a snapshot of another study is refused.
         """
-        self.asset(tag)
+        self._active(tag)
         fp = fingerprint(study)
         action = None
         if result_json is not None:
@@ -560,6 +803,7 @@ class Workbook:
         The earlier study, its result and its memos stay as they were. The new
         year is stored without a result; edit it and :meth:`save_study` again.
         """
+        self._active(tag)
         earlier = [y for y in self.years(tag) if y < new_year]
         if new_year in self.years(tag):
             raise WorkbookError(self.path, f"{tag} already has a study for {new_year}")
@@ -570,9 +814,13 @@ class Workbook:
         return study
 
     def studies(self) -> list[StudyRecord]:
-        """The current (latest) study of every asset that has one, by site then tag."""
+        """The current (latest) study of every asset in service that has one, by site then tag.
+
+        Retired assets keep their studies (read them with :meth:`record`) but are
+        no longer part of the fleet's run.
+        """
         out = []
-        for asset in self.assets():
+        for asset in self.assets(include_retired=False):
             year = self.current_year(asset.tag)
             if year is not None:
                 out.append(self.record(asset.tag, year))
@@ -597,6 +845,7 @@ class Workbook:
         return int(cid)
 
     def link_candidate(self, candidate_id: int, tag: str) -> None:
+        self._active(tag)
         with self.transaction() as c:
             c.execute("INSERT OR IGNORE INTO asset_candidates VALUES (?, ?)", (tag, candidate_id))
 
@@ -630,6 +879,8 @@ class Workbook:
         ``replace=True`` first removes the earlier rows of the same tags and kinds.
         """
         rows = list(rows)
+        for tag in sorted({r.tag for r in rows}):
+            self._active(tag)
         for r in rows:
             if r.kind not in HISTORY_KINDS:
                 raise WorkbookError(self.path, f"history kind '{r.kind}' is not one of "
@@ -658,6 +909,7 @@ class Workbook:
         """Keep a trend fit (``core.history`` fit object or its ``to_json()`` dict) with a study."""
         if self.schema_version < 2:
             raise WorkbookError(self.path, "fits need schema 2; open the workbook for writing")
+        self._active(tag)
         data = fit.to_json() if hasattr(fit, "to_json") else dict(fit)
         with self.transaction() as c:
             c.execute("INSERT OR REPLACE INTO fits VALUES (?, ?, ?, ?, ?, ?)",

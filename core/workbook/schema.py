@@ -12,6 +12,10 @@ Schema history:
 2. ``fits`` (a trend fit and the data it was fitted to, kept with the study of
    one asset-year), ``assets.notes``, and ``memos.title`` (the study title the
    memo was issued for, filled from the study register for existing rows).
+3. ``assets.depreciation_json`` (the asset's tax depreciation, a §5 depreciation
+   object whose basis defaults to the original cost), ``assets.retired_on`` and
+   ``assets.retired_reason`` (a retired asset keeps everything, read only), and the
+   meta keys ``currency`` and ``first_year`` (filled for existing workbooks).
 """
 
 from __future__ import annotations
@@ -23,7 +27,7 @@ from collections.abc import Callable
 APPLICATION_ID = 0x54454E55
 
 #: The schema version this build writes.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 SCHEMA_V1 = """
 CREATE TABLE meta (
@@ -114,8 +118,19 @@ def _v1_to_v2(conn: sqlite3.Connection) -> None:
             (SELECT s.title FROM studies s WHERE s.fingerprint = memos.fingerprint LIMIT 1), '')""")
 
 
+def _v2_to_v3(conn: sqlite3.Connection) -> None:
+    conn.execute("ALTER TABLE assets ADD COLUMN depreciation_json TEXT")
+    conn.execute("ALTER TABLE assets ADD COLUMN retired_on TEXT")
+    conn.execute("ALTER TABLE assets ADD COLUMN retired_reason TEXT NOT NULL DEFAULT ''")
+    conn.execute("INSERT OR IGNORE INTO meta VALUES ('currency', '')")
+    conn.execute("INSERT OR IGNORE INTO meta SELECT 'first_year', CAST(COALESCE("
+                 "(SELECT MIN(year) FROM studies), "
+                 "(SELECT CAST(value AS INTEGER) FROM meta WHERE key = 'current_year'), "
+                 "CAST(strftime('%Y', 'now') AS INTEGER)) AS TEXT)")
+
+
 #: MIGRATIONS[v] carries a workbook from schema v to v + 1.
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2}
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2, 2: _v2_to_v3}
 
 
 def migrate(conn: sqlite3.Connection, start: int) -> int:
