@@ -267,7 +267,7 @@ def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | 
     try:
         doc = loads_json(data.decode("utf-8"), "attachment")
     except Exception as e:  # noqa: BLE001
-        return None, None, f"the attachment is not JSON: {e}"
+        return None, None, f"the attached study does not load: {e}"
     if isinstance(doc, dict) and doc.get("format") == "tenure-plan":
         from core.plan.document import check_plan_document
 
