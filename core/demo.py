@@ -100,6 +100,7 @@ def _build(out: Path, src: Path) -> None:
         import_file,
         yearly_totals,
     )
+    from core.jsonout import study_json
     from core.study import run_study
 
     fleet = load_fleet(src)
@@ -124,9 +125,9 @@ def _build(out: Path, src: Path) -> None:
         for a in fleet["assets"]:
             for prev in a.get("previous", []):
                 study = asset_study(fleet, a, prev["defender"])
-                wb.save_study(a["tag"], int(prev["year"]), study, run_study(study).to_json())
+                wb.save_study(a["tag"], int(prev["year"]), study, study_json(run_study(study)))
             study = asset_study(fleet, a)
-            wb.save_study(a["tag"], year, study, run_study(study).to_json())
+            wb.save_study(a["tag"], year, study, study_json(run_study(study)))
         in_service = {a.tag: a.in_service for a in wb.assets()}
         costs = import_file(src / "cost_history.csv",
                             ColumnMapping(tag="Asset", date="Date", amount="Amount", kind="Kind"),

@@ -1,7 +1,7 @@
 """Export study results and their tables to CSV and XLSX, safe against formula injection.
 
-Everything comes from ``StudyResult.to_json()`` (a result object or that dict
-may be passed); nothing is recomputed. Tables:
+Everything comes from the study's JSON object (``core.jsonout.study_json``; a
+``StudyResult`` or that dict may be passed); nothing is recomputed. Tables:
 
 * ``summary``: one row per study (recommendation, replacement value, basis, reason);
 * ``annual_worth``: AW_k of every alternative for each retention k (signed: costs < 0);
@@ -26,6 +26,8 @@ from pathlib import Path
 from typing import Any
 
 from core.errors import StudyError
+from core.jsonout import study_json
+from core.results import StudyResult
 
 TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "warnings")
 _DANGEROUS = ("=", "+", "-", "@", "\t", "\r")
@@ -53,14 +55,14 @@ def escape_cell(value: Any) -> Any:
     return "'" + text if text.startswith(_DANGEROUS) else text
 
 
-def _as_json(result: Any) -> dict[str, Any]:
-    return result.to_json() if hasattr(result, "to_json") else dict(result)
+def _as_json(result: StudyResult | dict[str, Any]) -> dict[str, Any]:
+    return study_json(result) if isinstance(result, StudyResult) else dict(result)
 
 
 def _results(results: Any) -> list[dict[str, Any]]:
     if isinstance(results, dict) and "studies" in results:
         return [dict(r) for r in results["studies"]]
-    if isinstance(results, dict) or hasattr(results, "to_json"):
+    if isinstance(results, (dict, StudyResult)):
         return [_as_json(results)]
     return [_as_json(r) for r in results]
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from core.errors import StudyError
+from core.jsonout import study_json
 from desktop_app.document import AssetEntry, Document
 from desktop_app.sources import workbook_module
 
@@ -64,5 +65,5 @@ def save(doc: Document, path: Path) -> None:
                 year = this_year()
                 entry.study_year = year
             result = doc.cached_result(entry.key) or run_study(entry.study)
-            wb.save_study(entry.key, year, entry.study, result_json=result.to_json())
+            wb.save_study(entry.key, year, entry.study, result_json=study_json(result))
             entry.saved = (entry.study, year)  # type: ignore[attr-defined]

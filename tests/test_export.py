@@ -15,6 +15,7 @@ import pytest
 from core.errors import StudyError
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
 from core.export import TABLES, escape_cell, export_csv, export_xlsx, result_tables
+from core.jsonout import study_json
 from core.study import run_study
 
 EVIL = "=HYPERLINK(\"http://x\",\"y\")"
@@ -42,7 +43,7 @@ def test_safe_values_pass() -> None:
 
 def test_tables_hold_the_result_numbers() -> None:
     r = result()
-    js = r.to_json()
+    js = study_json(r)
     t = result_tables(r)
     assert set(t) == set(TABLES)
     aw = t["annual_worth"]
@@ -67,7 +68,7 @@ def test_csv_round_trip_and_escaping(tmp_path: Path) -> None:
     assert rows[0][2] == "'" + EVIL and rows[0][3] == "'+New press"
     assert rows[1][0] == "'@Kestrel Road — press"
     assert [float(x) for x in (row[2] for row in rows[1:5])] == \
-        r.to_json()["alternatives"][0]["annual_worth"]
+        study_json(r)["alternatives"][0]["annual_worth"]
     assert not list(tmp_path.glob("*.part"))
     with pytest.raises(StudyError, match="unknown table"):
         export_csv(r, tmp_path / "x.csv", table="nope")
@@ -85,4 +86,4 @@ def test_xlsx_has_every_table_numbers_as_numbers_and_no_formulas(tmp_path: Path)
     aw = book["annual_worth"]
     assert aw["C1"].value == "'" + EVIL and aw["A2"].value == "'@Kestrel Road — press"
     assert isinstance(aw["C2"].value, (int, float)) and aw["C2"].data_type == "n"
-    assert aw["C2"].value == r.to_json()["alternatives"][0]["annual_worth"][0]
+    assert aw["C2"].value == study_json(r)["alternatives"][0]["annual_worth"][0]

@@ -113,7 +113,7 @@ def test_marginal_view_compares_defender_years_with_best_challenger(chart, resul
     chart.set_view("marginal")
     s = chart.series()
     np.testing.assert_allclose(s["Defender marginal cost"][1], result.defender.marginal_cost)
-    level = result.recommendation.one_more_year["challenger_annual_cost"]
+    level = result.recommendation.one_more_year.challenger_annual_cost
     np.testing.assert_allclose(s["Best challenger"][1], [level, level])
 
 
@@ -164,9 +164,9 @@ def test_after_tax_toggle_switches_the_plotted_basis(chart):
     taxed = run_study(make_study(tax=True))
     chart.set_result(taxed)
     assert chart.has_after_tax() and chart.basis() == "after-tax"
-    for alt in taxed.alternatives:
-        np.testing.assert_allclose(chart.series()[alt.name][1], -alt.after_tax.annual_worth)
-        assert chart.series()[f"{alt.name} ESL"][0][0] == alt.after_tax.economic_life
+    for alt in taxed.after_tax.alternatives:
+        np.testing.assert_allclose(chart.series()[alt.name][1], -alt.annual_worth)
+        assert chart.series()[f"{alt.name} ESL"][0][0] == alt.economic_life
     chart.set_basis("before-tax")
     for alt in taxed.alternatives:
         np.testing.assert_allclose(chart.series()[alt.name][1], -alt.annual_worth)

@@ -22,6 +22,8 @@ import json
 import sys
 from pathlib import Path
 
+from core.errors import StudyError
+from core.loading import load_studies
 from core.memo.errors import MemoError
 
 __all__ = ["register", "run_memo", "run_sign", "run_verify", "run_identity", "load_one_study"]
@@ -31,10 +33,6 @@ def _guard(fn):
     """Turn user errors into one ``error:`` line and exit 2 (never a traceback)."""
 
     def wrapped(args: argparse.Namespace) -> int:
-        try:
-            from core.errors import StudyError
-        except Exception:  # pragma: no cover
-            StudyError = MemoError  # noqa: N806
         try:
             return int(fn(args) or 0)
         except (MemoError, StudyError) as e:
@@ -48,19 +46,8 @@ def _guard(fn):
 
 def load_one_study(path: str, title: str | None):
     """The one study of FILE (a study JSON or a workbook) a memo is about."""
-    try:
-        from core.cli import load_studies
-    except Exception:  # noqa: BLE001 - fall back to the study-file loader
-        load_studies = None
     p = Path(path)
-    if load_studies is not None:
-        studies = load_studies(p)
-    else:  # pragma: no cover
-        if not p.exists():
-            raise MemoError(str(p), "no such file")
-        from core.studyfile import load_study_file
-
-        studies = load_study_file(p)
+    studies = load_studies(p)
     if title is not None:
         chosen = [s for s in studies if s.title == title]
         if not chosen:
@@ -112,7 +99,7 @@ def run_memo(args: argparse.Namespace) -> int:
     if not out.parent.exists():
         raise MemoError("-o", f"folder {out.parent} does not exist")
     passphrase = _passphrase(args) if args.sign else None
-    if args.sign:  # fail on a wrong passphrase before any work is done
+    if args.sign and passphrase is not None:  # a wrong passphrase fails before any work
         from core.memo.identity import load_identity
 
         load_identity(args.sign, passphrase)

@@ -15,7 +15,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import os
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -76,13 +75,14 @@ def issue_memo(
         signer_name = info.common_name
         names = opts.names()
         if not names.get(role):
-            opts = dataclasses.replace(opts, **{f"{role}_by": info.common_name})
+            opts = opts.with_signer(role, info.common_name)
     step(15, "Laying out the memo")
     pdf, pages = render_memo_pages(result, opts)
     step(70, "Attaching the study")
     role_done = None
     if identity is not None:
         step(80, "Signing")
+        assert passphrase is not None  # checked above
         pdf, res = sign_pdf_bytes(pdf, identity, passphrase, role)
         role_done = res.role
         signer_name = res.signer

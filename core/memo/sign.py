@@ -98,7 +98,8 @@ def finish_pdf(
             SigFieldSpec(
                 sig_field_name=FIELD_NAMES[role],
                 on_page=page,
-                box=tuple(int(round(v)) for v in box),
+                box=(int(round(box[0])), int(round(box[1])), int(round(box[2])),
+                     int(round(box[3]))),
             ),
         )
     out = io.BytesIO()

@@ -325,7 +325,7 @@ def verify_memo_bytes(
         coverage = {
             SignatureCoverageLevel.ENTIRE_FILE: "entire file",
             SignatureCoverageLevel.ENTIRE_REVISION: "entire revision",
-        }.get(cov, "partial")
+        }.get(cov, "partial") if cov is not None else "partial"
         if coverage == "partial":
             sp.append("the signature does not cover its whole revision")
         lvl = st.modification_level

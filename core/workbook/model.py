@@ -317,7 +317,7 @@ class Workbook:
         return rows[0][0] if rows else ""
 
     def meta(self) -> dict[str, str]:
-        return dict(self._q("SELECT key, value FROM meta"))
+        return {str(k): str(v) for k, v in self._q("SELECT key, value FROM meta")}
 
     def set_meta(self, key: str, value: str) -> None:
         with self.transaction() as c:
@@ -423,7 +423,7 @@ class Workbook:
                    result_json: Mapping[str, Any] | None = None) -> str:
         """Store the study of ``tag`` for ``year`` (replacing that year's); returns its fingerprint.
 
-        ``result_json`` is ``StudyResult.to_json()`` of this very study, kept
+        ``result_json`` is ``core.jsonout.study_json(result)`` of this very study, kept
         as a readable snapshot; a snapshot of another study is refused.
         """
         self.asset(tag)
@@ -574,7 +574,7 @@ class Workbook:
                 cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
                                 "file_name) VALUES (?, ?, ?, ?, ?, ?)",
                                 (tag, year, fingerprint, signer or "", when, os.fspath(path)))
-        return int(cur.lastrowid)
+        return int(cur.lastrowid or 0)
 
     def memos(self, tag: str | None = None) -> list[MemoRecord]:
         cols = "id, tag, year, fingerprint, signer, signed_at, file_name"
@@ -656,7 +656,7 @@ def save_studies(path: str | Path, studies: Sequence[Study], year: int | None = 
     to the asset named by the title "Site — TAG description"; else to a new
     asset. It is stored as ``year``'s study (default: this calendar year),
     replacing that year's and leaving earlier years as they were. ``results``
-    maps a title to its ``StudyResult.to_json()``. One transaction for all.
+    maps a title to its ``core.jsonout.study_json(result)``. One transaction for all.
     Returns the (tag, year) of each study, in order.
     """
     year = _dt.date.today().year if year is None else int(year)

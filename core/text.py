@@ -1,0 +1,77 @@
+"""How Tenure writes numbers for people: money, years, rates and percentages, with the currency.
+
+The one text module: the CLI, the memo, the window and the export all format here.
+Money is rounded to whole currency units with thousands separators; the currency (a
+symbol or code the user chose) is optional.
+
+>>> money(-12345.6), money(12345.6, "EUR"), rate(0.1), years(1)
+('-12,346', 'EUR 12,346', '10.00%', '1 year')
+"""
+
+from __future__ import annotations
+
+import math
+
+#: Separator between a site and an asset name in the register and the memo.
+SITE_SEPARATOR = " \u2014 "
+
+
+def money(x: float | None, currency: str = "", *, cents: bool = False,
+          missing: str = "-") -> str:
+    """An amount for a sentence or table: thousands separators, no decimals (or two with
+    ``cents``), the minus sign kept, the currency in front when given.
+
+    >>> money(-12345.6), money(0.4), money(1234.5, "$", cents=True), money(None)
+    ('-12,346', '0', '$ 1,234.50', '-')
+    >>> money(float("nan"))
+    '-'
+    """
+    if x is None or not math.isfinite(float(x)):
+        return missing
+    if cents:
+        value = round(float(x), 2)
+        text = f"{value:,.2f}" if value != 0 else "0.00"
+    else:
+        whole = round(float(x))
+        text = f"{whole:,.0f}" if whole != 0 else "0"
+    return f"{currency} {text}" if currency else text
+
+
+def years(n: int) -> str:
+    """'1 year', '3 years'.
+
+    >>> years(1), years(4)
+    ('1 year', '4 years')
+    """
+    return f"{n} year" if n == 1 else f"{n} years"
+
+
+def rate(x: float, digits: int = 2) -> str:
+    """An interest or tax rate as a percentage: ``rate(0.0825) == '8.25%'``.
+
+    >>> rate(0.0825), rate(-0.03, 1)
+    ('8.25%', '-3.0%')
+    """
+    return f"{x:.{digits}%}"
+
+
+def percent(x: float, digits: int = 1) -> str:
+    """A share as a percentage (``percent(0.123) == '12.3%'``).
+
+    >>> percent(0.123), percent(1.0, 0)
+    ('12.3%', '100%')
+    """
+    return f"{x:.{digits}%}"
+
+
+def number(x: float | None, digits: int = 4) -> str:
+    """A plain input value: money-like amounts as money, small fractions with decimals.
+
+    >>> number(0.25), number(60000.0), number(3.0)
+    ('0.2500', '60,000', '3')
+    """
+    if x is None or not math.isfinite(x):
+        return "-"
+    if abs(x) < 5 and x != int(x):
+        return f"{x:.{digits}f}"
+    return money(x)
