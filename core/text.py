@@ -12,29 +12,36 @@ from __future__ import annotations
 
 import math
 
-#: Separator between a site and an asset name in the register and the memo.
+#: Separator between a site and an asset name in a study title (register, workbook, memo).
 SITE_SEPARATOR = " \u2014 "
 
 
-def money(x: float | None, currency: str = "", *, cents: bool = False,
-          missing: str = "-") -> str:
-    """An amount for a sentence or table: thousands separators, no decimals (or two with
-    ``cents``), the minus sign kept, the currency in front when given.
+def money(x: float | None, currency: str = "", decimals: int | None = 0, *,
+          missing: str = "-", not_finite: str | None = None) -> str:
+    """An amount for a sentence or table: thousands separators, ``decimals`` places (None:
+    none for a whole amount, else two), the minus sign kept but never on a zero, the
+    currency after the sign (a word or code with a space).
 
-    >>> money(-12345.6), money(0.4), money(1234.5, "$", cents=True), money(None)
-    ('-12,346', '0', '$ 1,234.50', '-')
-    >>> money(float("nan"))
-    '-'
+    ``missing`` stands for None, ``not_finite`` (default: ``missing``) for NaN or infinity.
+
+    >>> money(-12345.6), money(0.4), money(-0.2), money(1234.5, "$", 2), money(None)
+    ('-12,346', '0', '0', '$1,234.50', '-')
+    >>> money(-23903.4, "\u00a3"), money(-5.0, "EUR"), money(1234.5, decimals=None)
+    ('-\u00a323,903', '-EUR 5', '1,234.50')
+    >>> money(float("nan"), not_finite="n/a"), money(None, missing="")
+    ('n/a', '')
     """
-    if x is None or not math.isfinite(float(x)):
+    if x is None:
         return missing
-    if cents:
-        value = round(float(x), 2)
-        text = f"{value:,.2f}" if value != 0 else "0.00"
-    else:
-        whole = round(float(x))
-        text = f"{whole:,.0f}" if whole != 0 else "0"
-    return f"{currency} {text}" if currency else text
+    value = float(x)
+    if not math.isfinite(value):
+        return missing if not_finite is None else not_finite
+    places = (0 if value.is_integer() else 2) if decimals is None else decimals
+    rounded = round(value, places)
+    digits = f"{abs(rounded):,.{places}f}"
+    sign = "-" if rounded < 0 and digits.strip("0.,") else ""
+    space = " " if currency and currency[-1].isalnum() else ""
+    return f"{sign}{currency}{space}{digits}"
 
 
 def years(n: int) -> str:

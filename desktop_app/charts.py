@@ -65,6 +65,7 @@ from PySide6.QtWidgets import (
 
 from core.decision import keeps_next_year
 from core.results import AlternativeResult, BasisResult, StudyOption, StudyResult
+from core.text import money
 
 
 class _Probe(QObject):
@@ -94,7 +95,7 @@ def guard_signal_refcount_bug() -> bool:
 _GUARDED = False
 guard_signal_refcount_bug()
 
-__all__ = ["ChartPanel", "PALETTE", "VIEWS", "format_money", "MoneyAxis", "YearAxis"]
+__all__ = ["ChartPanel", "PALETTE", "VIEWS", "MoneyAxis", "YearAxis"]
 
 # Okabe & Ito's colour-blind-safe palette (yellow left out: unreadable on white).
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
@@ -111,17 +112,6 @@ VIEWS: tuple[tuple[str, str], ...] = (
 )
 
 BEFORE, AFTER = "before-tax", "after-tax"
-
-
-def format_money(value: float, symbol: str = "", decimals: int = 0) -> str:
-    """An amount with thousands separators and the currency symbol after the sign.
-
-    >>> format_money(-23903.4, "£"), format_money(1234.5), format_money(-0.2)
-    ('-£23,903', '1,235', '0')
-    """
-    text = f"{abs(float(value)):,.{decimals}f}"
-    negative = float(value) < 0 and text.strip("0.,") != ""
-    return ("-" if negative else "") + symbol + text
 
 
 class _FastGridAxis(pg.AxisItem):
@@ -182,7 +172,7 @@ class MoneyAxis(_FastGridAxis):
 
     def tickStrings(self, values, scale, spacing):  # noqa: N802 (Qt naming)
         decimals = 0 if spacing >= 1 else min(6, int(np.ceil(-np.log10(spacing))))
-        return [format_money(v * scale, "", decimals) for v in values]
+        return [money(v * scale, "", decimals) for v in values]
 
 
 class YearAxis(_FastGridAxis):
@@ -326,7 +316,7 @@ class _Plot(pg.PlotWidget):
         top = max((float(np.nanmax(a)) for a in finite if np.isfinite(a).any()), default=0.0)
         axis = self.getPlotItem().getAxis("left")
         metrics = QFontMetrics(axis.style.get("tickFont") or QFont())
-        text_width = metrics.horizontalAdvance(format_money(-top * 1.25))
+        text_width = metrics.horizontalAdvance(money(-top * 1.25))
         if axis.fixedWidth != text_width + 36:  # setWidth throws the axis picture away
             axis.setWidth(text_width + 36)
 
@@ -799,7 +789,7 @@ class ChartPanel(QWidget):
         return 1.0 if self.signed() else -1.0
 
     def _money(self, v: float) -> str:
-        return format_money(v, self._currency)
+        return money(v, self._currency)
 
     def _empty(self, plot: _Plot, key: str, text: str) -> None:
         plot.targets = []

@@ -29,7 +29,8 @@ from PySide6.QtWidgets import (
 
 from core.memo.cautions import caution_texts as memo_cautions
 from core.results import Recommendation, StudyOption, StudyResult
-from desktop_app.charts import format_money, years_text
+from core.text import money
+from desktop_app.charts import years_text
 
 __all__ = ["ResultsPanel", "badge_for", "caution_texts"]
 
@@ -230,7 +231,7 @@ class ResultsPanel(QWidget):
 
     # -------------------------------------------------------------- internals
     def _money(self, value: float) -> str:
-        return format_money(value, self._currency)
+        return money(value, self._currency)
 
     def _row_clicked(self, row: int, _column: int) -> None:
         item = self.table.item(row, 1)

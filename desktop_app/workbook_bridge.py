@@ -9,17 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from core import workbook
 from core.errors import StudyError
 from core.jsonout import study_json
 from desktop_app.document import AssetEntry, Document
-from desktop_app.sources import workbook_module
-
-
-def _module(path: Path):
-    module = workbook_module()
-    if module is None or not hasattr(module, "Workbook"):
-        raise StudyError(str(path), "workbooks are not supported by this build")
-    return module
 
 
 def asset_label(asset) -> str:
@@ -28,7 +21,7 @@ def asset_label(asset) -> str:
 
 
 def load(path: Path) -> Document:
-    module = _module(path)
+    module = workbook
     entries: list[AssetEntry] = []
     with module.Workbook.open(str(path), write=False) as wb:
         company = getattr(wb, "company", "") or ""
@@ -46,7 +39,7 @@ def load(path: Path) -> Document:
 
 
 def save(doc: Document, path: Path) -> None:
-    module = _module(path)
+    module = workbook
     if doc.kind != "workbook" or doc.path is None or Path(doc.path) != Path(path):
         raise StudyError(str(path), "a study file can be saved as .json only; open or create "
                                     "the workbook with the demo or workbook tools")

@@ -27,7 +27,8 @@ from core.estimates import (  # noqa: E402
     Tax,
 )
 from core.study import run_study  # noqa: E402
-from desktop_app.charts import ChartPanel, format_money  # noqa: E402
+from core.text import money as format_money  # noqa: E402
+from desktop_app.charts import ChartPanel  # noqa: E402
 
 MARR = 0.09
 

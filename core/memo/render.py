@@ -50,6 +50,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from core import text
 from core.memo.cautions import caution_texts
 from core.memo.chart import aw_chart
 from core.memo.fonts import FB, FI, FR
@@ -96,23 +97,13 @@ METHOD = (
 
 
 def money(x: float | None, decimals: int = 0) -> str:
-    """Thousands separators, ASCII minus, '-' never on a zero; blank for None.
+    """Amounts as the memo prints them (``core.text.money``): blank for None, 'n/a' when
+    undefined; the currency is named in each column head.
 
     >>> money(-12345.6), money(0.4), money(1234.5, 2), money(None)
     ('-12,346', '0', '1,234.50', '')
     """
-    if x is None:
-        return ""
-    try:
-        v = float(x)
-    except (TypeError, ValueError):
-        return str(x)
-    if not math.isfinite(v):
-        return "n/a"
-    r = round(v, decimals)
-    if r == 0:
-        r = 0.0
-    return f"{r:,.{decimals}f}"
+    return text.money(x, decimals=decimals, missing="", not_finite="n/a")
 
 
 def pct(x: float | None) -> str:

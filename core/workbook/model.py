@@ -16,6 +16,7 @@ from typing import Any
 from core.errors import StudyError
 from core.estimates import Alternative, Study
 from core.studyfile import alternative_to_dict, fingerprint, parse_study, study_to_dict
+from core.text import SITE_SEPARATOR
 from core.workbook.files import (
     WorkbookError,
     WorkbookInUse,
@@ -616,8 +617,6 @@ def studies_from_workbook(path: str | Path) -> list[Study]:
         raise WorkbookError(path, "the workbook holds no study yet")
     return studies
 
-
-SITE_SEPARATOR = " — "
 
 
 def _asset_for_title(wb: Workbook, title: str, by_title: dict[str, str]) -> str:
