@@ -71,11 +71,19 @@ def annual_worth_parts(price: ArrayLike, market_values: ArrayLike, costs: ArrayL
     S = np.asarray(market_values, dtype=float)
     C = np.asarray(costs, dtype=float)
     cap = factors.capital_recovery
-    capital_recovery = P_col * cap - S * factors.sinking_fund
-    work = C * factors.discount
-    running_sum(work)
-    operating = np.negative(work, out=work) * cap
-    annual_worth = -capital_recovery + operating
+    # Three arrays of the full batch shape, every step in place (a large batch, e.g. risk
+    # trials, spends its time allocating otherwise); the same operations in the same order.
+    shape = np.broadcast_shapes(P_col.shape, cap.shape, S.shape, C.shape,
+                                factors.sinking_fund.shape, factors.discount.shape)
+    capital_recovery = np.multiply(P_col, cap, out=np.empty(shape))
+    operating = np.multiply(S, factors.sinking_fund, out=np.empty(shape))
+    capital_recovery -= operating
+    np.multiply(C, factors.discount, out=operating)
+    running_sum(operating)
+    np.negative(operating, out=operating)
+    operating *= cap
+    annual_worth = np.negative(capital_recovery)
+    annual_worth += operating
     return annual_worth, capital_recovery, operating
 
 

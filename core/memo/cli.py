@@ -25,6 +25,7 @@ from pathlib import Path
 from core.errors import StudyError
 from core.loading import load_studies
 from core.memo.errors import MemoError
+from core.memo.roles import ROLES
 
 __all__ = ["register", "run_memo", "run_sign", "run_verify", "run_identity", "load_one_study"]
 
@@ -222,7 +223,6 @@ def run_identity(args: argparse.Namespace) -> int:
 
 def register(subparsers) -> None:
     """Add memo, sign, verify and identity to the ``tenure`` sub-command parsers."""
-    from core.memo.sign import ROLES
 
     m = subparsers.add_parser(
         "memo", help="write the signed decision memo (PDF) of one study",

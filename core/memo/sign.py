@@ -19,6 +19,7 @@ from pathlib import Path
 
 from core.memo.errors import MemoError, NotAMemoError
 from core.memo.identity import load_pkcs12_bytes
+from core.memo.roles import FIELD_NAMES, ROLES
 
 __all__ = [
     "ROLES",
@@ -30,8 +31,6 @@ __all__ = [
     "signature_fields",
 ]
 
-ROLES = ("prepared", "reviewed", "approved")
-FIELD_NAMES = {"prepared": "Prepared", "reviewed": "Reviewed", "approved": "Approved"}
 ATTACHMENT_NAME = "study.tenure.json"
 INFO_FINGERPRINT_KEY = "/TenureFingerprint"
 INFO_VERSION_KEY = "/TenureMemoVersion"
