@@ -11,12 +11,15 @@ import json
 import os
 import sys
 from collections.abc import Callable, Sequence
+from pathlib import Path
 from typing import Any, TypeVar
 
+from core.errors import StudyError
 from core.estimates import Study
 from core.jsonout import dumps_compact, study_json
 from core.results import StudyResult
 from core.study import run_studies
+from core.studyfile import FORMAT, VERSION, parse_study
 
 #: Fleets at least this large are split over two processes where fork() is available.
 PARALLEL_MIN = 1000
@@ -105,8 +108,6 @@ def _split_work(child: Callable[[], bytes], parent: Callable[[], T]) -> tuple[T,
 
 
 def _parse_items(items: list[Any], start: int) -> list[Study]:
-    from core.studyfile import parse_study
-
     return [parse_study(obj, f"$.studies[{k}]") for k, obj in enumerate(items, start=start)]
 
 
@@ -120,11 +121,6 @@ def study_file_json_text(path: str | os.PathLike[str]) -> str | None:
     first; refusals come out exactly as ``parse_study_document`` gives them (the first bad
     study in file order, then a repeated title).
     """
-    from pathlib import Path
-
-    from core.errors import StudyError
-    from core.studyfile import FORMAT, VERSION
-
     if not (sys.platform.startswith("linux") and hasattr(os, "fork")
             and (os.cpu_count() or 1) >= 2):
         return None

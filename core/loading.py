@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from core import workbook
 from core.errors import StudyError
 from core.estimates import Study
 from core.studyfile import load_study_file
@@ -25,6 +24,8 @@ def load_studies(path: str | Path, year: int | None = None) -> list[Study]:
     except OSError as exc:
         raise StudyError(str(file), f"cannot read ({exc.strerror or exc})") from None
     if head == SQLITE_MAGIC or file.suffix.lower() == ".tenure":
+        from core import workbook  # only for a workbook: a study file starts faster without
+
         if year is None:
             return workbook.studies_from_workbook(file)
         with workbook.Workbook.open(file, write=False) as wb:

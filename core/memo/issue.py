@@ -24,6 +24,7 @@ from typing import Any
 from core.memo.errors import MemoError
 from core.memo.render import MemoOptions, render_memo_pages
 from core.memo.sign import _atomic_write, sign_pdf_bytes
+from core.studyfile import fingerprint
 
 __all__ = ["IssuedMemo", "issue_memo"]
 
@@ -55,8 +56,6 @@ def issue_memo(
 
     ``progress(percent, text)`` is called at each step (the window's progress bar).
     """
-    from core.studyfile import fingerprint
-
     def step(p: int, text: str) -> None:
         if progress is not None:
             progress(p, text)

@@ -55,7 +55,7 @@ from core.memo.cautions import caution_texts
 from core.memo.chart import aw_chart
 from core.memo.fonts import FB, FI, FR
 from core.memo.sign import ROLES, finish_pdf
-from core.studyfile import is_rate_input
+from core.studyfile import dump_study_document, fingerprint, is_rate_input
 from core.text import percent
 
 __all__ = ["MemoOptions", "render_memo", "render_memo_pages", "money", "PAGE_SIZES"]
@@ -844,8 +844,6 @@ def render_memo(result: Any, options: MemoOptions | None = None) -> bytes:
 
 def render_memo_pages(result: Any, options: MemoOptions | None = None) -> tuple[bytes, int]:
     """:func:`render_memo`, and the page count."""
-    from core.studyfile import dump_study_document, fingerprint
-
     opts = options or MemoOptions()
     if opts.page_size not in PAGE_SIZES:
         raise ValueError(f"page size must be one of {', '.join(PAGE_SIZES)}")

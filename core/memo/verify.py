@@ -27,6 +27,7 @@ from pathlib import Path
 
 from core.memo.errors import MemoError, NotAMemoError
 from core.memo.sign import ATTACHMENT_NAME, FIELD_NAMES, INFO_FINGERPRINT_KEY
+from core.studyfile import fingerprint, parse_study_document
 
 __all__ = [
     "SignatureReport",
@@ -224,10 +225,6 @@ def read_attachment(pdf: bytes) -> bytes | None:
 
 def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | None]:
     """(fingerprint, title, problem) of the attached study document."""
-    try:
-        from core.studyfile import fingerprint, parse_study_document
-    except Exception:  # pragma: no cover - study file module missing
-        return None, None, "cannot check the attached study (core.studyfile unavailable)"
     try:
         studies = parse_study_document(json.loads(data.decode("utf-8")))
     except Exception as e:  # noqa: BLE001

@@ -24,7 +24,7 @@ from core.workbook.files import (
     _uri,
     check_file,
 )
-from core.workbook.schema import SCHEMA_VERSION, create_v1, migrate
+from core.workbook.schema import MIGRATIONS, SCHEMA_VERSION, create_v1, migrate
 
 HISTORY_KINDS = ("operating", "maintenance", "resale")
 
@@ -594,8 +594,6 @@ class Workbook:
 
 
 def _migrate_to(conn: sqlite3.Connection, target: int) -> int:
-    from core.workbook.schema import MIGRATIONS
-
     version = 1
     while version < target:
         MIGRATIONS[version](conn)
