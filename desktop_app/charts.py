@@ -758,7 +758,9 @@ class ChartPanel(QWidget):
         result has no such figure (capital recovery, operating part, marginal cost)."""
         shown = self._shown(alt)
         value = getattr(shown, field)
-        return (None if value is None else np.asarray(value, dtype=float)), shown is not alt
+        if value is None:
+            return None, False
+        return np.asarray(value, dtype=float), shown is not alt
 
     def _esl(self, alt: AlternativeResult, after: bool) -> int:
         r = self._result

@@ -303,3 +303,29 @@ def test_closed_form_replacement_value_matches_a_root_finder() -> None:
         assert rv == pytest.approx(ref, rel=1e-9, abs=1e-6)
         checked += 1
     assert checked == 40
+
+
+def test_batch_with_tax_inflation_and_periods_equals_single_runs() -> None:
+    # Source: core.study.run_study (reference): one path, so each study of a mixed batch
+    # (tax, inflation either way, study periods) gives its single-study result bit for bit.
+    from core.estimates import Depreciation, Inflation, Tax
+
+    rng = random.Random(99)
+    studies = []
+    for k in range(120):
+        s = _random_study(rng, k)
+        if k % 3 == 0:
+            d = dataclasses.replace(s.defender, depreciation=Depreciation(
+                "straight_line", basis=round(rng.uniform(1000, 50000), 2), years=6, age=2))
+            chs = tuple(dataclasses.replace(c, depreciation=Depreciation(
+                "macrs", macrs_class=rng.choice([3, 5, 7]))) for c in s.challengers)
+            s = dataclasses.replace(s, defender=d, challengers=chs,
+                                    tax=Tax(round(rng.uniform(0, 0.45), 3), 0.07))
+        if k % 4 == 1:
+            s = dataclasses.replace(s, inflation=Inflation(
+                round(rng.uniform(0.0, 0.06), 3), rng.choice(["constant", "then-current"])))
+        studies.append(s)
+    batch = run_fleet(studies)
+    for got, study in zip(batch, studies, strict=True):
+        _same(got, run_study(study))
+    assert sum(r.after_tax is not None for r in batch) == 40

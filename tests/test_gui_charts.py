@@ -271,3 +271,17 @@ def test_svg_export_leaves_no_untransformed_rectangles(chart, result_period, tmp
              if not in_defs(r) and r.getAttribute("width") != "100%"]
     assert stray == []
     assert all(" Z" not in p.getAttribute("d") for p in doc.getElementsByTagName("path"))
+
+
+def test_marginal_view_after_tax_falls_back_to_before_tax_on_both_sides(chart):
+    # hand check: the after-tax basis has no marginal costs, so the bars are the before-tax
+    # MC_j and the level must be the before-tax best challenger's EAC (not the after-tax one)
+    taxed = run_study(make_study(tax=True))
+    chart.set_result(taxed)
+    chart.set_basis("after-tax")
+    chart.set_view("marginal")
+    s = chart.series()
+    np.testing.assert_allclose(s["Defender marginal cost"][1], taxed.defender.marginal_cost)
+    level = taxed.before_tax.one_more_year.challenger_annual_cost
+    np.testing.assert_allclose(s["Best challenger"][1], [level, level])
+    assert level != pytest.approx(taxed.after_tax.one_more_year.challenger_annual_cost)
