@@ -112,3 +112,25 @@ def test_layers_point_downward() -> None:
             "core.memo.render"}
     for name in low:
         assert not graph[name] & high, (name, graph[name] & high)
+
+
+def test_one_study_run_loads_no_heavy_library(tmp_path) -> None:
+    # The closed-form replacement value needs no root finder: `tenure study --json` on one
+    # study without uncertainty starts without scipy, pandas, reportlab or the workbook.
+    import json
+    import subprocess
+    import sys
+
+    from conftest import document
+
+    path = tmp_path / "one.json"
+    path.write_text(json.dumps(document()), encoding="utf-8")
+    code = ("import io, sys, contextlib\nfrom core.cli import main\n"
+            "with contextlib.redirect_stdout(io.StringIO()):\n"
+            f"    assert main(['study', {str(path)!r}, '--json']) == 0\n"
+            "print(sorted(m for m in ('scipy', 'pandas', 'reportlab', 'cryptography', "
+            "'core.workbook') if m in sys.modules))")
+    run = subprocess.run([sys.executable, "-c", code], cwd=CORE.parent, capture_output=True,
+                         text=True, timeout=300)
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.strip() == "[]"
