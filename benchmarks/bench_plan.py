@@ -12,7 +12,7 @@ Not a timed test: it prints numbers and whether the targets are met.
    MILP (scipy.optimize.milp / HiGHS): seconds, status and gap, objective against the
    simple rule and against the plan without a budget.
 2. Option table, batched over assets (core.plan.option_table) against a naive per-asset
-   loop calling core.study.keep_values one asset at a time (same values checked).
+   loop calling core.decision.keep_values one asset at a time (same values checked).
 3. `tenure study WB --json` and `tenure plan WB --json --budget B` as subprocesses on the
    same workbook, side by side.  Target (5,000 assets): plan <= 5x study.
 With --out, the 500-asset workbook and its signed-ready plan memo are kept there.
@@ -33,11 +33,12 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
+from core.decision import keep_values  # noqa: E402
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study  # noqa: E402
+from core.factors import pa  # noqa: E402
 from core.fleet import run_fleet  # noqa: E402
 from core.plan import make_plan, option_table, plan_input  # noqa: E402
 from core.plan.solve import solve  # noqa: E402
-from core.study import keep_values  # noqa: E402
 
 SITES = ("Kestrel Road", "Millbrook", "Ouseburn Yard")
 KINDS = (("AC", "Rotary screw compressor", "VSD screw compressor", 30000, 90000),
@@ -85,7 +86,8 @@ def naive_values(inputs: list, horizon: int) -> list[np.ndarray]:
     """Reference: keep_values one asset at a time (the loop a script would write)."""
     out = []
     for a in inputs:
-        v = keep_values(a.defender_aw, a.challenger_aw, a.rate)
+        v = keep_values(a.defender_aw, a.challenger_aw,
+                        pa(a.rate, np.arange(1, len(a.defender_aw) + 1)))
         out.append(v[:min(horizon, a.defender_life + 1)])
     return out
 

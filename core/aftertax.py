@@ -28,27 +28,16 @@ Publication 946.
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from core import depreciation as dep
 from core import inflation as infl
-from core.annual_worth import economic_life
 from core.estimates import Alternative, Study
 from core.factors import FloatArray, ap, pf
-from core.results import Recommendation, StudyOption, StudyResult
-
-
-def _r(x: float, digits: int = 4) -> float:
-    return round(float(x), digits)
-
-
-def _list(a: ArrayLike, digits: int = 4) -> list[float]:
-    return [round(float(v), digits) for v in np.asarray(a).ravel()]
+from core.results import CashFlowTable
 
 
 @dataclass(frozen=True)
@@ -139,38 +128,6 @@ def _after_tax_parts(market_values: ArrayLike, costs: ArrayLike, allowance: Arra
     return (pw_running, tail, book, disposal) if full else (pw_running, tail)
 
 
-@dataclass(frozen=True)
-class CashFlowTable:
-    """The after-tax cash flows of keeping an asset ``retention`` years, rows j = 0..k.
-
-    Signed cash flows (outflows negative): ``before_tax`` is -P (or -MV) at
-    year 0 and -(C_j + X_j) after; ``disposal`` the market value S_k at year
-    k; ``depreciation`` the allowance claimed; ``taxable_income`` the change
-    in taxable income (with the gain S_k - BV_k at k, and for the defender the
-    forgone gain MV - BV_0 at year 0, negative); ``tax`` = -t x taxable income
-    (positive = tax saved); ``net`` = before_tax + disposal + tax.
-    """
-
-    retention: int
-    before_tax: FloatArray
-    disposal: FloatArray
-    depreciation: FloatArray
-    book_value: FloatArray
-    taxable_income: FloatArray
-    tax: FloatArray
-    net: FloatArray
-
-    def to_json(self) -> dict[str, Any]:
-        return {"retention": self.retention,
-                "rows": [{"year": j, "before_tax": _r(self.before_tax[j], 2),
-                          "disposal": _r(self.disposal[j], 2),
-                          "depreciation": _r(self.depreciation[j], 2),
-                          "book_value": _r(self.book_value[j], 2),
-                          "taxable_income": _r(self.taxable_income[j], 2),
-                          "tax": _r(self.tax[j], 2), "net": _r(self.net[j], 2)}
-                         for j in range(self.retention + 1)]}
-
-
 def cash_flow_table(k: int, price: float, S: np.ndarray, C: np.ndarray,
                     sched: dep.DepreciationSchedule, t: float, defender: bool) -> CashFlowTable:
     """The rows of keeping ``k`` years (scalar inputs; see ``CashFlowTable``).
@@ -200,136 +157,6 @@ def cash_flow_table(k: int, price: float, S: np.ndarray, C: np.ndarray,
         tax[0] = 0.0
     net = before + disposal + tax
     return CashFlowTable(k, before, disposal, d, book, taxable, tax, net)
-
-
-@dataclass(frozen=True)
-class AfterTaxAlternative:
-    """One alternative after tax: AW for every retention, its ESL and the cash-flow tables.
-
-    ``annual_worth`` is in the money the study states (see core.inflation);
-    ``annual_worth_constant`` the constant-money AW that sets the ESL and the
-    decision (the same array when the study has no then-current inflation).
-    Cash-flow tables are in then-current money when the study has inflation.
-    """
-
-    name: str
-    role: str
-    method: str
-    basis: float
-    book_value_0: float
-    initial: float
-    allowance: FloatArray
-    book_value: FloatArray
-    disposal: FloatArray
-    present_worth: FloatArray
-    annual_worth: FloatArray
-    annual_worth_constant: FloatArray
-    economic_life: int
-    annual_worth_at_economic_life: float
-    tables: tuple[CashFlowTable, ...]
-    rank: int = 0
-
-    @property
-    def equivalent_annual_cost(self) -> FloatArray:
-        return -self.annual_worth
-
-    def to_json(self) -> dict[str, Any]:
-        return {"annual_worth": _list(self.annual_worth),
-                "economic_life": int(self.economic_life),
-                "annual_worth_at_economic_life": _r(self.annual_worth_at_economic_life),
-                "rank": self.rank,
-                "annual_worth_constant_money": _list(self.annual_worth_constant),
-                "present_worth": _list(self.present_worth),
-                "depreciation_method": self.method, "tax_basis": _r(self.basis, 2),
-                "book_value_today": _r(self.book_value_0, 2),
-                "initial_outlay": _r(self.initial, 2),
-                "depreciation": _list(self.allowance, 2),
-                "book_value_at_disposal": _list(self.book_value, 2),
-                "after_tax_disposal": _list(self.disposal, 2),
-                "cash_flows": [tab.to_json() for tab in self.tables]}
-
-
-@dataclass(frozen=True)
-class AfterTaxResult:
-    """The after-tax study: rates, each alternative, options and both recommendations."""
-
-    tax_rate: float
-    after_tax_marr: float
-    rate: float
-    discount_rate: float
-    money: str
-    description: str
-    alternatives: tuple[AfterTaxAlternative, ...]
-    recommendation: Recommendation
-    before_tax_recommendation: Recommendation
-    study_period_options: tuple[StudyOption, ...]
-    before_tax_study_period_options: tuple[StudyOption, ...]
-
-    def alternative(self, name: str) -> AfterTaxAlternative:
-        for alt in self.alternatives:
-            if alt.name == name:
-                return alt
-        raise KeyError(name)
-
-    def to_json(self) -> dict[str, Any]:
-        return {"tax_rate": self.tax_rate, "after_tax_marr": self.after_tax_marr,
-                "rate_used": _r(self.rate, 10), "discount_rate": _r(self.discount_rate, 10),
-                "money": self.money, "conventions": self.description,
-                "alternatives": [{"name": a.name, "role": a.role,
-                                  "economic_life": a.economic_life,
-                                  "annual_worth_at_economic_life":
-                                      _r(a.annual_worth_at_economic_life),
-                                  "rank": a.rank} for a in self.alternatives],
-                "recommendation": self.recommendation.to_json(),
-                "study_period_options": [o.to_json() for o in self.study_period_options],
-                "before_tax_study_period_options":
-                    [o.to_json() for o in self.before_tax_study_period_options]}
-
-    def format_text(self) -> str:
-        from core.report import table
-        from core.study import money, years
-
-        out = [f"After tax: effective tax rate {self.tax_rate:.2%}, after-tax MARR "
-               f"{self.after_tax_marr:.2%}; AW in {self.money}.", self.description]
-        for alt in self.alternatives:
-            rows = []
-            for k in range(len(alt.annual_worth)):
-                mark = " *" if k + 1 == alt.economic_life else ""
-                rows.append([f"{k + 1}{mark}", money(alt.allowance[k]), money(alt.book_value[k]),
-                             money(alt.disposal[k]), money(alt.present_worth[k]),
-                             money(alt.annual_worth[k])])
-            price = "market value today" if alt.role == "defender" else "first cost"
-            out += ["", f"After tax, {alt.role} {alt.name} ({alt.method}, tax basis "
-                        f"{money(alt.basis)}, book value today {money(alt.book_value_0)}; "
-                        f"year-0 outlay after tax {money(alt.initial)}, from its {price})",
-                    table(["year k", "depreciation D_k", "book value at disposal",
-                           "after-tax disposal", "PW_k", "AW_k"], rows),
-                    f"(* after-tax economic service life: {years(alt.economic_life)}, AW "
-                    f"{money(alt.annual_worth_at_economic_life)})"]
-            tab = alt.tables[alt.economic_life - 1]
-            out += [f"After-tax cash flows of keeping {alt.name} {years(tab.retention)}:",
-                    table(["year", "before tax", "disposal", "depreciation", "book value",
-                           "taxable income", "tax", "net"],
-                          [[str(j), money(tab.before_tax[j]), money(tab.disposal[j]),
-                            money(tab.depreciation[j]), money(tab.book_value[j]),
-                            money(tab.taxable_income[j]), money(tab.tax[j]), money(tab.net[j])]
-                           for j in range(tab.retention + 1)])]
-        ranked = sorted(self.alternatives, key=lambda a: a.rank)
-        out += ["", "After-tax ranking at each economic service life:",
-                table(["rank", "alternative", "role", "ESL (years)", "AW at ESL"],
-                      [[str(a.rank), a.name, a.role, str(a.economic_life),
-                        money(a.annual_worth_at_economic_life)] for a in ranked])]
-        if self.study_period_options:
-            out += ["", "After-tax study-period options:",
-                    table(["defender years", "then challenger", "challenger years", "AW",
-                           "feasible"],
-                          [[str(o.defender_years), o.challenger or "-", str(o.challenger_years),
-                            money(o.annual_worth) if o.annual_worth is not None else "-",
-                            "yes" if o.feasible else f"no: {o.reason}"]
-                           for o in self.study_period_options])]
-        bt = self.before_tax_recommendation
-        out += ["", f"Before-tax recommendation: {bt.action.upper()}. {bt.reason}"]
-        return "\n".join(out)
 
 
 # --------------------------------------------------------------------------- the study
@@ -387,30 +214,8 @@ def decision_annual_worth(study: Study, alt: Alternative, price: ArrayLike | Non
     return s.present_worth * ap(decision, np.arange(1, alt.max_life + 1))
 
 
-def _alternative(study: Study, alt: Alternative, t: float, discount: float, decision: float,
-                 report: float) -> tuple[AfterTaxAlternative, dict[str, Any]]:
-    price, S, C = infl.then_current_arrays(study, alt)
-    sched = dep.alternative_schedule(alt)
-    defender = alt.role == "defender"
-    s = after_tax_annual_worth(price, S, C, sched.allowance, sched.book_value_0, t, discount,
-                               disposal_fraction=sched.disposal_fraction, defender=defender)
-    k = np.arange(1, alt.max_life + 1)
-    aw_decision = s.present_worth * ap(decision, k)
-    aw_report = s.present_worth * ap(report, k)
-    esl = int(economic_life(aw_decision))
-    tables = tuple(cash_flow_table(j, price, S, C, sched, t, defender)
-                   for j in range(1, alt.max_life + 1))
-    out = AfterTaxAlternative(
-        name=alt.name, role=alt.role, method=alt.depreciation.method if alt.depreciation else "",
-        basis=float(sched.basis), book_value_0=float(sched.book_value_0),
-        initial=float(s.initial), allowance=sched.allowance, book_value=s.book_value,
-        disposal=s.disposal, present_worth=s.present_worth, annual_worth=aw_report,
-        annual_worth_constant=aw_decision, economic_life=esl,
-        annual_worth_at_economic_life=float(aw_report[esl - 1]), tables=tables)
-    return out, {"price": price, "S": S, "C": C, "sched": sched}
-
-
-def _conventions(study: Study) -> str:
+def conventions(study: Study) -> str:
+    """The after-tax conventions sentence shown with the after-tax figures."""
     text = ("One effective tax rate on every flow (a loss is a credit against other income); "
             "gain or loss on disposal taxed at that rate; MACRS half-year rule in the year of "
             "disposal; straight line and declining balance use the full-year convention.")
@@ -421,57 +226,3 @@ def _conventions(study: Study) -> str:
                  f"are built in then-current money and discounted at the after-tax market rate "
                  f"{i_f:.2%} (real after-tax MARR {i:.2%}).")
     return text
-
-
-def analyse(study: Study, result: StudyResult) -> StudyResult:
-    """Add the after-tax study to ``result`` and make its recommendation the one given.
-
-    Sets each ``AlternativeResult.after_tax`` (an ``AfterTaxAlternative``),
-    ``result.after_tax`` (an ``AfterTaxResult``) and replaces
-    ``recommendation`` (basis "after-tax") and ``study_period_options`` with
-    the after-tax ones; ``before_tax_recommendation`` keeps the before-tax one.
-    """
-    from core.study import decide, solve_replacement_value
-
-    if study.tax is None:
-        return result
-    t = float(study.tax.rate)
-    decision, discount, report = rates(study)
-    built = {alt.name: _alternative(study, alt, t, discount, decision, report)
-             for alt in study.alternatives}
-    aw = {name: b[0].annual_worth_constant for name, b in built.items()}
-    d_alt = study.defender
-    d_in = built[d_alt.name][1]
-    k = np.arange(1, d_alt.max_life + 1)
-
-    # The replacement-value search asks for the defender's best AW at many trial market
-    # values; only the year-0 term depends on it, so the rest of after_tax_annual_worth
-    # is computed once (same operations in the same order: the same numbers).
-    sc = d_in["sched"]
-    running, tail = _after_tax_parts(d_in["S"], d_in["C"], sc.allowance, sc.book_value_0, t,
-                                     discount, sc.disposal_fraction)
-    ap_k = ap(decision, k)
-    b0, t_arr = np.asarray(sc.book_value_0, dtype=float), np.asarray(t, dtype=float)
-
-    def defender_best(mv: float) -> float:
-        p = np.asarray(mv, dtype=float)
-        initial = p - t_arr * (p - b0)
-        return float(np.max((-initial[..., None] + running + tail) * ap_k))
-
-    def rv(target: float) -> float | None:
-        return solve_replacement_value(defender_best, target, float(d_alt.price))
-
-    rec, options, _ = decide(study, aw, decision, "after-tax", rv)
-    order = sorted(aw, key=lambda n: -round(float(aw[n][built[n][0].economic_life - 1]), 2))
-    alts = {name: dataclasses.replace(b[0], rank=order.index(name) + 1)
-            for name, b in built.items()}
-    summary = AfterTaxResult(
-        tax_rate=t, after_tax_marr=float(study.tax.after_tax_marr), rate=decision,
-        discount_rate=discount, money=infl.money_label(study), description=_conventions(study),
-        alternatives=tuple(alts[a.name] for a in study.alternatives), recommendation=rec,
-        before_tax_recommendation=result.before_tax_recommendation,
-        study_period_options=tuple(options),
-        before_tax_study_period_options=result.study_period_options)
-    new_alts = tuple(dataclasses.replace(a, after_tax=alts[a.name]) for a in result.alternatives)
-    return dataclasses.replace(result, alternatives=new_alts, recommendation=rec,
-                               study_period_options=tuple(options), after_tax=summary)

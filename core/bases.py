@@ -15,8 +15,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
-from core.aftertax import AfterTaxResult
-from core.results import Recommendation, StudyOption, StudyResult
+from core.results import BasisResult, OneMoreYear, Recommendation, StudyOption, StudyResult
 
 Basis = Literal["before-tax", "after-tax"]
 
@@ -95,7 +94,13 @@ def _recommendation(r: Mapping[str, Any], basis: Basis) -> Recommendation:
                           r.get("replacement_value"), basis, str(r.get("reason") or ""),
                           str(r.get("best_challenger") or ""),
                           int(r.get("planned_defender_years") or 0),
-                          dict(r.get("one_more_year") or {}), r.get("study_period"))
+                          _one_more_year(r.get("one_more_year") or {}), r.get("study_period"))
+
+
+def _one_more_year(c: Mapping[str, Any]) -> OneMoreYear:
+    return OneMoreYear(int(c.get("year") or 1), float(c.get("defender_marginal_cost") or 0.0),
+                       float(c.get("challenger_annual_cost") or 0.0),
+                       bool(c.get("keep_next_year")))
 
 
 def basis_views(result: StudyResult | Mapping[str, Any]) -> tuple[BasisView, ...]:
@@ -120,26 +125,28 @@ def basis_views(result: StudyResult | Mapping[str, Any]) -> tuple[BasisView, ...
     return _from_json(result)
 
 
+def _alternatives(basis: BasisResult, before: BasisResult) -> tuple[BasisAlternative, ...]:
+    out = []
+    for a in basis.alternatives:
+        outlay = a.tax.initial if a.tax is not None else a.price
+        mv = before.alternative(a.name).market_values
+        out.append(BasisAlternative(a.name, a.role, tuple(float(v) for v in a.annual_worth),
+                                    int(a.economic_life), float(a.annual_worth_at_economic_life),
+                                    int(a.rank), float(outlay), tuple(float(v) for v in mv)))
+    return tuple(out)
+
+
 def _from_result(r: StudyResult) -> tuple[BasisView, ...]:
-    mv = {a.name: tuple(float(v) for v in a.market_values) for a in r.alternatives}
-    before = tuple(BasisAlternative(a.name, a.role, tuple(float(v) for v in a.annual_worth),
-                                    int(a.economic_life),
-                                    float(a.annual_worth_at_economic_life), int(a.rank),
-                                    float(a.price), mv[a.name])
-                   for a in r.alternatives)
+    bt = r.before_tax
+    before = _alternatives(bt, bt)
     at = r.after_tax
-    if not isinstance(at, AfterTaxResult):  # no tax (or a stand-in the views cannot read)
-        return (BasisView("before-tax", True, float(r.rate), before,
-                          tuple(r.study_period_options), r.recommendation),)
-    after = tuple(BasisAlternative(a.name, a.role, tuple(float(v) for v in a.annual_worth),
-                                   int(a.economic_life),
-                                   float(a.annual_worth_at_economic_life), int(a.rank),
-                                   float(a.initial), mv.get(a.name, ()))
-                  for a in at.alternatives)
-    return (BasisView("after-tax", True, float(at.rate), after, tuple(at.study_period_options),
-                      at.recommendation),
-            BasisView("before-tax", False, float(r.rate), before,
-                      tuple(at.before_tax_study_period_options), at.before_tax_recommendation))
+    if at is None:
+        return (BasisView("before-tax", True, float(bt.rate), before,
+                          tuple(bt.study_period_options), bt.recommendation),)
+    return (BasisView("after-tax", True, float(at.rate), _alternatives(at, bt),
+                      tuple(at.study_period_options), at.recommendation),
+            BasisView("before-tax", False, float(bt.rate), before,
+                      tuple(bt.study_period_options), bt.recommendation))
 
 
 def _from_json(d: Mapping[str, Any]) -> tuple[BasisView, ...]:

@@ -13,10 +13,13 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from core import demo, fleet_cli
 from core.errors import StudyError, error_line, escape_text
 from core.estimates import Study
-
-SQLITE_MAGIC = b"SQLite format 3\x00"
+from core.loading import load_studies
+from core.memo import cli as memo_cli
+from core.memo import trust
+from core.plan import cli as plan_cli
 
 
 class _Parser(argparse.ArgumentParser):
@@ -26,46 +29,13 @@ class _Parser(argparse.ArgumentParser):
         raise StudyError(self.prog, message)
 
 
-def load_studies(path: str | Path, year: int | None = None) -> list[Study]:
-    """Studies from a study JSON file or a workbook (each asset's current year, or ``year``)."""
-    file = Path(path)
-    if not file.exists():
-        raise StudyError(str(file), "no such file")
-    if file.is_dir():
-        raise StudyError(str(file), "is a folder, not a study file or workbook")
-    try:
-        with file.open("rb") as fh:
-            head = fh.read(16)
-    except OSError as exc:
-        raise StudyError(str(file), f"cannot read ({exc.strerror or exc})") from None
-    if head == SQLITE_MAGIC or file.suffix.lower() == ".tenure":
-        try:
-            workbook = importlib.import_module("core.workbook")
-        except ImportError:
-            raise StudyError(str(file), "workbooks are not supported by this build") from None
-        if year is None:
-            return workbook.studies_from_workbook(file)
-        with workbook.Workbook.open(file, write=False) as wb:
-            studies = [wb.study(a.tag, year) for a in wb.assets() if year in wb.years(a.tag)]
-        if not studies:
-            raise StudyError("--year", f"{file.name} holds no study of {year}")
-        return studies
-    if year is not None:
-        raise StudyError("--year", "applies to workbooks only (a study file has no years)")
-    from core.studyfile import load_study_file
-
-    return load_study_file(file)
-
-
 def _select(studies: list[Study], title: str | None, file: str | None = None,
             year: int | None = None) -> list[Study]:
     if title is None:
         return studies
     chosen = [s for s in studies if s.title == title]
     if not chosen and file is not None:  # a workbook's asset tag
-        from core.fleet_cli import tagged_studies
-
-        chosen = tagged_studies(file, title, year)
+        chosen = fleet_cli.tagged_studies(file, title, year)
     if not chosen:
         titles = "; ".join(s.title for s in studies)
         raise StudyError("--study", f"no study titled '{title}' (titles: {titles})")
@@ -91,16 +61,13 @@ def cmd_study(args: argparse.Namespace) -> int:
         sys.stdout.write(text)
         sys.stdout.write("\n]}\n")
         return 0
-    if len(studies) > 1:
-        from core.fleet import run_fleet
+    from core.study import run_studies
 
-        results = run_fleet(studies)
-    else:
-        from core.study import run_study
-
-        results = [run_study(s) for s in studies]
+    results = run_studies(studies)
     if args.json:
-        json.dump({"studies": [r.to_json() for r in results]}, sys.stdout, indent=2,
+        from core.jsonout import study_json
+
+        json.dump({"studies": [study_json(r) for r in results]}, sys.stdout, indent=2,
                   ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
     else:
@@ -123,10 +90,10 @@ def cmd_export(args: argparse.Namespace) -> int:
         raise StudyError("-o", "the output must end in .csv or .xlsx")
     if args.table not in TABLES:
         raise StudyError("--table", f"must be one of {', '.join(TABLES)}")
-    from core.study import run_study
+    from core.study import run_studies
 
-    chosen = _select(load_studies(args.file, args.year), args.study, args.file, args.year)
-    results = [run_study(s) for s in chosen]
+    results = run_studies(_select(load_studies(args.file, args.year), args.study, args.file,
+                                  args.year))
     from core.currency import workbook_currency
 
     currency = workbook_currency(args.file)
@@ -201,11 +168,8 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--year", type=int, default=None, metavar="YEAR",
                         help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
-    for module in ("core.memo.cli", "core.memo.trust", "core.demo", "core.plan.cli", "core.fleet_cli"):
-        try:
-            importlib.import_module(module).register(sub)
-        except ImportError:
-            pass
+    for module in (memo_cli, trust, demo, plan_cli, fleet_cli):
+        module.register(sub)
     return parser
 
 

@@ -1,7 +1,7 @@
 """How amounts are shown: one currency per workbook or study, the same in every view.
 
 The window, the CLI text, the export and the memo all show money with
-:func:`format_money` and the symbol from :func:`currency_symbol`, so an amount reads
+:func:`format_money` (``core.text.money``, the one money format) and the symbol from :func:`currency_symbol`, so an amount reads
 the same everywhere ("-£2,215"). A workbook keeps its currency in its ``currency``
 meta entry (chosen once); a study file, or a workbook without one, uses
 :data:`DEFAULT_CURRENCY`. Three-letter codes that have a common symbol are shown
@@ -10,8 +10,9 @@ as that symbol; any other code is shown as written ("CHF 1,250").
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
+
+from core.text import money
 
 DEFAULT_CURRENCY = "£"
 SYMBOLS = {"GBP": "£", "USD": "$", "EUR": "€", "JPY": "¥", "INR": "₹", "KRW": "₩",
@@ -44,15 +45,7 @@ def format_money(value: float | None, symbol: str = "", decimals: int = 0) -> st
     >>> format_money(1250, "CHF"), format_money(None, "£"), format_money(12.345, "$", 2)
     ('CHF 1,250', '', '$12.35')
     """
-    if value is None:
-        return ""
-    v = float(value)
-    if not math.isfinite(v):
-        return "n/a"
-    text = f"{abs(v):,.{decimals}f}"
-    negative = v < 0 and text.strip("0.,") != ""
-    sep = " " if len(symbol) > 1 else ""
-    return ("-" if negative else "") + (symbol + sep if symbol else "") + text
+    return money(value, symbol, decimals, missing="", not_finite="n/a")
 
 
 def workbook_currency(path: str | Path | None, default: str = DEFAULT_CURRENCY) -> str:

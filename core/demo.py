@@ -103,7 +103,11 @@ def _build(out: Path, src: Path) -> None:
         import_file,
         yearly_totals,
     )
+    from core.jsonout import study_json
     from core.study import run_study
+
+    # core.workbook is imported where a workbook is made or opened, so `tenure study` on a
+    # study file registers this command without loading it.
 
     fleet = load_fleet(src)
     year = int(fleet["year"])
@@ -128,9 +132,9 @@ def _build(out: Path, src: Path) -> None:
         for a in fleet["assets"]:
             for prev in a.get("previous", []):
                 study = asset_study(fleet, a, prev["defender"])
-                wb.save_study(a["tag"], int(prev["year"]), study, run_study(study).to_json())
+                wb.save_study(a["tag"], int(prev["year"]), study, study_json(run_study(study)))
             study = asset_study(fleet, a)
-            wb.save_study(a["tag"], year, study, run_study(study).to_json())
+            wb.save_study(a["tag"], year, study, study_json(run_study(study)))
         in_service = {a.tag: a.in_service for a in wb.assets()}
         costs = import_file(src / "cost_history.csv",
                             ColumnMapping(tag="Asset", date="Date", amount="Amount", kind="Kind"),
@@ -156,6 +160,7 @@ def _build(out: Path, src: Path) -> None:
 def demo_workbook_path() -> Path:
     """The user's copy of the demo workbook (built on first use) in the user data folder."""
     from platformdirs import user_data_dir
+
 
     folder = Path(user_data_dir("tenure", appauthor=False))
     folder.mkdir(parents=True, exist_ok=True)

@@ -12,6 +12,8 @@ from typing import Literal
 
 import numpy as np
 
+from core.cashflows import declining_market_values, geometric_costs, gradient_costs
+
 Role = Literal["defender", "challenger"]
 DepreciationMethod = Literal["straight_line", "macrs", "declining_balance"]
 MoneyBasis = Literal["constant", "then-current"]
@@ -33,7 +35,7 @@ class MarketValues:
         if self.values is not None:
             return np.asarray(self.values[:life], dtype=float)
         rate = 0.0 if self.decline_rate is None else self.decline_rate
-        return price * np.power(1.0 - rate, np.arange(1, life + 1, dtype=float))
+        return declining_market_values(price, rate, np.arange(1, life + 1, dtype=float))
 
 
 @dataclass(frozen=True, slots=True)
@@ -61,8 +63,8 @@ class OperatingCosts:
         years = np.arange(life, dtype=float)
         first = 0.0 if self.first is None else self.first
         if self.growth is not None:
-            return first * np.power(1.0 + self.growth, years)
-        return first + years * (0.0 if self.gradient is None else self.gradient)
+            return geometric_costs(first, self.growth, years)
+        return gradient_costs(first, 0.0 if self.gradient is None else self.gradient, years)
 
 
 @dataclass(frozen=True, slots=True)

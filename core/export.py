@@ -36,6 +36,8 @@ from core.bases import BasisView, basis_views
 from core.currency import DEFAULT_CURRENCY, currency_symbol
 from core.errors import StudyError
 from core.fsutil import atomic_write_bytes, is_disk_full, remove_leftovers
+from core.jsonout import study_json
+from core.results import StudyResult
 
 TABLES = ("summary", "annual_worth", "alternatives", "study_period_options", "after_tax_detail",
           "summary_before_tax", "annual_worth_before_tax", "study_period_options_before_tax",
@@ -68,15 +70,15 @@ def escape_cell(value: Any) -> Any:
     return "'" + text if text.startswith(_DANGEROUS) else text
 
 
-def _as_json(result: Any) -> dict[str, Any]:
-    return result.to_json() if hasattr(result, "to_json") else dict(result)
+def _as_json(result: StudyResult | dict[str, Any]) -> dict[str, Any]:
+    return study_json(result) if isinstance(result, StudyResult) else dict(result)
 
 
 def _results(results: Any) -> list[Any]:
     """Each study's result object (or its JSON dict) from one, several or {"studies": [...]}."""
     if isinstance(results, dict) and "studies" in results:
         return [dict(r) for r in results["studies"]]
-    if isinstance(results, dict) or hasattr(results, "to_json"):
+    if isinstance(results, (dict, StudyResult)):
         return [results]
     return list(results)
 

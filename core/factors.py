@@ -12,6 +12,8 @@ Reference: the standard factor definitions of engineering economy (notation
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
@@ -161,3 +163,56 @@ def pa_geometric(g: ArrayLike, i: ArrayLike, n: ArrayLike) -> FloatArray:
     diff = np.where(equal, 1.0, rate - growth)
     value = (1.0 - np.power((1.0 + growth) / (1.0 + rate), periods)) / diff
     return np.where(equal, periods / (1.0 + rate), value)
+
+
+@dataclass(frozen=True, slots=True)
+class FactorTable:
+    """The four factors every AW needs, for k = 1..n along the last axis.
+
+    ``discount`` (P/F,i,k), ``annuity`` (P/A,i,k), ``capital_recovery`` (A/P,i,k) and
+    ``sinking_fund`` (A/F,i,k); each (..., n) for a ``rate`` of shape (...).
+    """
+
+    discount: FloatArray
+    annuity: FloatArray
+    capital_recovery: FloatArray
+    sinking_fund: FloatArray
+
+    def head(self, n: int) -> FactorTable:
+        """The factors for k = 1..n only."""
+        return FactorTable(self.discount[..., :n], self.annuity[..., :n],
+                           self.capital_recovery[..., :n], self.sinking_fund[..., :n])
+
+
+def factor_table(i: ArrayLike, n: int) -> FactorTable:
+    """(P/F), (P/A), (A/P) and (A/F) at rate(s) ``i`` for k = 1..n, two powers per rate.
+
+    The floating-point steps of ``pf``, ``pa``, ``ap`` and ``af`` (every value is bit for
+    bit theirs), but the (1+i)^-k of (P/A) is the (P/F) table itself:
+
+        (P/F) = (1+i)^-k,  (P/A) = (1 - (P/F))/i,  (A/P) = 1/(P/A),
+        (A/F) = 1/(F/A) = i/((1+i)^k - 1);   at i = 0: (P/A) = (F/A) = k.
+
+    >>> t = factor_table([0.10, 0.0], 2)
+    >>> t.capital_recovery.round(4).tolist(), t.sinking_fund.round(4).tolist()
+    ([[1.1, 0.5762], [1.0, 0.5]], [[1.0, 0.4762], [1.0, 0.5]])
+    >>> bool(t.annuity[0, 1] == pa(0.10, 2)) and bool(t.sinking_fund[0, 1] == af(0.10, 2))
+    True
+    """
+    rate = _check_rate(i)
+    periods = np.arange(1, n + 1, dtype=float)
+    col = rate[..., None]
+    disc = np.power(1.0 + col, -periods)
+    zero = _zero_mask(col)
+    safe = np.where(zero, 1.0, col)
+    annuity = np.subtract(1.0, np.power(1.0 + safe, -periods) if zero.any() else disc)
+    annuity /= safe
+    fund = np.power(1.0 + safe, periods)
+    fund -= 1.0
+    fund /= safe
+    if zero.any():
+        annuity = np.where(zero, periods, annuity)
+        fund = np.where(zero, periods, fund)
+    cap = np.divide(1.0, annuity)
+    sink = np.divide(1.0, fund, out=fund)
+    return FactorTable(disc, annuity, cap, sink)

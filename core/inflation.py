@@ -34,12 +34,10 @@ economy.
 
 from __future__ import annotations
 
-import dataclasses
-
 import numpy as np
 from numpy.typing import ArrayLike
 
-from core.estimates import Alternative, Study
+from core.estimates import Alternative, Inflation, Study
 from core.factors import FloatArray, ap
 
 
@@ -155,8 +153,6 @@ def reporting_factor(study: Study, real: float, n: int) -> FloatArray:
 
 
 def _demo_study(basis: str) -> Study:
-    from core.estimates import Inflation
-
     a = Alternative("A", "defender", 1.0, 1)
     return Study("s", 0.10, a, (a,), inflation=Inflation(0.05, basis))  # type: ignore[arg-type]
 
@@ -194,30 +190,3 @@ def describe(study: Study) -> str:
         text += (f" After tax: after-tax MARR {at:.2%} is real (market "
                  f"{float(market_rate(at, f)):.2%}); depreciation is in then-current money.")
     return text
-
-
-def restate(study: Study, result):  # noqa: ANN001, ANN201 - StudyResult in, StudyResult out
-    """Restate a before-tax result computed in constant money in the study's own money.
-
-    Only then-current studies change: AW, capital recovery and the operating
-    part by ``reporting_factor``; marginal costs and market values by
-    (1+f)^j.  ESLs, the ranking, the recommendation and the study-period
-    options stay as decided, in constant money.
-    """
-    if study.inflation is None or study.inflation.estimates == "constant":
-        return result
-    real = float(result.rate)
-    f = study.inflation.rate
-    alts = []
-    for alt, res in zip(study.alternatives, result.alternatives, strict=True):
-        factor = reporting_factor(study, real, alt.max_life)
-        alts.append(dataclasses.replace(
-            res,
-            market_values=alt.market_value_array(),
-            annual_worth=res.annual_worth * factor,
-            capital_recovery=res.capital_recovery * factor,
-            operating=res.operating * factor,
-            marginal_cost=to_then_current(res.marginal_cost, f),
-            annual_worth_at_economic_life=float(res.annual_worth_at_economic_life
-                                                * factor[res.economic_life - 1])))
-    return dataclasses.replace(result, alternatives=tuple(alts))

@@ -1,328 +1,306 @@
-"""The replacement study (docs/method.md §3): ESLs, the decision, study-period options, replacement value.
+"""The replacement study (docs/method.md §3): orchestration of kernels and decision rules.
 
-``run_study`` is the one entry point; ``decide`` holds the decision rules and
-works from AW arrays alone, so the after-tax analysis reuses it unchanged.
+``run_studies(studies)`` is the one entry point; ``run_study(s)`` is
+``run_studies([s])[0]``.  A fleet is a batch of studies: every study goes through the same
+path, so a study's figures do not depend on what else is in the batch.
+
+1. ``core.batch.stack`` pads every alternative of every study into (M, N) arrays with a
+   mask; ``core.batch.schedules`` builds S, Op and X (``core.cashflows`` kernels).
+2. Before tax, in one numpy pass over the batch: estimates stated in then-current money
+   are deflated (``core.inflation.to_constant``), the factor tables (``core.factors``) and
+   AW / CR / operating / MC (``core.annual_worth``) are computed at the real MARR, and
+   ``core.decision.decide_batch`` applies every rule.
+3. Per study: the typed result (``core.results``), the study-period options
+   (``core.decision.period_options``), AW restated in then-current money when the
+   estimates are stated so (``core.inflation.reporting_factor``); with ``tax`` the
+   after-tax basis (``core.aftertax`` and ``core.depreciation`` kernels, the same
+   decision functions); with ``uncertainty`` the risk analysis (``core.risk``).
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
-from core.annual_worth import annual_worth_schedule, economic_life
+from core import aftertax, inflation
+from core import depreciation as dep
+from core.annual_worth import annual_worth_parts, marginal_cost
+from core.batch import Batch, schedules, stack
+from core.decision import (
+    BatchDecision,
+    decide_batch,
+    market_value_favours,
+    no_period_recommendation,
+    option_grid,
+    period_options,
+    period_recommendation,
+)
 from core.errors import StudyError
-from core.estimates import Alternative, Study
-from core.factors import ap, pa, pf
-from core.results import AlternativeResult, Basis, Recommendation, StudyOption, StudyResult
-from core.studyfile import fingerprint
-
-CENT = 0.005
-
-
-def money(x: float) -> str:
-    """Format an amount for a sentence: thousands separators, no decimals, minus sign kept.
-
-    >>> money(-12345.6), money(0.4)
-    ('-12,346', '0')
-    """
-    value = round(float(x))
-    return f"{value:,.0f}" if value != 0 else "0"
-
-
-def years(n: int) -> str:
-    """'1 year', '3 years'.
-
-    >>> years(1), years(4)
-    ('1 year', '4 years')
-    """
-    return f"{n} year" if n == 1 else f"{n} years"
+from core.estimates import Study
+from core.factors import FactorTable, FloatArray, ap, factor_table
+from core.results import (
+    AlternativeResult,
+    Basis,
+    BasisResult,
+    OneMoreYear,
+    Recommendation,
+    RiskResult,
+    StudyOption,
+    StudyResult,
+    TaxDetail,
+    TaxTerms,
+)
+from core.technology import has_technology, technology_plan
 
 
-def study_rate(study: Study) -> float:
-    """The interest rate the before-tax study discounts at (the MARR; see core.inflation)."""
-    if study.inflation is not None:
-        from core import inflation
+@dataclass(frozen=True)
+class _BeforeTax:
+    """The before-tax arrays of a whole batch (rows as in ``Batch``)."""
 
-        return inflation.before_tax_rate(study)
-    return study.marr
-
-
-def alternative_arrays(study: Study, alt: Alternative) -> tuple[float, np.ndarray, np.ndarray]:
-    """(price, S_1..S_n, C_j + X_j) in the money the study discounts in."""
-    if study.inflation is not None:
-        from core import inflation
-
-        return inflation.before_tax_arrays(study, alt)
-    return alt.price, alt.market_value_array(), alt.cost_array()
-
-
-def keep_values(defender_aw: np.ndarray, challenger_aw: float | np.ndarray,
-                rate: float | np.ndarray) -> np.ndarray:
-    """Worth of keeping the defender j = 0..n years, then the challenger repeated forever,
-    relative to replacing now:  V_j = PW_D(j) - AW_c (P/A,i,j),  V_0 = 0.
-
-    Vectorised over leading batch dimensions: ``defender_aw`` (..., n) with
-    ``challenger_aw`` and ``rate`` (...) gives (..., n + 1) (the capital plan values a
-    whole fleet at once; NaN padding stays NaN).
-
-    >>> keep_values(np.array([-100.0, -120.0]), -110.0, 0.0).round(2).tolist()
-    [0.0, 10.0, -20.0]
-    >>> keep_values(np.array([[-100.0], [-90.0]]), np.array([-110.0, -80.0]), 0.0).tolist()
-    [[0.0, 10.0], [0.0, -10.0]]
-    """
-    d = np.asarray(defender_aw, dtype=float)
-    years = np.arange(1, d.shape[-1] + 1)
-    c = np.asarray(challenger_aw, dtype=float)
-    i = np.asarray(rate, dtype=float)
-    if d.ndim > 1:
-        c, i = c[..., None], i[..., None]
-    factor = pa(i, years)
-    pw = d * factor
-    return np.concatenate([np.zeros(d.shape[:-1] + (1,)), pw - c * factor], axis=-1)
+    S: FloatArray            # market values, study money
+    Op: FloatArray            # operating costs, study money
+    X: FloatArray            # one-off costs, study money
+    annual_worth: FloatArray  # constant money at the real MARR
+    capital_recovery: FloatArray
+    operating: FloatArray
+    marginal_cost: FloatArray
+    present_worth: FloatArray
+    negative_s: list[bool]
+    negative_c: list[bool]
+    decision: BatchDecision
 
 
-def study_period_options(study: Study, aw: Mapping[str, np.ndarray], rate: float,
-                         period: int) -> list[StudyOption]:
-    """Every "keep the defender j years, then challenger c for T-j years" option.
-
-    AW_option = [PW_D(j) + (P/F,i,j) PW_c(T-j)] (A/P,i,T), PW_x(k) = AW_x,k (P/A,i,k).
-    """
-    defender = study.defender
-    d_aw = aw[defender.name]
-    options: list[StudyOption] = []
-
-    def pw_d(j: int) -> float:
-        return 0.0 if j == 0 else float(d_aw[j - 1] * pa(rate, j))
-
-    last_j = min(defender.max_life, period)
-    for j in range(0, last_j + 1):
-        rest = period - j
-        if rest == 0:
-            value = pw_d(j) * float(ap(rate, period))
-            options.append(StudyOption(j, None, 0, value, True,
-                                       f"keep {defender.name} for the whole study period"))
-            continue
-        for ch in study.challengers:
-            if rest > ch.max_life:
-                options.append(StudyOption(
-                    j, ch.name, rest, None, False,
-                    f"{ch.name} lasts at most {ch.max_life} years; {rest} are needed"))
-                continue
-            pw_c = float(aw[ch.name][rest - 1] * pa(rate, rest))
-            value = (pw_d(j) + float(pf(rate, j)) * pw_c) * float(ap(rate, period))
-            options.append(StudyOption(j, ch.name, rest, value, True, ""))
-    if defender.max_life < period:
-        options.append(StudyOption(
-            period, None, 0, None, False,
-            f"{defender.name} lasts at most {defender.max_life} years; {period} are needed"))
-    return options
+def _repeat(table: FactorTable, counts: np.ndarray) -> FactorTable:
+    return FactorTable(*(np.repeat(a, counts, axis=0) for a in (
+        table.discount, table.annuity, table.capital_recovery, table.sinking_fund)))
 
 
-def _best_challenger(study: Study, aw_at_esl: Mapping[str, float]) -> str:
-    best = study.challengers[0].name
-    for ch in study.challengers[1:]:
-        if round(aw_at_esl[ch.name], 2) > round(aw_at_esl[best], 2):
-            best = ch.name
-    return best
+def _before_tax(batch: Batch) -> _BeforeTax:
+    S, Op, X = schedules(batch)
+    C = Op + X
+    S_c, C_c = S, C
+    tc = batch.then_current
+    if tc.any():  # constant money: the decision basis (docs/method.md §4)
+        S_c, C_c = S.copy(), C.copy()
+        S_c[tc] = inflation.to_constant(S[tc], batch.inflation[tc])
+        C_c[tc] = inflation.to_constant(C[tc], batch.inflation[tc])
+    study_rate = batch.marr[batch.first]     # core.inflation.before_tax_rate: the real MARR
+    table = factor_table(study_rate, batch.width)
+    rows = _repeat(table, batch.counts)
+    aw, cr, op = annual_worth_parts(batch.price, S_c, C_c, rows)
+    mc = marginal_cost(batch.price, S_c, C_c, batch.marr)
+    mask = batch.mask
+    decision = decide_batch(aw, mask, batch.first, batch.counts, table.annuity,
+                            table.capital_recovery, batch.price[batch.first])
+    return _BeforeTax(S, Op, X, aw, cr, op, mc, aw / rows.capital_recovery,
+                      np.any(mask & (S < 0), axis=1).tolist(),
+                      np.any(mask & (C < 0), axis=1).tolist(), decision)
 
 
-def no_period_recommendation(study: Study, best: str, esl: Mapping[str, int],
-                             aw_at_esl: Mapping[str, float], rv: float | None, planned: int,
-                             check: dict, basis: Basis = "before-tax") -> Recommendation:
-    """Keep or replace without a study period: the best challenger at its ESL against the
-    defender at its ESL (replace only when better by more than a cent), with its sentence."""
-    d_name = study.defender.name
-    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
-    tag = " (after tax)" if basis == "after-tax" else ""
-    if round(c_aw, 2) > round(d_best, 2):
-        reason = (f"Replace {d_name} now with {best}: its equivalent annual cost{tag} of "
-                  f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
-                  f"{money(c_aw - d_best)} a year less than the defender's best, "
-                  f"{money(-d_best)} over {years(esl[d_name])}.")
-        return Recommendation("replace", best, None, rv, basis, reason, best, 0, check)
-    reason = (f"Keep {d_name}: its equivalent annual cost{tag} of {money(-d_best)} over "
-              f"its best remaining life of {years(esl[d_name])} is "
-              f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
-              f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
-              f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
-    return Recommendation("keep", None, None, rv, basis, reason, best, max(planned, 1), check)
-
-
-def decide(study: Study, aw: Mapping[str, np.ndarray], rate: float, basis: Basis,
-           replacement_value: Callable[[float], float | None] | None = None,
-           ) -> tuple[Recommendation, list[StudyOption], dict[str, int]]:
-    """The recommendation from each alternative's AW array (docs/method.md §3).
-
-    No study period: the best challenger at its ESL against the defender at its
-    ESL; replace now only if the challenger is better by more than a cent.  The
-    one-more-year check compares the defender's marginal cost next year
-    (MC_1 = -AW_D,1) with the best challenger's EAC.  ``planned_defender_years``
-    is the j maximising ``keep_values`` (the year to replace under today's
-    estimates).  With a study period the best feasible option wins.
-
-    Returns the recommendation, the study-period options and each ESL.
-    """
-    esl = {name: int(economic_life(values)) for name, values in aw.items()}
-    aw_at_esl = {name: float(aw[name][esl[name] - 1]) for name in aw}
-    defender = study.defender
-    d_name = defender.name
-    best = _best_challenger(study, aw_at_esl)
-    c_aw = aw_at_esl[best]
-    rv = replacement_value(c_aw) if replacement_value is not None else None
-
-    values = keep_values(aw[d_name], c_aw, rate)
-    planned = int(np.argmax(np.round(values, 2)))
-    mc_next = -float(aw[d_name][0])
-    keep_next = mc_next < -c_aw - CENT
-    check = {"year": 1, "defender_marginal_cost": mc_next,
-             "challenger_annual_cost": -c_aw, "keep_next_year": bool(keep_next)}
-    tag = " (after tax)" if basis == "after-tax" else ""
-    options: list[StudyOption] = []
-    period = study.study_period
-    if period is None:
-        rec = no_period_recommendation(study, best, esl, aw_at_esl, rv, planned, check, basis)
-        return rec, options, esl
-
-    options = study_period_options(study, aw, rate, period)
-    feasible = [o for o in options if o.feasible and o.annual_worth is not None]
-    if not feasible:
-        raise StudyError("study_period", f"no option fills {years(period)}: the defender lasts "
-                         f"at most {years(defender.max_life)} and no challenger covers the rest")
-    top = feasible[0]
-    for option in feasible[1:]:
-        if round(option.annual_worth, 2) > round(top.annual_worth, 2):
-            top = option
-    if top.challenger is None:
-        reason = (f"Keep {d_name} for the whole {period}-year study period: that option's "
-                  f"annual worth{tag} of {money(top.annual_worth)} is the best of "
-                  f"{len(feasible)} feasible options.")
-        rec = Recommendation("keep", None, period, rv, basis, reason, best, period, check, period)
-    elif top.defender_years == 0:
-        reason = (f"Replace {d_name} now with {top.challenger} for the {period}-year study "
-                  f"period: annual worth{tag} {money(top.annual_worth)}, the best of "
-                  f"{len(feasible)} feasible options.")
-        rec = Recommendation("replace", top.challenger, 0, rv, basis, reason, best, 0, check,
-                             period)
-    else:
-        reason = (f"Keep {d_name} {top.defender_years} more year"
-                  f"{'s' if top.defender_years != 1 else ''}, then replace it with "
-                  f"{top.challenger} for the remaining {top.challenger_years} years of the "
-                  f"{period}-year study period: annual worth{tag} {money(top.annual_worth)}, "
-                  f"the best of {len(feasible)} feasible options.")
-        rec = Recommendation("keep", top.challenger, top.defender_years, rv, basis, reason,
-                             best, top.defender_years, check, period)
-    return rec, options, esl
-
-
-def solve_replacement_value(best_aw: Callable[[float], float], target: float,
-                            start: float) -> float | None:
-    """The price P at which ``best_aw(P) == target`` (brentq on a decreasing function).
-
-    >>> round(solve_replacement_value(lambda p: -0.2 * p - 100.0, -300.0, 0.0), 6)
-    1000.0
-    """
-    from scipy.optimize import brentq  # imported here: scipy is slow to load at start-up
-
-    def gap(p: float) -> float:
-        return best_aw(p) - target
-
-    scale = max(abs(start), abs(target), 1000.0)
-    lo, hi = start - scale, start + scale
-    for _ in range(60):
-        if gap(lo) > 0 > gap(hi):
-            break
-        lo -= scale
-        hi += scale
-        scale *= 2.0
-    else:
-        return None
-    return float(brentq(gap, lo, hi, xtol=1e-6, rtol=1e-12, maxiter=200))
-
-
-def _warnings(study: Study, arrays: Mapping[str, tuple[float, np.ndarray, np.ndarray]]
-              ) -> list[str]:
+def _warnings(study: Study, S: FloatArray, rows: range, negative_s: list[bool],
+              negative_c: list[bool]) -> tuple[str, ...]:
     notes = []
-    for alt in study.alternatives:
-        price, s, c = arrays[alt.name]
-        if alt.role == "defender" and price < 0:
+    for alt, r in zip(study.alternatives, rows, strict=True):
+        if alt.role == "defender" and alt.price < 0:
             notes.append(f"{alt.name}: market value today is negative (a net removal cost).")
-        negative = [k + 1 for k, v in enumerate(s) if v < 0]
-        if negative:
+        if negative_s[r]:
+            negative = np.flatnonzero(S[r, :alt.max_life] < 0)
             notes.append(f"{alt.name}: market value is negative in year(s) "
-                         f"{', '.join(map(str, negative))} (a net removal cost).")
-        if np.any(c < 0):
+                         f"{', '.join(str(int(j) + 1) for j in negative)} (a net removal cost).")
+        if negative_c[r]:
             notes.append(f"{alt.name}: some yearly costs are negative (net income).")
     if study.marr < 0:
         notes.append("MARR is negative.")
-    return notes
+    return tuple(notes)
 
 
-def run_study(study: Study) -> StudyResult:
-    """Compute every AW, ESL, the recommendation, study-period options and the replacement value.
+def _recommend(study: Study, aw: Sequence[FloatArray], esl: Sequence[int],
+               at_esl: Sequence[float], best: int, replace: bool, rv: float,
+               planned: int, check: OneMoreYear, rate: float, basis: Basis,
+               ) -> tuple[Recommendation, tuple[StudyOption, ...], int | None]:
+    """The recommendation of one study on one basis (``aw`` per alternative, in order), its
+    study-period options and the index of the best option."""
+    names = [a.name for a in study.alternatives]
+    best_name = names[best]
+    value = None if np.isnan(rv) else rv
+    period = study.study_period
+    if period is None:
+        return no_period_recommendation(
+            names[0], best_name, dict(zip(names, esl, strict=True)),
+            dict(zip(names, at_esl, strict=True)), replace, value, planned, check, basis), (), None
+    d = study.defender
+    grid = option_grid(period, (d.name, d.max_life),
+                       [(c.name, c.max_life) for c in study.challengers])
+    table = factor_table(rate, max(period, *(a.max_life for a in study.alternatives)))
+    values = period_options(grid, aw[0], aw[1:], table)
+    return period_recommendation(d.name, d.max_life, names[1:], grid, values, best_name, value,
+                                 check, basis)
+
+
+def _before_tax_basis(study: Study, s: int, batch: Batch, bt: _BeforeTax,
+                      lists: dict[str, list]) -> BasisResult:
+    rows = batch.rows(s)
+    dec = bt.decision
+    esl = lists["esl"][rows.start:rows.stop]
+    at = lists["at"][rows.start:rows.stop]
+    rank = lists["rank"][rows.start:rows.stop]
+    rate = lists["marr"][rows.start]
+    aw_rows = [bt.annual_worth[r, :alt.max_life]
+               for r, alt in zip(rows, study.alternatives, strict=True)]
+    check = OneMoreYear(1, lists["mc"][s], -lists["target"][s], lists["keep"][s])
+    rec, options, best_option = _recommend(study, aw_rows, esl, at, lists["best"][s] - rows.start,
+                              lists["replace"][s], lists["rv"][s], lists["planned"][s], check,
+                              rate, "before-tax")
+    then_current = study.inflation is not None and study.inflation.estimates == "then-current"
+    alts = []
+    for j, (alt, r) in enumerate(zip(study.alternatives, rows, strict=True)):
+        k = alt.max_life
+        aw, cr, op = aw_rows[j], bt.capital_recovery[r, :k], bt.operating[r, :k]
+        mc = bt.marginal_cost[r, :k]
+        at_j = at[j]
+        if then_current:  # report in the money the study states (docs/method.md §4)
+            assert study.inflation is not None
+            factor = inflation.reporting_factor(study, rate, k)
+            aw_rep, cr, op = aw * factor, cr * factor, op * factor
+            mc = inflation.to_then_current(mc, study.inflation.rate)
+            at_j = float(at_j * factor[esl[j] - 1])
+        else:
+            aw_rep = aw
+        alts.append(AlternativeResult(
+            name=alt.name, role=alt.role, price=lists["price"][r], max_life=k,
+            market_values=bt.S[r, :k], operating_costs=bt.Op[r, :k], extra_costs=bt.X[r, :k],
+            annual_worth=aw_rep, annual_worth_constant=aw, capital_recovery=cr, operating=op,
+            marginal_cost=mc, present_worth=bt.present_worth[r, :k], economic_life=esl[j],
+            annual_worth_at_economic_life=at_j, rank=rank[j]))
+    return BasisResult(basis="before-tax", rate=rate, money=inflation.money_label(study),
+                       alternatives=tuple(alts), recommendation=rec, one_more_year=check,
+                       study_period_options=options, best_option=best_option,
+                       keep_values=dec.keep_values[s, :study.defender.max_life + 1],
+                       replacement_value_favours=market_value_favours(
+                           study.defender.price, rec.replacement_value), tax=None)
+
+
+def _after_tax_basis(study: Study) -> BasisResult:
+    """The after-tax basis of one study (docs/method.md §4): flows in then-current money
+    at the after-tax market rate, ESLs and the decision in constant money at the real
+    after-tax MARR, AW reported in the money the study states."""
+    assert study.tax is not None
+    t = float(study.tax.rate)
+    decision_rate, discount, report = aftertax.rates(study)
+    alts = study.alternatives
+    n = max(a.max_life for a in alts)
+    aw_dec = np.zeros((len(alts), n))
+    parts = []
+    for j, alt in enumerate(alts):
+        price, S, C = inflation.then_current_arrays(study, alt)
+        sched = dep.alternative_schedule(alt)
+        defender = alt.role == "defender"
+        s = aftertax.after_tax_annual_worth(
+            price, S, C, sched.allowance, sched.book_value_0, t, discount,
+            disposal_fraction=sched.disposal_fraction, defender=defender)
+        k = np.arange(1, alt.max_life + 1)
+        aw_decision = s.present_worth * ap(decision_rate, k)
+        aw_dec[j, :alt.max_life] = aw_decision
+        tables = tuple(aftertax.cash_flow_table(y, price, S, C, sched, t, defender)
+                       for y in range(1, alt.max_life + 1))
+        detail = TaxDetail(method=alt.depreciation.method if alt.depreciation else "",
+                           tax_basis=float(sched.basis), book_value_0=float(sched.book_value_0),
+                           initial=float(s.initial), allowance=sched.allowance,
+                           book_value=s.book_value, disposal=s.disposal, tables=tables)
+        parts.append((price, aw_decision, s.present_worth * ap(report, k), s.present_worth,
+                      detail))
+    lives = np.array([a.max_life for a in alts])
+    mask = np.arange(1, n + 1)[None, :] <= lives[:, None]
+    table = factor_table(decision_rate, n)
+    dec = decide_batch(aw_dec, mask, np.array([0], dtype=np.intp),
+                       np.array([len(alts)], dtype=np.intp), table.annuity[None, :],
+                       (1.0 - t) * table.capital_recovery[None, :],
+                       np.array([float(study.defender.price)]))
+    esl = dec.economic_life.tolist()
+    at = dec.at_esl.tolist()
+    target = float(dec.target[0])
+    mc_next = float(dec.marginal_cost_next[0])
+    check = OneMoreYear(1, mc_next, -target, bool(dec.keep_next_year[0]))
+    rec, options, best_option = _recommend(study, [p[1] for p in parts], esl, at, int(dec.best[0]),
+                              bool(dec.replace[0]), float(dec.replacement_value[0]),
+                              int(dec.planned[0]), check, decision_rate, "after-tax")
+    results = []
+    for j, (alt, (price, aw_decision, aw_report, pw, detail)) in enumerate(
+            zip(alts, parts, strict=True)):
+        results.append(AlternativeResult(
+            name=alt.name, role=alt.role, price=float(price), max_life=alt.max_life,
+            market_values=alt.market_value_array(), operating_costs=alt.operating_cost_array(),
+            extra_costs=alt.extra_cost_array(), annual_worth=aw_report,
+            annual_worth_constant=aw_decision, capital_recovery=None, operating=None,
+            marginal_cost=None, present_worth=pw, economic_life=esl[j],
+            annual_worth_at_economic_life=float(aw_report[esl[j] - 1]),
+            rank=int(dec.rank[j]), tax=detail))
+    terms = TaxTerms(tax_rate=t, after_tax_marr=float(study.tax.after_tax_marr),
+                     discount_rate=discount, conventions=aftertax.conventions(study))
+    return BasisResult(basis="after-tax", rate=decision_rate, money=inflation.money_label(study),
+                       alternatives=tuple(results), recommendation=rec, one_more_year=check,
+                       study_period_options=options, best_option=best_option,
+                       keep_values=dec.keep_values[0, :study.defender.max_life + 1],
+                       replacement_value_favours=market_value_favours(
+                           study.defender.price, rec.replacement_value), tax=terms)
+
+
+def _risk(study: Study, best_challenger: str) -> RiskResult:
+    # Imported here, not at the top: the risk analysis loads scipy, which most of a
+    # one-study run's start-up would otherwise be (it imports nothing of this module).
+    from core.risk.analysis import run_risk
+
+    return run_risk(study, best_challenger=best_challenger)
+
+
+def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
+    """Every AW, ESL, the recommendation, study-period options and the replacement value of
+    each study, in order (the module docstring gives the steps).
 
     >>> from core.estimates import Alternative, MarketValues, OperatingCosts, Study
     >>> d = Alternative("Old press", "defender", 20000.0, 3, MarketValues(decline_rate=0.3),
     ...                 OperatingCosts(first=9000.0, gradient=2500.0))
     >>> c = Alternative("New press", "challenger", 60000.0, 8, MarketValues(decline_rate=0.2),
     ...                 OperatingCosts(first=3000.0, gradient=500.0))
-    >>> r = run_study(Study("Press line", 0.10, d, (c,)))
+    >>> (r,) = run_studies([Study("Press line", 0.10, d, (c,))])
     >>> r.recommendation.action, r.defender.economic_life, r.challengers[0].economic_life
     ('replace', 1, 8)
     >>> round(r.recommendation.replacement_value, 2)
     18062.4
     """
-    if not study.challengers:
-        raise StudyError("challengers", "a study needs at least one challenger")
-    rate = study_rate(study)
-    arrays = {alt.name: alternative_arrays(study, alt) for alt in study.alternatives}
-    schedules = {name: annual_worth_schedule(p, s, c, rate) for name, (p, s, c) in arrays.items()}
-    aw = {name: sch.annual_worth for name, sch in schedules.items()}
-    defender = study.defender
-    d_price, d_s, d_c = arrays[defender.name]
-
-    def defender_best(price: float) -> float:
-        return float(np.max(annual_worth_schedule(price, d_s, d_c, rate).annual_worth))
-
-    def rv(target: float) -> float | None:
-        return solve_replacement_value(defender_best, target, d_price)
-
-    rec, options, esl = decide(study, aw, rate, "before-tax", rv)
-    aw_at_esl = {n: float(aw[n][esl[n] - 1]) for n in aw}
-    order = sorted(aw, key=lambda n: -round(aw_at_esl[n], 2))
-    results = []
-    for alt in study.alternatives:
-        sch = schedules[alt.name]
-        results.append(AlternativeResult(
-            name=alt.name, role=alt.role, price=float(arrays[alt.name][0]),
-            max_life=alt.max_life, market_values=arrays[alt.name][1],
-            operating_costs=alt.operating_cost_array(), extra_costs=alt.extra_cost_array(),
-            annual_worth=sch.annual_worth, capital_recovery=sch.capital_recovery,
-            operating=sch.operating, marginal_cost=sch.marginal_cost,
-            economic_life=esl[alt.name], annual_worth_at_economic_life=aw_at_esl[alt.name],
-            rank=order.index(alt.name) + 1))
-    result = StudyResult(study=study, rate=rate, alternatives=tuple(results),
-                         recommendation=rec, before_tax_recommendation=rec,
-                         study_period_options=tuple(options),
-                         warnings=tuple(_warnings(study, arrays)),
-                         fingerprint=fingerprint(study))
-    if study.inflation is not None:
-        from core import inflation
-
-        result = inflation.restate(study, result)  # report AW in the money the study states
-    if study.tax is not None:
-        from core import aftertax
-
-        result = aftertax.analyse(study, result)
-    if study.uncertainty is not None:
-        from core import risk
-
-        result = risk.analyse(study, result)
-    from core import technology
-
-    return technology.analyse(study, result)
+    for study in studies:
+        if not study.challengers:
+            raise StudyError("challengers", "a study needs at least one challenger")
+    if not studies:
+        return []
+    batch = stack(studies)
+    bt = _before_tax(batch)
+    dec = bt.decision
+    # Python lists: indexing numpy scalars one by one costs more than the numpy pass itself.
+    lists: dict[str, list] = {
+        "esl": dec.economic_life.tolist(), "at": dec.at_esl.tolist(), "rank": dec.rank.tolist(),
+        "best": dec.best.tolist(), "target": dec.target.tolist(),
+        "replace": dec.replace.tolist(), "planned": dec.planned.tolist(),
+        "mc": dec.marginal_cost_next.tolist(), "keep": dec.keep_next_year.tolist(),
+        "rv": dec.replacement_value.tolist(), "marr": batch.marr.tolist(),
+        "price": batch.price.tolist()}
+    out = []
+    for s, study in enumerate(studies):
+        before = _before_tax_basis(study, s, batch, bt, lists)
+        after = _after_tax_basis(study) if study.tax is not None else None
+        decision = after if after is not None else before
+        risk = (_risk(study, decision.recommendation.best_challenger)
+                if study.uncertainty is not None else None)
+        plan = technology_plan(study) if has_technology(study) else None
+        out.append(StudyResult(
+            study=study, before_tax=before, after_tax=after,
+            risk=risk, warnings=_warnings(study, bt.S, batch.rows(s), bt.negative_s,
+                                          bt.negative_c), technology=plan))
+    return out
 
 
-def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
-    """``run_study`` for each study, in order."""
-    return [run_study(s) for s in studies]
+def run_study(study: Study) -> StudyResult:
+    """``run_studies([study])[0]``."""
+    return run_studies([study])[0]

@@ -34,6 +34,7 @@ from core.estimates import (
     Inflation,
     MarketValues,
     OperatingCosts,
+    Role,
     Study,
     Tax,
     Technology,
@@ -147,7 +148,8 @@ def loads_json(text: str, where: str = "$") -> Any:
 
 
 # --------------------------------------------------------------------------- helpers
-def _keys(obj: Any, path: str, allowed: set[str], required: set[str] = frozenset()) -> dict:
+def _keys(obj: Any, path: str, allowed: set[str],
+          required: set[str] | frozenset[str] = frozenset()) -> dict:
     if not isinstance(obj, Mapping):
         raise StudyError(path, f"must be an object, not {_kind(obj)}")
     for key in obj:
@@ -354,7 +356,7 @@ def _depreciation(obj: Any, path: str, role: str) -> Depreciation:
                         macrs_class=macrs_class, rate=rate)
 
 
-def _alternative(obj: Any, path: str, role: str, warnings: list[str]) -> Alternative:
+def _alternative(obj: Any, path: str, role: Role, warnings: list[str]) -> Alternative:
     price_key = "market_value" if role == "defender" else "first_cost"
     data = _keys(obj, path,
                  {"name", price_key, "max_life", "market_values", "operating_costs",
@@ -440,6 +442,19 @@ def _check_distribution(kind: str, p: tuple[float, ...], where: str) -> None:
         raise StudyError(where, "standard deviation must be at least 0")
     if kind == "lognormal" and p[0] <= 0:
         raise StudyError(where, "a lognormal mean must be greater than 0")
+
+
+#: Uncertain inputs that are rates (decimals per year), by address suffix; the rest is money.
+RATE_SUFFIXES = ("marr", "market_values.decline_rate", "operating_costs.growth")
+
+
+def is_rate_input(address: str) -> bool:
+    """True when the uncertain input at ``address`` is a rate (shown as a percentage).
+
+    >>> is_rate_input("marr"), is_rate_input("New press.first_cost")
+    (True, False)
+    """
+    return address == "marr" or address.endswith(tuple("." + s for s in RATE_SUFFIXES))
 
 
 def split_address(address: str, study: Study) -> tuple[Alternative | None, str]:

@@ -63,6 +63,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from core.decision import keeps_next_year
+from core.results import AlternativeResult, BasisResult, StudyOption, StudyResult
+from core.text import money
 from desktop_app import palette
 
 
@@ -93,7 +96,7 @@ def guard_signal_refcount_bug() -> bool:
 _GUARDED = False
 guard_signal_refcount_bug()
 
-__all__ = ["ChartPanel", "PALETTE", "VIEWS", "format_money", "MoneyAxis", "YearAxis"]
+__all__ = ["ChartPanel", "PALETTE", "VIEWS", "MoneyAxis", "YearAxis"]
 
 # Okabe & Ito's colour-blind-safe palette (yellow left out: unreadable on white).
 PALETTE = palette.SERIES  # the defender in the keep colour, the first challenger in replace
@@ -110,17 +113,6 @@ VIEWS: tuple[tuple[str, str], ...] = (
 )
 
 BEFORE, AFTER = "before-tax", "after-tax"
-
-
-def format_money(value: float, symbol: str = "", decimals: int = 0) -> str:
-    """An amount with thousands separators and the currency symbol after the sign.
-
-    >>> format_money(-23903.4, "£"), format_money(1234.5), format_money(-0.2)
-    ('-£23,903', '1,235', '0')
-    """
-    text = f"{abs(float(value)):,.{decimals}f}"
-    negative = float(value) < 0 and text.strip("0.,") != ""
-    return ("-" if negative else "") + symbol + text
 
 
 class _FastGridAxis(pg.AxisItem):
@@ -181,7 +173,7 @@ class MoneyAxis(_FastGridAxis):
 
     def tickStrings(self, values, scale, spacing):  # noqa: N802 (Qt naming)
         decimals = 0 if spacing >= 1 else min(6, int(np.ceil(-np.log10(spacing))))
-        return [format_money(v * scale, "", decimals) for v in values]
+        return [money(v * scale, "", decimals) for v in values]
 
 
 class YearAxis(_FastGridAxis):
@@ -357,7 +349,7 @@ class _Plot(pg.PlotWidget):
         top = max((float(np.nanmax(a)) for a in finite if np.isfinite(a).any()), default=0.0)
         axis = self.getPlotItem().getAxis("left")
         metrics = QFontMetrics(axis.style.get("tickFont") or QFont())
-        text_width = metrics.horizontalAdvance(format_money(-top * 1.25))
+        text_width = metrics.horizontalAdvance(money(-top * 1.25))
         if axis.fixedWidth != text_width + 36:  # setWidth throws the axis picture away
             axis.setWidth(text_width + 36)
 
@@ -433,7 +425,7 @@ class ChartPanel(QWidget):
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
-        self._result: Any = None
+        self._result: StudyResult | None = None
         self._currency = ""
         self._series: dict[str, dict[str, tuple[np.ndarray, np.ndarray]]] = {
             key: {} for key, _ in VIEWS}
@@ -585,13 +577,13 @@ class ChartPanel(QWidget):
         return self._option_bars[i]
 
     # --------------------------------------------------------------- public API
-    def set_result(self, result: Any) -> None:
+    def set_result(self, result: StudyResult | None) -> None:
         """Show ``result`` (a ``core.results.StudyResult``), or clear the charts for None."""
         self._result = result
         self._sync_controls()
         self._redraw()
 
-    def result(self) -> Any:
+    def result(self) -> StudyResult | None:
         return self._result
 
     def set_currency(self, symbol: str) -> None:
@@ -645,9 +637,7 @@ class ChartPanel(QWidget):
         return BEFORE if not self.has_after_tax() else self.basis_combo.currentData()
 
     def has_after_tax(self) -> bool:
-        r = self._result
-        return r is not None and any(
-            getattr(a.after_tax, "annual_worth", None) is not None for a in r.alternatives)
+        return self._result is not None and self._result.after_tax is not None
 
     def series(self) -> dict[str, tuple[np.ndarray, np.ndarray]]:
         """The data of the current view, by series name, as (x, y) arrays.
@@ -789,41 +779,33 @@ class ChartPanel(QWidget):
         self._dirty.discard(key)
 
     # Data selection (basis) --------------------------------------------------
-    def _data(self, alt: Any, field: str) -> tuple[np.ndarray | None, bool]:
-        """(array, is_after_tax) of ``field`` for the chosen basis; before tax if after-tax lacks it."""
-        if self.basis() == AFTER:
-            value = getattr(alt.after_tax, field, None)
-            if value is not None:
-                return np.asarray(value, dtype=float), True
+    def _shown(self, alt: AlternativeResult) -> AlternativeResult:
+        """``alt`` on the chosen basis (its after-tax counterpart when after tax is shown)."""
+        r = self._result
+        if self.basis() == AFTER and r is not None and r.after_tax is not None:
+            return r.after_tax.alternative(alt.name)
+        return alt
+
+    def _data(self, alt: AlternativeResult, field: str) -> tuple[np.ndarray | None, bool]:
+        """(array, is_after_tax) of ``field`` for the chosen basis; None when the after-tax
+        result has no such figure (capital recovery, operating part, marginal cost)."""
+        shown = self._shown(alt)
+        value = getattr(shown, field)
+        if value is None:
             return None, False
-        return np.asarray(getattr(alt, field), dtype=float), False
+        return np.asarray(value, dtype=float), shown is not alt
 
-    def _esl(self, alt: Any, aw: np.ndarray, after: bool) -> int:
-        if not after:
-            return int(alt.economic_life)
-        esl = getattr(alt.after_tax, "economic_life", None)
-        if esl is None:
-            from core.annual_worth import economic_life
+    def _esl(self, alt: AlternativeResult, after: bool) -> int:
+        r = self._result
+        if after and r is not None and r.after_tax is not None:
+            return r.after_tax.alternative(alt.name).economic_life
+        return alt.economic_life
 
-            esl = economic_life(aw)
-        return int(esl)
-
-    def _options(self, r: Any) -> tuple[list[Any], bool]:
-        """(study-period options, after tax?) for the chosen basis.
-
-        With tax, ``result.study_period_options`` holds the after-tax options and
-        ``result.after_tax.before_tax_study_period_options`` the before-tax ones.
-        """
-        at = r.after_tax
-        after_options = getattr(at, "study_period_options", None) if at is not None else None
-        if self.basis() == AFTER and after_options:
-            return list(after_options), True
-        before = getattr(at, "before_tax_study_period_options", None) if at is not None else None
-        if before is not None:
-            return list(before), False
-        if at is not None and after_options is None:
-            return list(r.study_period_options), True  # replaced by the after-tax ones
-        return list(r.study_period_options), False
+    def _options(self, r: StudyResult) -> tuple[BasisResult, bool]:
+        """(the basis whose study-period options are shown, after tax?)."""
+        if self.basis() == AFTER and r.after_tax is not None:
+            return r.after_tax, True
+        return r.before_tax, False
 
     def _basis_words(self, after: bool) -> str:
         return "after tax" if after else "before tax"
@@ -842,7 +824,7 @@ class ChartPanel(QWidget):
         return 1.0 if self.signed() else -1.0
 
     def _money(self, v: float) -> str:
-        return format_money(v, self._currency)
+        return money(v, self._currency)
 
     def _empty(self, plot: _Plot, key: str, text: str) -> None:
         plot.targets = []
@@ -921,7 +903,7 @@ class ChartPanel(QWidget):
             line.setData(years, values)
             role = "defender" if alt.role == "defender" else "challenger"
             plot.legend.addItem(line, f"{alt.name} ({role})")
-            k = self._esl(alt, aw, after)
+            k = self._esl(alt, after)
             esl_y = values[k - 1]
             esl_item.setData([float(k)], [esl_y])
             color = PALETTE[i % len(PALETTE)]
@@ -987,7 +969,7 @@ class ChartPanel(QWidget):
         self._cr_line.setData(years, cr_v)
         self._op_line.setData(years, op_v)
         self._total_line.setData(years, total)
-        k = self._esl(alt, aw, after)
+        k = self._esl(alt, after)
         self._parts_esl.setData([float(k)], [total[k - 1]])
         plot.label(0, f"ESL {k} y", float(k), float(total[k - 1]), "#000000",
                    (0.5, -0.35) if not self.signed() else (0.5, 1.35))
@@ -1041,19 +1023,15 @@ class ChartPanel(QWidget):
             mc = np.asarray(d.marginal_cost, dtype=float)
             note = ("The after-tax result has no marginal costs: before-tax figures shown.")
         after = after_mc
-        rec = r.recommendation if after else r.before_tax_recommendation
-        best = r.alternative(rec.best_challenger)
-        if after:
-            b_aw = np.asarray(best.after_tax.annual_worth, dtype=float)
-        else:
-            b_aw = np.asarray(best.annual_worth, dtype=float)
-        b_esl = self._esl(best, b_aw, after)
-        level_cost = -float(b_aw[b_esl - 1])  # the challenger's EAC at its ESL
+        basis = r.decision if after else r.before_tax
+        best = basis.alternative(basis.recommendation.best_challenger)
+        b_esl = best.economic_life
+        level_cost = -best.annual_worth_at_economic_life  # the challenger's EAC at its ESL
         sign = self._sign()
         years = np.arange(1, len(mc) + 1, dtype=float)
         values = -sign * mc  # costs positive in the EAC view; -MC in the signed view
         level = -sign * level_cost
-        above = mc > level_cost + 0.005
+        above = ~keeps_next_year(mc, -level_cost)  # the one-more-year rule, year by year
         self._mc_keep.setOpts(x=years[~above], height=values[~above], width=0.6)
         self._mc_over.setOpts(x=years[above], height=values[above], width=0.6)
         x_line = np.array([0.4, len(mc) + 0.6])
@@ -1099,10 +1077,14 @@ class ChartPanel(QWidget):
         plot = self.plots["options"]
         r = self._result
         plot.legend.clear()
-        options = []
+        options: list[StudyOption] = []
         after = False
+        chosen = None
         if r is not None:
-            options, after = self._options(r)
+            shown, after = self._options(r)
+            options = list(shown.study_period_options)
+            if shown.best_option is not None:
+                chosen = options[shown.best_option]
         if r is None or not options:
             for bar in self._option_bars:
                 bar.setOpts(x=[], height=[])
@@ -1133,7 +1115,7 @@ class ChartPanel(QWidget):
         series: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         targets: list[_Target] = []
         grey_x: list[float] = []
-        best: tuple[float, float, Any] | None = None
+        best: tuple[float, float, StudyOption] | None = None
         for gi, group in enumerate(groups):
             bar = self._option_item(gi)
             color = colour_of[group] if group is not None else colour_of[d_name]
@@ -1148,7 +1130,7 @@ class ChartPanel(QWidget):
                     fx.append(x)
                     fy.append(v)
                     ys.append(v)
-                    if best is None or round(o.annual_worth, 2) > round(best[2].annual_worth, 2):
+                    if o is chosen:
                         best = (x, v, o)
                     text = f"{words}: {short} {self._money(v)}"
                     y_target = v
@@ -1269,7 +1251,7 @@ def years_text(n: int) -> str:
     return f"{n} year" if n == 1 else f"{n} years"
 
 
-def option_text(defender: str, option: Any, period: int | None) -> str:
+def option_text(defender: str, option: StudyOption, period: int | None) -> str:
     """A study-period option in words: 'Keep Piston 40 2 years, then Screw 90 6 years'."""
     if option.challenger is None:
         return f"Keep {defender} all {years_text(option.defender_years)}"

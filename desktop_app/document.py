@@ -31,8 +31,8 @@ from core.studyfile import (
     parse_study,
     study_to_dict,
 )
+from core.text import SITE_SEPARATOR
 
-SITE_SEPARATOR = " — "
 DEFAULT_SITE = "Unassigned"
 RECOVERY_FORMAT = "tenure-window-recovery"
 

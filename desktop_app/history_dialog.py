@@ -69,6 +69,7 @@ from core.history import (
     read_table,
     yearly_totals,
 )
+from core.text import money
 from core.workbook import Asset, HistoryRow, Workbook, WorkbookInUse
 from desktop_app.charts import MoneyAxis, guard_signal_refcount_bug
 
@@ -99,11 +100,6 @@ def guess_columns(columns: list[str]) -> dict[str, str | None]:
     ('Asset', 'Closed', 'Type', 'Cost (EUR)', None)
     """
     return guess_history_columns(columns)
-
-
-def _money(value: float, symbol: str) -> str:
-    text = f"{abs(value):,.0f}"
-    return ("-" if value < 0 and text.strip("0,") else "") + symbol + text
 
 
 def _cell(value: Any) -> QTableWidgetItem:
@@ -751,7 +747,7 @@ class CostHistoryDialog(QDialog):
             self.decline_edit.setValue(fit.params["decline_rate"] * 100.0)
             self.value_note.setText(
                 f"Fitted MV_k = P(1 − d)^k (log-linear least squares): P = "
-                f"{_money(fit.params['price'], self.currency)}, d = "
+                f"{money(fit.params['price'], self.currency)}, d = "
                 f"{fit.params['decline_rate']:.2%} per year; R² {fit.r_squared:.3f}; "
                 f"{len(fit.ages)} ages, k = whole years in service.")
             self._draw(self.value_plot, self.value_resid, fit, "Years in service")
@@ -808,13 +804,13 @@ class CostHistoryDialog(QDialog):
         n = len(fit.ages)
         if geometric:
             eq = (f"Fitted C_j = a(1 + g)^(j−1) (log-linear least squares): a = "
-                  f"{_money(p['first'], c)}/yr, g = {p['growth']:.2%} per year; R² "
+                  f"{money(p['first'], c)}/yr, g = {p['growth']:.2%} per year; R² "
                   f"{fit.r_squared:.3f} on money"
                   + (f", {fit.r_squared_log:.3f} on logs" if fit.r_squared_log is not None
                      else ""))
         else:
-            eq = (f"Fitted C_j = a + G(j−1) (least squares): a = {_money(p['first'], c)}/yr, "
-                  f"G = {_money(p['gradient'], c)}/yr per year of age; R² {fit.r_squared:.3f}")
+            eq = (f"Fitted C_j = a + G(j−1) (least squares): a = {money(p['first'], c)}/yr, "
+                  f"G = {money(p['gradient'], c)}/yr per year of age; R² {fit.r_squared:.3f}")
         self.cost_note.setText(f"{eq}; {n} years of age, j = 1 is the first year in service. "
                                "Dots: data; line: fit; ◇: the proposed first-year cost.")
 

@@ -11,8 +11,6 @@ cancel.
 from __future__ import annotations
 
 import contextlib
-import csv
-import importlib
 import json
 from pathlib import Path
 from typing import Any
@@ -37,6 +35,7 @@ from PySide6.QtWidgets import (
 
 from core.errors import StudyError
 from core.estimates import Study
+from core.export import export_csv, export_xlsx
 from core.results import StudyResult
 from desktop_app import recovery, screen
 from desktop_app.commands import (
@@ -57,11 +56,9 @@ from desktop_app.document import (
 )
 from desktop_app.editor import StudyEditor
 from desktop_app.panels import (
-    CautionsLabel,
     make_chart_panel,
     make_results_panel,
     make_risk_view,
-    results_panel_shows_cautions,
 )
 from desktop_app.prefs import Preferences, PreferencesDialog
 from desktop_app.register import RegisterPane
@@ -184,10 +181,7 @@ class MainWindow(QMainWindow):
             right_split.setSizes(screen.chart_heights(max(self.right_tabs.height() - 30, 400)))
         self.loading_label.hide()
         self.results_layout.addWidget(right_split)
-        if not results_panel_shows_cautions():
-            self.results_layout.addWidget(CautionsLabel())
-        if self.risk_view is not None:
-            self.right_tabs.addTab(self.risk_view, "Risk")
+        self.right_tabs.addTab(self.risk_view, "Risk")
         from desktop_app.technology_view import TechnologyView
 
         self.technology_view = TechnologyView()
@@ -906,19 +900,10 @@ class MainWindow(QMainWindow):
         if not path:
             return
         try:
-            export = importlib.import_module("core.export")
-        except ImportError:
-            export = None
-        try:
             if path.lower().endswith(".xlsx"):
-                if export is None:
-                    raise StudyError(path, "XLSX export is not available in this build; use .csv")
-                export.export_xlsx(result, path, currency=self.currency())
-            elif export is not None:
-                export.export_csv(result, path, table="alternatives",
-                                  currency=self.currency())
+                export_xlsx(result, path, currency=self.currency())
             else:
-                write_tables_csv(result, path)
+                export_csv(result, path, table="alternatives", currency=self.currency())
         except StudyError as exc:
             self.report(f"Not exported: {exc}")
             return
@@ -939,22 +924,6 @@ class MainWindow(QMainWindow):
                           "Tenure: keep-or-replace decisions for production equipment.\n"
                           "Annual worth, economic service life and replacement studies, "
                           "computed offline.")
-
-
-def write_tables_csv(result: StudyResult, path: str) -> None:
-    """The AW-by-retention table of every alternative (plain CSV, no economics added)."""
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        out = csv.writer(fh)
-        out.writerow(["alternative", "role", "retention_years", "annual_worth",
-                      "capital_recovery", "operating", "marginal_cost", "market_value",
-                      "operating_cost", "extra_cost"])
-        for alt in result.alternatives:
-            for k in range(alt.max_life):
-                out.writerow([alt.name, alt.role, k + 1] + [
-                    round(float(a[k]), 2) for a in (alt.annual_worth, alt.capital_recovery,
-                                                    alt.operating, alt.marginal_cost,
-                                                    alt.market_values, alt.operating_costs,
-                                                    alt.extra_costs)])
 
 
 def dump(obj: Any) -> str:

@@ -11,8 +11,6 @@ are always shown, also with no result.  Nothing here computes economics.
 
 from __future__ import annotations
 
-from typing import Any
-
 from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtWidgets import (
     QAbstractItemView,
@@ -29,20 +27,13 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from core.memo.cautions import caution_texts as memo_cautions
+from core.results import Recommendation, StudyOption, StudyResult
+from core.text import money
 from desktop_app import palette
-from desktop_app.charts import format_money, years_text
+from desktop_app.charts import years_text
 
-__all__ = ["ResultsPanel", "badge_for", "caution_texts", "FALLBACK_CAUTIONS"]
-
-# docs/method.md §9, used only when core.memo.cautions is not importable.
-FALLBACK_CAUTIONS = (
-    "Estimates are forecasts: the recommendation is only as good as the market values, "
-    "operating costs and service lives it rests on, and it should be revisited when they change.",
-    "Replacement required for safety, regulation or code overrides the economics.",
-    "Tax treatment is simplified; defer to a tax adviser for the tax position that applies.",
-    "Decommissioning and changeover follow site safety rules and local codes; defer to licensed "
-    "engineering practice where it applies.",
-)
+__all__ = ["ResultsPanel", "badge_for", "caution_texts"]
 
 # (background, text): keep and replace as everywhere in the window (desktop_app/palette.py).
 BADGE_COLOURS = palette.BADGE_COLOURS
@@ -51,16 +42,11 @@ COLUMNS = ("Rank", "Alternative", "Role", "ESL", "AW at ESL", "EAC at ESL")
 
 
 def caution_texts() -> list[str]:
-    """The cautions of docs/method.md §9: the memo's texts when available, else the built-in list."""
-    try:
-        from core.memo.cautions import caution_texts as memo_cautions
-    except ImportError:
-        return list(FALLBACK_CAUTIONS)
-    texts = list(memo_cautions())
-    return texts or list(FALLBACK_CAUTIONS)
+    """The cautions of docs/method.md §9 (``core.memo.cautions``, the memo's texts)."""
+    return list(memo_cautions())
 
 
-def badge_for(recommendation: Any) -> tuple[str, str]:
+def badge_for(recommendation: Recommendation | None) -> tuple[str, str]:
     """(badge text, colour key) of a ``core.results.Recommendation``.
 
     Replace now -> 'REPLACE NOW'; keep j years then a challenger (study period)
@@ -91,7 +77,7 @@ class ResultsPanel(QWidget):
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
-        self._result: Any = None
+        self._result: StudyResult | None = None
         self._currency = ""
 
         self.badge = QLabel(self)
@@ -205,12 +191,12 @@ class ResultsPanel(QWidget):
         self._render()
 
     # ------------------------------------------------------------- public API
-    def set_result(self, result: Any) -> None:
+    def set_result(self, result: StudyResult | None) -> None:
         """Show ``result`` (a ``core.results.StudyResult``), or the empty state for None."""
         self._result = result
         self._render()
 
-    def result(self) -> Any:
+    def result(self) -> StudyResult | None:
         return self._result
 
     def set_currency(self, symbol: str) -> None:
@@ -250,7 +236,7 @@ class ResultsPanel(QWidget):
 
     # -------------------------------------------------------------- internals
     def _money(self, value: float) -> str:
-        return format_money(value, self._currency)
+        return money(value, self._currency)
 
     def _row_clicked(self, row: int, _column: int) -> None:
         item = self.table.item(row, 1)
@@ -309,7 +295,7 @@ class ResultsPanel(QWidget):
         else:
             self.warnings_label.hide()
 
-    def _basis_words(self, r: Any, after: bool) -> str:
+    def _basis_words(self, r: StudyResult, after: bool) -> str:
         study = r.study
         if after and study.tax is not None:
             text = (f"Basis: after tax (tax rate {_percent(study.tax.rate)}, after-tax MARR "
@@ -327,34 +313,17 @@ class ResultsPanel(QWidget):
             text += f" · study period {years_text(int(study.study_period))}"
         return text
 
-    def _figures(self, alt: Any, after: bool) -> tuple[int, float]:
-        """(ESL, AW at ESL) on the shown basis."""
-        at = alt.after_tax if after else None
-        if at is not None and getattr(at, "annual_worth", None) is not None:
-            esl = getattr(at, "economic_life", None)
-            aw_esl = getattr(at, "annual_worth_at_economic_life", None)
-            if esl is not None:
-                if aw_esl is None:
-                    aw_esl = float(at.annual_worth[int(esl) - 1])
-                return int(esl), float(aw_esl)
-        return int(alt.economic_life), float(alt.annual_worth_at_economic_life)
-
-    def _fill_table(self, r: Any, after: bool) -> None:
-        figures = {a.name: self._figures(a, after) for a in r.alternatives}
-        if after:
-            order = sorted(r.alternatives, key=lambda a: -round(figures[a.name][1], 2))
-            rank = {a.name: i + 1 for i, a in enumerate(order)}
-        else:
-            order = list(r.ranking)
-            rank = {a.name: a.rank for a in r.alternatives}
+    def _fill_table(self, r: StudyResult, after: bool) -> None:
+        basis = r.decision if after else r.before_tax
+        order = basis.ranking
         if self.table.rowCount() != len(order):
             self.table.setRowCount(len(order))
         right = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
         for row, alt in enumerate(order):
-            esl, aw = figures[alt.name]
-            cells = (str(rank[alt.name]), alt.name, alt.role, years_text(esl),
+            aw = alt.annual_worth_at_economic_life
+            cells = (str(alt.rank), alt.name, alt.role, years_text(alt.economic_life),
                      self._money(aw), self._money(-aw))
-            bold = rank[alt.name] == 1
+            bold = alt.rank == 1
             for col, text in enumerate(cells):
                 # Cells are updated in place (and only when they change): a new item per
                 # cell on every edit made the table re-lay itself out and repaint whole.
@@ -389,7 +358,7 @@ class ResultsPanel(QWidget):
             self._fit_table_height()
         return super().eventFilter(watched, event)
 
-    def _fill_options(self, r: Any) -> None:
+    def _fill_options(self, r: StudyResult) -> None:
         """Caption of the ESL table and, with a study period, the best options in words."""
         period = r.study.study_period
         basis = "after tax" if r.recommendation.basis == "after-tax" else "before tax"
@@ -421,7 +390,7 @@ class ResultsPanel(QWidget):
             text += "\n(" + ", ".join(tail) + "; see the study-period chart.)"
         self.options_label.setText(text)
 
-    def _fill_sentences(self, r: Any, rec: Any) -> None:
+    def _fill_sentences(self, r: StudyResult, rec: Recommendation) -> None:
         d = r.defender
         best = rec.best_challenger
         rv = rec.replacement_value
@@ -430,8 +399,7 @@ class ResultsPanel(QWidget):
                 f"Replacement value: not found. Market value of {d.name} today: "
                 f"{self._money(d.price)}.")
         else:
-            favours = "replacing" if d.price > rv + 0.005 else (
-                "keeping" if d.price < rv - 0.005 else "neither")
+            favours = r.decision.replacement_value_favours
             text = (f"Replacement value {self._money(rv)}: the market value of {d.name} today "
                     f"at which keeping it and replacing it with {best} cost the same. Its market "
                     f"value today is {self._money(d.price)}, "
@@ -440,32 +408,26 @@ class ResultsPanel(QWidget):
             if r.study.study_period:
                 text += " (Economic-life comparison, without the study period.)"
             self.replacement_label.setText(text)
-        check = rec.one_more_year or {}
-        if check:
-            mc = float(check.get("defender_marginal_cost", 0.0))
-            eac = float(check.get("challenger_annual_cost", 0.0))
-            keep = bool(check.get("keep_next_year"))
-            year = int(check.get("year", 1))
-            self.one_more_year_label.setText(
-                f"One more year: the marginal cost of keeping {d.name} in year {year}, "
-                f"{self._money(mc)}, is {'below' if keep else 'not below'} {best}'s equivalent "
-                f"annual cost at its economic life, {self._money(eac)}: "
-                + ("keeping it one more year costs less." if keep else
-                   "keeping it another year costs more than replacing it."))
-        else:
-            self.one_more_year_label.setText("")
+        check = rec.one_more_year
+        keep = check.keep_next_year
+        self.one_more_year_label.setText(
+            f"One more year: the marginal cost of keeping {d.name} in year {check.year}, "
+            f"{self._money(check.defender_marginal_cost)}, is {'below' if keep else 'not below'} "
+            f"{best}'s equivalent annual cost at its economic life, "
+            f"{self._money(check.challenger_annual_cost)}: "
+            + ("keeping it one more year costs less." if keep else
+               "keeping it another year costs more than replacing it."))
         extras = []
         if rec.action == "keep" and not r.study.study_period and rec.planned_defender_years:
             extras.append(f"Under today's estimates {d.name} would be replaced after "
                           f"{years_text(int(rec.planned_defender_years))}; restudy each year.")
-        risk = r.risk
-        p = getattr(risk, "probability_replace", None)
-        if p is not None:
-            extras.append(f"Risk analysis: {100.0 * float(p):.0f} % of trials say replace.")
+        if r.risk is not None:
+            extras.append(f"Risk analysis: {100.0 * r.risk.probability_replace:.0f} % of trials "
+                          "say replace.")
         self.extra_label.setText(" ".join(extras))
 
 
-def _option_words(defender: str, option: Any) -> str:
+def _option_words(defender: str, option: StudyOption) -> str:
     """'Keep Old press 2 years, then New press 6 years' and the like."""
     if option.challenger is None:
         return f"Keep {defender} all {years_text(option.defender_years)}"

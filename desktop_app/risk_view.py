@@ -59,6 +59,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.results import StudyResult
+from core.text import money
 from desktop_app import palette
 
 # Keep and replace as everywhere in the window (desktop_app/palette.py); the tornado's
@@ -123,19 +124,11 @@ def _plot(title: str, left: str, bottom: str) -> pg.PlotWidget:
     return plot
 
 
-def _money(x: float | None) -> str:
-    if x is None:
-        return "-"
-    from core.study import money
-
-    return money(x)
-
-
 def _value(x: float | None, address: str) -> str:
     if x is None:
         return "no flip"
     rate = address == "marr" or address.endswith(("decline_rate", "growth"))
-    return f"{x:.2%}" if rate else _money(x)
+    return f"{x:.2%}" if rate else money(x)
 
 
 class RiskView(QWidget):
@@ -369,19 +362,19 @@ class RiskView(QWidget):
         if risk is None:
             self.summary.setText("")
             return
-        data = risk.to_json()
-        s = data["annual_worth_difference"]
-        se = data["probability_replace_standard_error"]
+        sim = risk.simulation
+        s = risk.difference_summary()
+        se = sim.probability_standard_error
         self.summary.setText(
-            f"<b>Replace wins in {data['probability_replace']:.1%} of {data['trials']:,} "
-            f"trials</b> (standard error {se:.2%}; {data['basis']}; seed {data['seed']}). "
+            f"<b>Replace wins in {risk.probability_replace:.1%} of {sim.trials:,} "
+            f"trials</b> (standard error {se:.2%}; {risk.basis}; seed {sim.seed}). "
             f"AW difference (best challenger minus defender, positive favours replacing): "
-            f"p10 {_money(s['p10'])}, median {_money(s['p50'])}, p90 {_money(s['p90'])}; "
-            f"mean {_money(s['mean'])} (standard error {_money(s['mean_standard_error'])})."
+            f"p10 {money(s['p10'])}, median {money(s['p50'])}, p90 {money(s['p90'])}; "
+            f"mean {money(s['mean'])} (standard error {money(s['mean_standard_error'])})."
             + "".join(f"<br><span style='color:#8a4b00'>Note: {html.escape(n)}</span>"
-                      for n in data.get("notes", [])))
-        self.status.setText(f"Base case: {data['base_case']['action']} "
-                            f"(AW difference {_money(data['base_case']['annual_worth_difference'])}).")
+                      for n in risk.notes))
+        self.status.setText(f"Base case: {risk.base_action} "
+                            f"(AW difference {money(risk.base_difference)}).")
         self._draw_tornado(risk)
         self._draw_histogram()
         self._draw_breakevens(risk)

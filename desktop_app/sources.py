@@ -1,12 +1,10 @@
 """Opening and saving what the window edits: study JSON files and ``.tenure`` workbooks.
 
-Study files go through ``core.studyfile``; workbooks through ``core.workbook``
-when this build has it.  Both become a :class:`desktop_app.document.Document`.
+Study files go through ``core.studyfile``; workbooks through ``core.workbook``.  Both become a :class:`desktop_app.document.Document`.
 """
 
 from __future__ import annotations
 
-import importlib
 from pathlib import Path
 
 from core.errors import StudyError
@@ -27,13 +25,6 @@ def is_workbook(path: str | Path) -> bool:
             return fh.read(16) == SQLITE_MAGIC
     except OSError:
         return False
-
-
-def workbook_module():
-    try:
-        return importlib.import_module("core.workbook")
-    except ImportError:
-        return None
 
 
 def open_document(path: str | Path) -> Document:
@@ -66,7 +57,8 @@ def save_document(doc: Document, path: str | Path) -> None:
 def demo_path() -> str | None:
     """The bundled demo: the workbook helper's demo workbook, else the window's demo studies."""
     try:
-        demo = importlib.import_module("core.demo")
+        from core import demo  # imported when asked: it builds the demo workbook
+
         path = demo.demo_workbook_path()
         if path and Path(path).exists():
             return str(path)

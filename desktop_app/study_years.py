@@ -38,6 +38,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.errors import StudyError
+from core.jsonout import study_json
 from core.studyfile import study_to_dict
 
 COLUMNS = ("Year", "Decision", "Best challenger", "Defender value today", "MARR",
@@ -184,7 +185,7 @@ def load_years(workbook_path: str | Path, tag: str) -> list[YearRow]:
             result = rec.result_json
             recomputed = False
             if not result:
-                result = run_study(rec.study).to_json()
+                result = study_json(run_study(rec.study))
                 recomputed = True
             rec_json = result.get("recommendation") or {}
             issued = tuple(

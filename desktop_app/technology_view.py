@@ -28,8 +28,8 @@ from PySide6.QtGui import (
 from PySide6.QtWidgets import QFrame, QLabel, QScrollArea, QSizePolicy, QVBoxLayout, QWidget
 
 from core.results import StudyResult
+from core.text import money as _money
 from desktop_app import palette
-from desktop_app.charts import format_money as _money
 
 # Okabe & Ito colours, as the charts and the badge use them; the defender in grey.
 DEFENDER_COLOUR = "#9a9a9a"

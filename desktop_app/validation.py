@@ -11,6 +11,7 @@ import math
 import re
 
 from core.errors import StudyError
+from core.text import money
 
 
 class FieldError(ValueError):
@@ -118,12 +119,8 @@ def parse_text(text: str, label: str) -> str:
 
 
 def fmt_money(x: float | None) -> str:
-    if x is None:
-        return ""
-    v = float(x)
-    if v.is_integer():
-        return f"{v:,.0f}"
-    return f"{v:,.2f}"
+    """An amount as an edit field shows it: cents only when it has them."""
+    return money(x, decimals=None, missing="")
 
 
 def fmt_percent(x: float | None) -> str:

@@ -9,16 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from core import workbook
 from core.errors import StudyError
+from core.jsonout import study_json
 from desktop_app.document import AssetEntry, Document
-from desktop_app.sources import workbook_module
-
-
-def _module(path: Path):
-    module = workbook_module()
-    if module is None or not hasattr(module, "Workbook"):
-        raise StudyError(str(path), "workbooks are not supported by this build")
-    return module
 
 
 def asset_label(asset) -> str:
@@ -34,9 +28,8 @@ def retired_text(asset) -> str | None:
 
 
 def load(path: Path) -> Document:
-    module = _module(path)
     entries: list[AssetEntry] = []
-    with module.Workbook.open(str(path), write=False) as wb:
+    with workbook.Workbook.open(str(path), write=False) as wb:
         company = getattr(wb, "company", "") or ""
         for asset in wb.assets():
             years = list(wb.years(asset.tag))
@@ -62,12 +55,11 @@ def sync(doc: Document, renamed: dict[str, str] | None = None, reload: tuple[str
     vanished ones dropped; ``renamed`` (old tag -> new) moves an entry to its new
     tag; the saved studies of ``reload`` tags are read again.
     """
-    module = _module(Path(str(doc.path)))
     for old, new in (renamed or {}).items():
         doc.rename_key(old, new)
     by_key = {e.key: e for e in doc.entries}
     entries: list[AssetEntry] = []
-    with module.Workbook.open(str(doc.path), write=False) as wb:
+    with workbook.Workbook.open(str(doc.path), write=False) as wb:
         doc.company = wb.company  # type: ignore[attr-defined]
         for asset in wb.assets():
             entry = by_key.get(asset.tag)
@@ -93,7 +85,6 @@ def sync(doc: Document, renamed: dict[str, str] | None = None, reload: tuple[str
 
 
 def save(doc: Document, path: Path) -> None:
-    module = _module(path)
     if doc.kind != "workbook" or doc.path is None or Path(doc.path) != Path(path):
         if Path(path).exists():
             raise StudyError(str(path), "already exists; a study file is saved as a new "
@@ -103,7 +94,7 @@ def save(doc: Document, path: Path) -> None:
     from core.study import run_study
 
     saved = []
-    with module.Workbook.open(str(path), write=True) as wb, wb.transaction():
+    with workbook.Workbook.open(str(path), write=True) as wb, wb.transaction():
         # one transaction: a full disk or a crash leaves the workbook as it was, and the
         # edits stay open (marked unsaved) to be saved again or elsewhere
         for entry in doc.entries:
@@ -119,7 +110,7 @@ def save(doc: Document, path: Path) -> None:
 
                 year = this_year()
             result = doc.cached_result(entry.key) or run_study(entry.study)
-            wb.save_study(entry.key, year, entry.study, result_json=result.to_json())
+            wb.save_study(entry.key, year, entry.study, result_json=study_json(result))
             saved.append((entry, year))
     for entry, year in saved:
         entry.study_year = year
@@ -136,7 +127,6 @@ def save_new_workbook(doc: Document, path: Path) -> None:
 
     from core.study import run_study
 
-    module = _module(path)
     studies = doc.studies()
     if not studies:
         raise StudyError(str(path), "nothing to save: no asset has a study yet")
@@ -147,10 +137,10 @@ def save_new_workbook(doc: Document, path: Path) -> None:
     for entry in doc.entries:
         if entry.study is not None:
             result = doc.cached_result(entry.key) or run_study(entry.study)
-            results[entry.study.title] = result.to_json()
+            results[entry.study.title] = study_json(result)
     part = path.with_name(f".{path.name}.{os.getpid()}.new")
     try:
-        module.save_studies(part, studies, year, results)
+        workbook.save_studies(part, studies, year, results)
         os.replace(part, path)
     finally:
         if part.exists():

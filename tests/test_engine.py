@@ -12,8 +12,10 @@ import numpy as np
 import numpy_financial as npf
 import pytest
 
-from core.annual_worth import annual_worth_schedule, economic_life
+from core.annual_worth import annual_worth_schedule
+from core.decision import economic_life
 from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
+from core.jsonout import study_json
 from core.study import run_study
 
 
@@ -156,8 +158,8 @@ def test_replace_now_by_hand() -> None:
     # 1 - 13 + 17.25) = max(9.75, 8.5, 5.25) = 9.75.
     assert rec.replacement_value == pytest.approx(9.75, abs=1e-5)
     # One more year: MC_1 of the defender = 10 - 6 + 2 = 6 > 5.75 -> do not keep.
-    assert rec.one_more_year["defender_marginal_cost"] == pytest.approx(6.0)
-    assert rec.one_more_year["keep_next_year"] is False
+    assert rec.one_more_year.defender_marginal_cost == pytest.approx(6.0)
+    assert rec.one_more_year.keep_next_year is False
     assert [a.name for a in r.ranking] == ["New press", "Old press"]
 
 
@@ -182,7 +184,7 @@ def test_keep_with_one_more_year_check_by_hand() -> None:
     rec = r.recommendation
     assert r.defender.annual_worth.tolist() == pytest.approx([-3.0, -7.5, -9.0])
     assert rec.action == "keep" and rec.challenger is None
-    assert rec.one_more_year["keep_next_year"] is True
+    assert rec.one_more_year.keep_next_year is True
     assert rec.planned_defender_years == 1
     assert rec.best_challenger == "New press"
     # RV: max(8 - 1 + 5.75, 2 - 7 + 11.5, 0 - 17 + 17.25) = max(12.75, 6.5, 0.25) = 12.75.
@@ -355,7 +357,7 @@ def test_doctest_study_replacement_value_by_hand() -> None:
 
 def test_result_json_has_design_keys() -> None:
     # Source: docs/method.md §6 (keys of the --json output).
-    r = run_study(Study("Keys", 0.0, DEFENDER, (CHALLENGER,), study_period=4)).to_json()
+    r = study_json(run_study(Study("Keys", 0.0, DEFENDER, (CHALLENGER,), study_period=4)))
     assert {"title", "alternatives", "recommendation", "study_period_options"} <= set(r)
     for a in r["alternatives"]:
         assert {"name", "role", "annual_worth", "economic_life",

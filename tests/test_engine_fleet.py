@@ -18,7 +18,7 @@ from conftest import document
 from core.cli import main
 from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
 from core.fleet import run_fleet
-from core.results import _list
+from core.jsonout import _list, study_json
 from core.study import run_study
 
 
@@ -57,19 +57,25 @@ def _random_study(rng: random.Random, k: int) -> Study:
 
 
 def _same(a, b) -> None:
-    assert a.study is b.study and a.rate == b.rate and a.fingerprint == b.fingerprint
+    """Bit for bit: every field of both bases, every array, the replacement value."""
+    assert a.study is b.study and a.fingerprint == b.fingerprint
     assert a.warnings == b.warnings
-    ra, rb = a.recommendation, b.recommendation
-    assert dataclasses.replace(ra, replacement_value=None) == \
-        dataclasses.replace(rb, replacement_value=None)
-    # run_study finds the RV with brentq (xtol 1e-6); the fleet uses the closed form.
-    assert ra.replacement_value == pytest.approx(rb.replacement_value, rel=1e-9, abs=1e-5)
-    assert a.study_period_options == b.study_period_options
-    for x, y in zip(a.alternatives, b.alternatives, strict=True):
-        for field in dataclasses.fields(x):
-            u, v = getattr(x, field.name), getattr(y, field.name)
-            if isinstance(u, np.ndarray):
-                assert np.array_equal(u, v), field.name
+    assert (a.after_tax is None) == (b.after_tax is None)
+    for x_basis, y_basis in ((a.before_tax, b.before_tax), (a.after_tax, b.after_tax)):
+        if x_basis is None:
+            continue
+        for field in dataclasses.fields(x_basis):
+            u, v = getattr(x_basis, field.name), getattr(y_basis, field.name)
+            if field.name == "alternatives":
+                for x, y in zip(u, v, strict=True):
+                    for f in dataclasses.fields(x):
+                        p, q = getattr(x, f.name), getattr(y, f.name)
+                        if isinstance(p, np.ndarray):
+                            assert np.array_equal(p, q), f.name
+                        elif f.name != "tax":
+                            assert p == q, f.name
+            elif isinstance(u, np.ndarray):
+                assert np.array_equal(u, v, equal_nan=True), field.name
             else:
                 assert u == v, field.name
 
@@ -104,8 +110,8 @@ def test_fleet_sums_extra_costs_in_one_year_as_run_study_does() -> None:
         _same(a, b)
 
 
-def test_fleet_falls_back_for_hooked_studies() -> None:
-    # Source: core.study.run_study; a study with inflation goes through run_study itself.
+def test_fleet_with_tax_and_inflation_studies() -> None:
+    # Source: core.study.run_study; studies with inflation are in the same batch.
     from core.estimates import Inflation
 
     rng = random.Random(3)
@@ -117,7 +123,7 @@ def test_fleet_falls_back_for_hooked_studies() -> None:
     from core.fleet import run_fleet_json
 
     docs = run_fleet_json([hooked, plain])
-    assert docs[0] == run_study(hooked).to_json()
+    assert docs[0] == study_json(run_study(hooked))
     assert docs[1]["title"] == plain.title and docs[1]["alternatives"][0]["name"] == "Existing unit"
 
 
@@ -151,11 +157,8 @@ def test_cli_fleet_output_equals_single_runs(capsys, write_json) -> None:
     assert main(["study", str(file), "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert list(out) == ["studies"]
-    want = [run_study(s).to_json() for s in studies]
+    want = [study_json(run_study(s)) for s in studies]
     for got, ref in zip(out["studies"], want, strict=True):
-        ref_rv = ref["recommendation"].pop("replacement_value")
-        got_rv = got["recommendation"].pop("replacement_value")
-        assert got_rv == pytest.approx(ref_rv, abs=0.011)
         assert got == ref
     one = write_json(document(), "one.json")
     assert main(["study", str(one), "--json"]) == 0
@@ -163,15 +166,13 @@ def test_cli_fleet_output_equals_single_runs(capsys, write_json) -> None:
 
 
 def test_fleet_json_equals_to_json_of_run_study() -> None:
-    # Source: run_study(s).to_json() (reference); the fleet rounds all lists in one pass.
+    # Source: study_json(run_study(s)) (reference): one path, so the same object exactly.
     from core.fleet import run_fleet_json
 
     rng = random.Random(77)
     studies = [_random_study(rng, k) for k in range(200)]
     for got, s in zip(run_fleet_json(studies), studies, strict=True):
-        ref = run_study(s).to_json()
-        assert got["recommendation"].pop("replacement_value") == pytest.approx(
-            ref["recommendation"].pop("replacement_value"), abs=0.011)
+        ref = study_json(run_study(s))
         assert got == ref
         assert list(got) == list(ref)
         assert [list(a) for a in got["alternatives"]] == [list(a) for a in ref["alternatives"]]
@@ -193,7 +194,7 @@ def _fleet_file(write_json, n: int, mutate=None, name: str = "fleet.json"):
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="fork path is Linux only")
 def test_two_process_file_path_equals_serial(monkeypatch, write_json) -> None:
-    # Source: run_study(s).to_json() per study (reference) and parse_study_document's refusals.
+    # Source: study_json(run_study(s)) per study (reference) and parse_study_document's refusals.
     from core import fleet
     from core.errors import StudyError
     from core.studyfile import load_study_file
@@ -204,7 +205,7 @@ def test_two_process_file_path_equals_serial(monkeypatch, write_json) -> None:
     text = fleet.study_file_json_text(path)
     assert text is not None
     docs = [json.loads(line.rstrip(",")) for line in text.split("\n")]
-    ref = [run_study(s).to_json() for s in load_study_file(path)]
+    ref = [study_json(run_study(s)) for s in load_study_file(path)]
     assert [d["title"] for d in docs] == [r["title"] for r in ref]
     for got, want in zip(docs, ref, strict=True):
         got["recommendation"].pop("replacement_value")
@@ -260,3 +261,71 @@ def test_cli_two_process_path(monkeypatch, capsys, write_json) -> None:
     assert captured.out == ""
     assert captured.err.splitlines() == [
         "error: $.studies[5].challengers: a study needs at least one challenger"]
+
+
+def test_closed_form_replacement_value_matches_a_root_finder() -> None:
+    # Source: scipy.optimize.brentq as the reference: the market value at which the
+    # defender's best AW (recomputed by run_study at that market value) equals the best
+    # challenger's AW, on random studies before and after tax.
+    from scipy.optimize import brentq
+
+    from core.estimates import Depreciation, Tax
+
+    rng = random.Random(4242)
+    checked = 0
+    for k in range(40):
+        study = _random_study(rng, k)
+        if k % 2:
+            d = dataclasses.replace(study.defender, depreciation=Depreciation(
+                "straight_line", basis=30000.0, years=6, age=2))
+            chs = tuple(dataclasses.replace(c, depreciation=Depreciation("macrs", macrs_class=7))
+                        for c in study.challengers)
+            study = dataclasses.replace(study, defender=d, challengers=chs,
+                                        tax=Tax(0.3, max(study.marr, 0.0) * 0.7))
+        r = run_study(dataclasses.replace(study, study_period=None))
+        basis = r.decision
+        rv = basis.recommendation.replacement_value
+        target = basis.alternative(basis.recommendation.best_challenger)
+        target_aw = float(target.annual_worth_constant[target.economic_life - 1])
+
+        def gap(mv: float, study=study, target_aw=target_aw) -> float:
+            moved = dataclasses.replace(study, study_period=None,
+                                        defender=dataclasses.replace(study.defender, price=mv))
+            if study.defender.market_values.decline_rate is not None:
+                moved = dataclasses.replace(moved, defender=dataclasses.replace(
+                    moved.defender, market_values=MarketValues(
+                        values=tuple(study.defender.market_value_array().tolist()))))
+            b = run_study(moved).decision
+            return float(np.max(b.defender.annual_worth_constant)) - target_aw
+
+        lo, hi = rv - 1e6, rv + 1e6
+        ref = brentq(gap, lo, hi, xtol=1e-9, rtol=1e-14, maxiter=500)
+        assert rv == pytest.approx(ref, rel=1e-9, abs=1e-6)
+        checked += 1
+    assert checked == 40
+
+
+def test_batch_with_tax_inflation_and_periods_equals_single_runs() -> None:
+    # Source: core.study.run_study (reference): one path, so each study of a mixed batch
+    # (tax, inflation either way, study periods) gives its single-study result bit for bit.
+    from core.estimates import Depreciation, Inflation, Tax
+
+    rng = random.Random(99)
+    studies = []
+    for k in range(120):
+        s = _random_study(rng, k)
+        if k % 3 == 0:
+            d = dataclasses.replace(s.defender, depreciation=Depreciation(
+                "straight_line", basis=round(rng.uniform(1000, 50000), 2), years=6, age=2))
+            chs = tuple(dataclasses.replace(c, depreciation=Depreciation(
+                "macrs", macrs_class=rng.choice([3, 5, 7]))) for c in s.challengers)
+            s = dataclasses.replace(s, defender=d, challengers=chs,
+                                    tax=Tax(round(rng.uniform(0, 0.45), 3), 0.07))
+        if k % 4 == 1:
+            s = dataclasses.replace(s, inflation=Inflation(
+                round(rng.uniform(0.0, 0.06), 3), rng.choice(["constant", "then-current"])))
+        studies.append(s)
+    batch = run_fleet(studies)
+    for got, study in zip(batch, studies, strict=True):
+        _same(got, run_study(study))
+    assert sum(r.after_tax is not None for r in batch) == 40

@@ -15,6 +15,7 @@ import pytest
 from core.errors import StudyError
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
 from core.export import TABLES, TAX_TABLES, escape_cell, export_csv, export_xlsx, result_tables
+from core.jsonout import study_json
 from core.study import run_study
 
 EVIL = "=HYPERLINK(\"http://x\",\"y\")"
@@ -42,7 +43,7 @@ def test_safe_values_pass() -> None:
 
 def test_tables_hold_the_result_numbers() -> None:
     r = result()
-    js = r.to_json()
+    js = study_json(r)
     t = result_tables(r)
     assert set(t) == set(TABLES) - set(TAX_TABLES)  # no tax: no after-tax or comparison
     aw = t["annual_worth"]
@@ -69,7 +70,7 @@ def test_csv_round_trip_and_escaping(tmp_path: Path) -> None:
     assert rows[0][3] == "'" + EVIL and rows[0][4] == "'+New press"
     assert rows[1][0] == "'@Kestrel Road — press"
     assert [float(x) for x in (row[3] for row in rows[1:5])] == \
-        r.to_json()["alternatives"][0]["annual_worth"]
+        study_json(r)["alternatives"][0]["annual_worth"]
     assert not list(tmp_path.glob("*.part"))
     with pytest.raises(StudyError, match="unknown table"):
         export_csv(r, tmp_path / "x.csv", table="nope")
@@ -87,4 +88,4 @@ def test_xlsx_has_every_table_numbers_as_numbers_and_no_formulas(tmp_path: Path)
     aw = book["annual_worth"]
     assert aw["D1"].value == "'" + EVIL and aw["A2"].value == "'@Kestrel Road — press"
     assert isinstance(aw["D2"].value, (int, float)) and aw["D2"].data_type == "n"
-    assert aw["D2"].value == r.to_json()["alternatives"][0]["annual_worth"][0]
+    assert aw["D2"].value == study_json(r)["alternatives"][0]["annual_worth"][0]

@@ -27,7 +27,8 @@ from core.estimates import (  # noqa: E402
     Tax,
 )
 from core.study import run_study  # noqa: E402
-from desktop_app.charts import ChartPanel, format_money  # noqa: E402
+from core.text import money as format_money  # noqa: E402
+from desktop_app.charts import ChartPanel  # noqa: E402
 
 MARR = 0.09
 
@@ -113,7 +114,7 @@ def test_marginal_view_compares_defender_years_with_best_challenger(chart, resul
     chart.set_view("marginal")
     s = chart.series()
     np.testing.assert_allclose(s["Defender marginal cost"][1], result.defender.marginal_cost)
-    level = result.recommendation.one_more_year["challenger_annual_cost"]
+    level = result.recommendation.one_more_year.challenger_annual_cost
     np.testing.assert_allclose(s["Best challenger"][1], [level, level])
 
 
@@ -164,9 +165,9 @@ def test_after_tax_toggle_switches_the_plotted_basis(chart):
     taxed = run_study(make_study(tax=True))
     chart.set_result(taxed)
     assert chart.has_after_tax() and chart.basis() == "after-tax"
-    for alt in taxed.alternatives:
-        np.testing.assert_allclose(chart.series()[alt.name][1], -alt.after_tax.annual_worth)
-        assert chart.series()[f"{alt.name} ESL"][0][0] == alt.after_tax.economic_life
+    for alt in taxed.after_tax.alternatives:
+        np.testing.assert_allclose(chart.series()[alt.name][1], -alt.annual_worth)
+        assert chart.series()[f"{alt.name} ESL"][0][0] == alt.economic_life
     chart.set_basis("before-tax")
     for alt in taxed.alternatives:
         np.testing.assert_allclose(chart.series()[alt.name][1], -alt.annual_worth)
@@ -270,3 +271,17 @@ def test_svg_export_leaves_no_untransformed_rectangles(chart, result_period, tmp
              if not in_defs(r) and r.getAttribute("width") != "100%"]
     assert stray == []
     assert all(" Z" not in p.getAttribute("d") for p in doc.getElementsByTagName("path"))
+
+
+def test_marginal_view_after_tax_falls_back_to_before_tax_on_both_sides(chart):
+    # hand check: the after-tax basis has no marginal costs, so the bars are the before-tax
+    # MC_j and the level must be the before-tax best challenger's EAC (not the after-tax one)
+    taxed = run_study(make_study(tax=True))
+    chart.set_result(taxed)
+    chart.set_basis("after-tax")
+    chart.set_view("marginal")
+    s = chart.series()
+    np.testing.assert_allclose(s["Defender marginal cost"][1], taxed.defender.marginal_cost)
+    level = taxed.before_tax.one_more_year.challenger_annual_cost
+    np.testing.assert_allclose(s["Best challenger"][1], [level, level])
+    assert level != pytest.approx(taxed.after_tax.one_more_year.challenger_annual_cost)

@@ -114,9 +114,9 @@ def test_after_tax_basis_and_before_tax_note(panel):
     panel.set_result(result)
     assert panel.basis_text().startswith("Basis: after tax (tax rate 25 %")
     assert "Before tax the study" in panel.before_tax_label.text()
-    new = result.alternative("New press")
+    new = result.after_tax.alternative("New press")
     row = next(r for r in panel.figures_rows() if r[1] == "New press")
-    assert row[3].startswith(str(new.after_tax.economic_life))
+    assert row[3].startswith(str(new.economic_life))
 
 
 def test_clicking_a_row_emits_the_alternative(panel, qtbot):

@@ -19,6 +19,7 @@ from pypdf import PdfReader
 
 from core.cli import main
 from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
+from core.jsonout import risk_json
 from core.memo.cautions import CAUTIONS_FILE, caution_texts, parse_cautions
 from core.memo.identity import load_identity, new_identity
 from core.memo.issue import issue_memo
@@ -140,38 +141,29 @@ def test_study_period_options_are_listed():
     assert _norm(sentence) in text
 
 
-class _FakeRisk:
-    def to_json(self):
-        return {"probability_replace": 0.734,
-                "annual_worth_difference": {"p10": -1200.0, "p50": 2100.0, "p90": 5400.0},
-                "breakeven": {"CNC lathe Ouseburn-7.first_cost": 88123.0,
-                              "Lathe L-4 (2009).operating_costs.first": None}}
+def test_after_tax_and_risk_sections_read_the_typed_result():
+    # Source: the typed result itself (hand check of what the memo must print).
+    from core.estimates import Depreciation, Distribution, Tax, Uncertainty
 
-
-class _FakeAT:
-    def __init__(self, aw, esl):
-        self.aw, self.esl = aw, esl
-
-    def to_json(self):
-        return {"annual_worth": self.aw, "economic_life": self.esl}
-
-
-def test_after_tax_and_risk_sections_are_read_defensively(result):
-    alts = tuple(dataclasses.replace(a, after_tax=_FakeAT([float(v) * 0.7 for v in a.annual_worth],
-                                                          a.economic_life))
-                 for a in result.alternatives)
-    res = dataclasses.replace(result, alternatives=alts, risk=_FakeRisk(),
-                              after_tax=_FakeAT([1.0], 1))
+    base = _study(title="Millbrook lathe L-4, tax and risk")
+    ch = base.challengers[0].name
+    st = dataclasses.replace(
+        base, tax=Tax(0.25, 0.06),
+        defender=dataclasses.replace(base.defender, depreciation=Depreciation(
+            "straight_line", basis=40000.0, years=8, age=4)),
+        challengers=tuple(dataclasses.replace(c, depreciation=Depreciation("macrs", macrs_class=7))
+                          for c in base.challengers),
+        uncertainty=Uncertainty(300, 5, ((f"{ch}.first_cost",
+                                          Distribution("uniform", (60000.0, 90000.0))),)))
+    res = run_study(st)
     text = _text(render_memo(res))
-    assert "After-tax results" in text
-    assert "Risk" in text and "73.4%" in text
-    assert "88,123" in text and "does not flip within a tenfold range" in text
-    assert "5,400" in text
-    # an object whose to_json fails must not break the memo
-    class Broken:
-        def to_json(self):
-            raise RuntimeError("boom")
-    assert render_memo(dataclasses.replace(result, risk=Broken()))[:5] == b"%PDF-"
+    assert "After-tax results" in text and "Risk" in text
+    assert f"{res.risk.probability_replace:.1%}" in text
+    for alt in res.after_tax.alternatives:
+        assert money(alt.tax.tax_basis) in text
+    value = res.risk.breakeven[f"{ch}.first_cost"]
+    assert ("does not flip within a tenfold range" in text) if value is None \
+        else (money(value) in text)
 
 
 def test_caution_texts_come_from_the_resource_file():
@@ -419,9 +411,8 @@ def test_after_tax_memo_prints_after_tax_figures():
     from core.memo.page_one import page_one_facts
 
     assert _norm(page_one_facts(res, "£").sentence) in text
-    for alt in res.alternatives:
-        at = alt.after_tax.to_json()
-        assert money(-at["annual_worth_at_economic_life"]) in text  # after-tax EAC at ESL
+    for alt in res.after_tax.alternatives:
+        assert money(-alt.annual_worth_at_economic_life) in text  # after-tax EAC at ESL
     assert "25%" in text and "6%" in text
 
 
@@ -523,7 +514,7 @@ def test_risk_memo_prints_the_simulation_results():
     res = run_study(st)
     if res.risk is None:
         pytest.skip("risk analysis not available")
-    d = res.risk.to_json()
+    d = risk_json(res.risk)
     text = _text(render_memo(res))
     assert "Risk" in text and "400 trials" in text
     assert f"{d['probability_replace'] * 100:.1f}%" in text

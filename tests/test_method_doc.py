@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from core.depreciation import MACRS_CLASSES, macrs_rates
+from core.jsonout import study_json
 from core.memo.cautions import caution_texts, parse_cautions
 from core.study import run_study
 from core.studyfile import canonical_json, fingerprint, loads_study_document, parse_study_document
@@ -212,7 +213,7 @@ def test_section_6_json_keys_are_the_ones_the_result_writes() -> None:
         "challengers": [{"name": "C", "first_cost": 3000, "max_life": 3,
                          "market_values": {"decline_rate": 0.2},
                          "operating_costs": {"first": 100}}]}))[0]
-    out = run_study(study).to_json()
+    out = study_json(run_study(study))
     section = _sections()[6]
     for key in list(out) + list(out["alternatives"][0]) + list(out["recommendation"]):
         assert f'"{key}"' in section, key

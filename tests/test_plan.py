@@ -172,17 +172,22 @@ def test_unconstrained_plan_is_each_study_planned_year(horizon: int) -> None:
     assert checked == len(studies) and plan.budget_cost == 0.0
 
 
-def test_keep_values_batch_equals_one_by_one() -> None:
-    # reference: the scalar keep_values the study decision uses (core.study.decide)
-    from core.study import keep_values
+def test_keep_values_batch_equals_the_formula_one_by_one() -> None:
+    # Reference: V_j = PW_D(j) - AW_c (P/A,i,j) with (P/A,i,j) = ((1+i)^j - 1)/(i (1+i)^j),
+    # the standard uniform-series present-worth factor, written out per asset and year.
+    from core.decision import keep_values
+    from core.factors import pa
 
     rng = np.random.default_rng(3)
     aw = -rng.uniform(100, 900, (6, 5))
     c = -rng.uniform(100, 900, 6)
-    i = rng.uniform(0, 0.2, 6)
-    batch = keep_values(aw, c, i)
+    i = rng.uniform(0.01, 0.2, 6)
+    batch = keep_values(aw, c, pa(i[:, None], np.arange(1, 6)))
     for k in range(6):
-        assert batch[k].tolist() == keep_values(aw[k], float(c[k]), float(i[k])).tolist()
+        for j in range(1, 6):
+            factor = ((1 + i[k]) ** j - 1) / (i[k] * (1 + i[k]) ** j)
+            assert batch[k, j] == pytest.approx(aw[k, j - 1] * factor - c[k] * factor, rel=1e-12)
+        assert batch[k, 0] == 0.0
 
 
 def test_must_replace_beyond_budget_is_refused() -> None:

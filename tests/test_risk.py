@@ -9,9 +9,13 @@ import math
 import numpy as np
 import pytest
 
+from core import factors as f
 from core import risk
-from core.annual_worth import annual_worth_schedule
+from core.annual_worth import annual_worth_parts, annual_worth_schedule
 from core.estimates import Distribution
+from core.factors import factor_table
+from core.jsonout import risk_json, study_json
+from core.report import format_risk
 from core.risk import distributions as dists
 from core.study import run_study
 from core.studyfile import parse_study
@@ -60,15 +64,24 @@ def deterministic_difference(study) -> tuple[float, str]:
 
 
 # ------------------------------------------------------------------ the engine kernel
-def test_batch_kernel_matches_annual_worth_schedule():
+def test_batch_kernel_matches_the_factor_formula():
+    # hand formula: AW_k = -[P(A/P,i,k) - S_k(A/F,i,k)] - [sum_{j<=k} C_j(P/F,i,j)](A/P,i,k),
+    # each factor from core.factors one value at a time (themselves checked against
+    # numpy-financial in test_factors.py); the risk trials use this batch kernel.
     rng = np.random.default_rng(0)
     P = rng.uniform(1e4, 1e5, 50)
     S = rng.uniform(0, 1e4, (50, 8))
     C = rng.uniform(1e3, 5e3, (50, 8))
     i = rng.uniform(0.0, 0.2, 50)
     i[0] = 0.0  # the i == 0 limit
-    ref = annual_worth_schedule(P, S, C, i).annual_worth
-    np.testing.assert_allclose(risk.annual_worth_batch(P, S, C, i), ref, rtol=1e-12, atol=1e-8)
+    got = annual_worth_parts(P, S, C, factor_table(i, 8))[0]
+    for r in range(50):
+        for k in range(1, 9):
+            pw_c = sum(C[r, j - 1] * float(f.pf(i[r], j)) for j in range(1, k + 1))
+            ref = -(P[r] * float(f.ap(i[r], k)) - S[r, k - 1] * float(f.af(i[r], k))) \
+                - pw_c * float(f.ap(i[r], k))
+            assert got[r, k - 1] == pytest.approx(ref, rel=1e-10, abs=1e-8)
+    np.testing.assert_array_equal(got, annual_worth_schedule(P, S, C, i).annual_worth)
 
 
 def test_engine_at_the_estimates_is_the_deterministic_study():
@@ -246,7 +259,7 @@ def test_triangular_quantiles_by_hand():
 def test_json_keys_and_text():
     study = make(trials=1000)
     res = run_study(study)
-    out = res.to_json()["risk"]
+    out = study_json(res)["risk"]
     for key in ("probability_replace", "probability_replace_standard_error",
                 "annual_worth_difference", "breakeven", "tornado",
                 "economic_life_distribution", "annual_worth_difference_histogram",
@@ -262,7 +275,7 @@ def test_json_keys_and_text():
     assert len(grid["replace"]) == len(grid["y_values"])
     assert len(grid["replace"][0]) == len(grid["x_values"])
     json.dumps(out, allow_nan=False)
-    text = res.risk.format_text()
+    text = format_risk(res.risk)
     assert "Tornado" in text and "Breakeven" in text and "Replace wins in" in text
 
 
@@ -321,12 +334,12 @@ def test_study_period_without_a_replace_now_option():
     study = make(trials=200, study_period=14)
     result = run_study(study).risk
     assert result.probability_replace == 0.0
-    out = result.to_json()
+    out = risk_json(result)
     assert out["annual_worth_difference"]["p50"] is None
     assert any("undefined" in n for n in out["notes"])
     assert all(v is None for v in out["breakeven"].values())
     json.dumps(out, allow_nan=False)
-    assert "Replace wins in 0.0%" in result.format_text()
+    assert "Replace wins in 0.0%" in format_risk(result)
 
 
 def test_share_below_by_hand():
@@ -348,7 +361,7 @@ def test_marr_drawn_below_zero_or_near_minus_one_is_noted():
     assert len(notes) == 2
     assert notes[0].startswith("4") and "below zero" in notes[0]  # about 44 % below zero
     assert "narrow the MARR distribution" in notes[1]
-    assert notes == [n for n in wide.to_json()["notes"] if "MARR draws" in n]
+    assert notes == [n for n in risk_json(wide)["notes"] if "MARR draws" in n]
     slightly = risk.run_risk(make({"marr": {"uniform": [-0.01, 0.09]}}, trials=500))
     assert [n for n in slightly.notes if "MARR draws" in n] == [
         "10% of the MARR draws are below zero (a negative required return); check that the "

@@ -10,6 +10,7 @@ import pytest
 from test_risk import BASE, INPUTS  # tests/ is on sys.path (pytest rootdir insertion)
 
 from core import risk
+from core.jsonout import risk_json
 from core.study import run_study
 from core.studyfile import parse_study
 
@@ -49,12 +50,11 @@ def test_trials_match_naive_run_study(tax, inflation, period):
         res = run_study(case)
         rec = res.recommendation
         assert sim.replace[t] == (rec.action == "replace" and rec.defender_years in (None, 0))
-        for alt in res.alternatives:
-            esl = alt.after_tax.economic_life if tax else alt.economic_life
-            assert sim.economic_life[alt.name][t] == esl
+        for alt in res.decision.alternatives:
+            assert sim.economic_life[alt.name][t] == alt.economic_life
         if tax and period is None:
-            aw = {a.name: a.after_tax.annual_worth_constant[a.after_tax.economic_life - 1]
-                  for a in res.alternatives}
+            aw = {a.name: a.annual_worth_constant[a.economic_life - 1]
+                  for a in res.after_tax.alternatives}
             best = max(aw[c.name] for c in res.challengers)
             assert sim.difference[t] == pytest.approx(best - aw[res.defender.name], abs=1e-6)
 
@@ -62,7 +62,7 @@ def test_trials_match_naive_run_study(tax, inflation, period):
 def test_after_tax_basis_is_stated_and_breakevens_hold():
     study = make(trials=300)
     res = run_study(study)
-    out = res.risk.to_json()
+    out = risk_json(res.risk)
     assert out["basis"] == "after-tax"
     assert res.risk.base_action == res.recommendation.action
     checked = 0
@@ -70,8 +70,8 @@ def test_after_tax_basis_is_stated_and_breakevens_hold():
         if value is None:
             continue
         r = run_study(risk.perturbed_study(study, {address: value}))
-        aw = {a.name: a.after_tax.annual_worth_constant[a.after_tax.economic_life - 1]
-              for a in r.alternatives}
+        aw = {a.name: a.annual_worth_constant[a.economic_life - 1]
+              for a in r.after_tax.alternatives}
         gap = max(aw[c.name] for c in r.challengers) - aw[r.defender.name]
         assert abs(gap) <= 0.01, (address, value, gap)
         checked += 1

@@ -18,6 +18,8 @@ from core.estimates import (
     Study,
     Tax,
 )
+from core.jsonout import study_json
+from core.report import format_after_tax
 from core.study import run_study
 
 
@@ -54,13 +56,13 @@ def test_hand_worked_straight_line_case() -> None:
     #        PW = -5,400 - 1,000/1.1 + 700/1.21 = -5,730.58; AW_2 = -3,301.90  -> ESL 1
     # Decision: keep (-2,940.00 > -3,704.76).
     r = run_study(hand_study())
-    ch = r.alternative("New lathe").after_tax
-    de = r.alternative("Old lathe").after_tax
+    ch = r.after_tax.alternative("New lathe")
+    de = r.after_tax.alternative("Old lathe")
     assert ch.annual_worth.tolist() == pytest.approx([-4000.00, -3704.76], abs=0.01)
     assert de.annual_worth.tolist() == pytest.approx([-2940.00, -3301.90], abs=0.01)
     assert (ch.economic_life, de.economic_life) == (2, 1)
-    assert float(de.initial) == pytest.approx(5400.0)
-    assert float(de.book_value_0) == pytest.approx(6000.0)
+    assert float(de.tax.initial) == pytest.approx(5400.0)
+    assert float(de.tax.book_value_0) == pytest.approx(6000.0)
     assert r.recommendation.basis == "after-tax"
     assert r.recommendation.action == "keep"
     assert r.before_tax_recommendation.basis == "before-tax"
@@ -163,12 +165,12 @@ def test_zero_tax_equals_before_tax(period) -> None:
     # common practice, no source: with t = 0 and after-tax MARR = MARR, after tax = before tax
     r = run_study(_rich_study(period))
     for alt in r.alternatives:
-        assert alt.after_tax.annual_worth == pytest.approx(alt.annual_worth, abs=1e-6)
-        assert alt.after_tax.economic_life == alt.economic_life
+        assert r.after_tax.alternative(alt.name).annual_worth == pytest.approx(alt.annual_worth, abs=1e-6)
+        assert r.after_tax.alternative(alt.name).economic_life == alt.economic_life
     a, b = r.recommendation, r.before_tax_recommendation
     assert (a.action, a.challenger, a.defender_years) == (b.action, b.challenger, b.defender_years)
     assert a.replacement_value == pytest.approx(b.replacement_value, abs=1e-4)
-    before = r.after_tax.before_tax_study_period_options
+    before = r.before_tax.study_period_options
     for x, y in zip(r.study_period_options, before, strict=True):
         assert (x.annual_worth is None) == (y.annual_worth is None)
         if x.annual_worth is not None:
@@ -184,15 +186,15 @@ def test_esl_ties_go_to_the_shorter_life() -> None:
     c = dataclasses.replace(d, name="C", role="challenger",
                             depreciation=Depreciation("straight_line", years=2))
     r = run_study(Study("tie", 0.0, d, (c,), tax=Tax(0.0, 0.0)))
-    assert r.alternative("C").after_tax.annual_worth.tolist() == pytest.approx([-50.0, -50.0])
-    assert r.alternative("C").after_tax.economic_life == 1
+    assert r.after_tax.alternative("C").annual_worth.tolist() == pytest.approx([-50.0, -50.0])
+    assert r.after_tax.alternative("C").economic_life == 1
 
 
 def test_text_and_json_blocks() -> None:
     r = run_study(hand_study())
-    text = r.after_tax.format_text()
+    text = format_after_tax(r.after_tax, r.before_tax)
     assert "After-tax cash flows of keeping New lathe 2 years" in text
-    js = r.to_json()
+    js = study_json(r)
     at = js["alternatives"][1]["after_tax"]
     assert at["economic_life"] == 2
     assert len(at["annual_worth"]) == 2
@@ -211,7 +213,7 @@ def test_decision_annual_worth_matches_analyse() -> None:
     for alt in study.alternatives:
         aw = decision_annual_worth(study, alt, np.array([alt.price, alt.price]))
         assert aw.shape == (2, alt.max_life)
-        assert aw[1] == pytest.approx(r.alternative(alt.name).after_tax.annual_worth_constant)
+        assert aw[1] == pytest.approx(r.after_tax.alternative(alt.name).annual_worth_constant)
 
 
 def test_tables_against_numpy_financial() -> None:
@@ -221,8 +223,8 @@ def test_tables_against_numpy_financial() -> None:
     study = dataclasses.replace(_rich_study(), tax=Tax(0.35, 0.065))
     r = run_study(study)
     for alt in r.alternatives:
-        at = alt.after_tax
-        for k, tab in enumerate(at.tables, start=1):
+        at = r.after_tax.alternative(alt.name)
+        for k, tab in enumerate(at.tax.tables, start=1):
             pw = npf.npv(0.065, tab.net)
             aw = -npf.pmt(0.065, k, pw)
             assert aw == pytest.approx(at.annual_worth[k - 1], abs=1e-6)

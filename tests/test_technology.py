@@ -24,6 +24,7 @@ from core.estimates import (
     Tax,
     Technology,
 )
+from core.jsonout import study_json
 from core.study import run_study
 from core.technology import technology_plan
 
@@ -262,7 +263,7 @@ def test_zero_tax_after_tax_plan_equals_before_tax_plan_with_inflation(estimates
 def test_adding_the_block_changes_no_other_figure() -> None:
     plain = dataclasses.replace(_study(6, (CH1, CH2), -0.05, -0.05, True), technology=None)
     with_plan = run_study(dataclasses.replace(plain, technology=Technology(6, -0.05, -0.05)))
-    a, b = run_study(plain).to_json(), with_plan.to_json()
+    a, b = study_json(run_study(plain)), study_json(with_plan)
     plan = b.pop("technology_plan")
     assert a == {k: v for k, v in b.items() if k != "fingerprint"} | {"fingerprint":
                                                                        a["fingerprint"]}

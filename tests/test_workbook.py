@@ -23,6 +23,7 @@ from core.estimates import (
     Tax,
 )
 from core.history import fit_operating_costs
+from core.jsonout import study_json
 from core.study import run_study
 from core.studyfile import dump_study_document, fingerprint, load_study_file
 from core.workbook import (
@@ -79,7 +80,7 @@ def test_register_sites_and_assets(wb: Workbook) -> None:
 
 def test_study_years_restudy_and_snapshot(wb: Workbook) -> None:
     study = make_study(tax=True)
-    result = run_study(study).to_json()
+    result = study_json(run_study(study))
     fp = wb.save_study("AC-101", 2025, study, result)
     assert fp == fingerprint(study)
     assert wb.study("AC-101") == study
@@ -133,7 +134,7 @@ def test_history_and_fits_kept_with_study(wb: Workbook) -> None:
 
 def test_memo_register_and_module_hook(wb: Workbook, tmp_path: Path) -> None:
     study = make_study()
-    fp = wb.save_study("AC-101", 2026, study, run_study(study).to_json())
+    fp = wb.save_study("AC-101", 2026, study, study_json(run_study(study)))
     when = dt.datetime(2026, 3, 2, 9, 30, tzinfo=dt.UTC)
     wb.record_memo("AC-101", 2026, fp, "A. Signer", tmp_path / "memo.pdf", when)
     # the memo dialog's hook finds the open writer and the asset-year from the fingerprint
@@ -228,7 +229,7 @@ def test_save_studies_maps_titles_to_assets(tmp_path: Path) -> None:
     first = make_study("Kestrel Road — AC-101 compressor")
     other = Study("Loose study", 0.1, dataclasses.replace(DEFENDER, depreciation=None),
                   (dataclasses.replace(CHALLENGER, depreciation=None),))
-    where = save_studies(p, [first, other], 2025, {first.title: run_study(first).to_json()},
+    where = save_studies(p, [first, other], 2025, {first.title: study_json(run_study(first))},
                          company="Harrowgate")
     assert where == [("AC-101", 2025), ("A-001", 2025)]
     with Workbook.open(p) as wb:
@@ -237,7 +238,7 @@ def test_save_studies_maps_titles_to_assets(tmp_path: Path) -> None:
         assert wb.asset("A-001").site == "Unassigned"
         assert wb.record("AC-101").action == "replace" and wb.record("A-001").action is None
     edited = dataclasses.replace(first, marr=0.12)
-    assert save_studies(p, [edited], 2026, {first.title: run_study(first).to_json()}) == [
+    assert save_studies(p, [edited], 2026, {first.title: study_json(run_study(first))}) == [
         ("AC-101", 2026)]
     with Workbook.open(p) as wb:
         assert wb.years("AC-101") == [2025, 2026] and wb.study("AC-101", 2025) == first

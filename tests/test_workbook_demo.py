@@ -15,6 +15,7 @@ from pathlib import Path
 import pytest
 
 from core import demo
+from core.jsonout import study_json
 from core.study import run_study
 from core.workbook import SCHEMA_VERSION, Workbook, studies_from_workbook
 
@@ -47,7 +48,7 @@ def test_demo_fleet_contents(demo_book: Path) -> None:
         assert any(r.study.study_period is not None for r in records)
         # the snapshot is the engine's answer for the stored study
         for r in records:
-            assert run_study(r.study).to_json() == r.result_json
+            assert study_json(run_study(r.study)) == r.result_json
             assert r.study.title.startswith(wb.asset(r.tag).site + " — ")
         # a year of history: last year's studies and imported cost history with fits
         restudied = [a.tag for a in assets if len(wb.years(a.tag)) > 1]

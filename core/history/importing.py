@@ -262,10 +262,11 @@ def import_history(table: pd.DataFrame, mapping: ColumnMapping,
         kind = default_kind
         if mapping.kind is not None and not _blank(row[mapping.kind]):
             word = str(row[mapping.kind]).strip()
-            kind = KIND_WORDS.get(word.lower())
-            if kind is None:
+            found = KIND_WORDS.get(word.lower())
+            if found is None:
                 reject(f"kind '{word}' is not operating, maintenance or resale")
                 continue
+            kind = found
         if _blank(row[mapping.amount]):
             reject("no amount")
             continue
@@ -429,5 +430,5 @@ def yearly_totals(rows: list[HistoryRow] | tuple[HistoryRow, ...],
     uniq, inverse = np.unique(ages, return_inverse=True)
     totals = np.bincount(inverse, weights=amounts)
     if kinds == ("resale",):
-        totals = totals / np.bincount(inverse)
+        totals = totals / np.bincount(inverse).astype(float)
     return uniq, totals

@@ -22,8 +22,10 @@ import json
 import sys
 from pathlib import Path
 
-from core.errors import escape_text
+from core.errors import StudyError, error_line, escape_text
+from core.loading import load_studies
 from core.memo.errors import MemoError
+from core.memo.roles import ROLES
 
 __all__ = ["register", "run_memo", "run_sign", "run_verify", "run_identity", "load_one_study"]
 
@@ -33,17 +35,11 @@ def _guard(fn):
 
     def wrapped(args: argparse.Namespace) -> int:
         try:
-            from core.errors import StudyError
-        except Exception:  # pragma: no cover
-            StudyError = MemoError  # noqa: N806
-        try:
             code = int(fn(args) or 0)
             for warning in getattr(args, "warnings", []):
                 print(f"warning: {escape_text(warning)}", file=sys.stderr)
             return code
         except (MemoError, StudyError) as e:
-            from core.errors import error_line
-
             print(error_line(e), file=sys.stderr)
             return 2
 
@@ -54,19 +50,8 @@ def _guard(fn):
 
 def load_one_study(path: str, title: str | None):
     """The one study of FILE (a study JSON or a workbook) a memo is about."""
-    try:
-        from core.cli import load_studies
-    except Exception:  # noqa: BLE001 - fall back to the study-file loader
-        load_studies = None
     p = Path(path)
-    if load_studies is not None:
-        studies = load_studies(p)
-    else:  # pragma: no cover
-        if not p.exists():
-            raise MemoError(str(p), "no such file")
-        from core.studyfile import load_study_file
-
-        studies = load_study_file(p)
+    studies = load_studies(p)
     if title is not None:
         chosen = [s for s in studies if s.title == title]
         if not chosen:  # a workbook's asset tag
@@ -126,7 +111,7 @@ def run_memo(args: argparse.Namespace) -> int:
     if not out.parent.exists():
         raise MemoError("-o", f"folder {out.parent} does not exist")
     passphrase = _passphrase(args) if args.sign else None
-    if args.sign:  # fail on a wrong passphrase before any work is done
+    if args.sign and passphrase is not None:  # a wrong passphrase fails before any work
         from core.memo.identity import load_identity
 
         load_identity(args.sign, passphrase)
@@ -255,7 +240,6 @@ def run_identity(args: argparse.Namespace) -> int:
 
 def register(subparsers) -> None:
     """Add memo, sign, verify and identity to the ``tenure`` sub-command parsers."""
-    from core.memo.sign import ROLES
 
     m = subparsers.add_parser(
         "memo", help="write the signed decision memo (PDF) of one study",

@@ -10,13 +10,10 @@ the form the CLI prints after ``error: `` (docs/method.md §6).
 
 from __future__ import annotations
 
-try:  # share the lead's error type when it exists, so one handler catches both
-    from core.errors import StudyError as _Base
-except Exception:  # pragma: no cover - core.errors not there yet
-    _Base = Exception  # type: ignore[misc,assignment]
+from core.errors import StudyError
 
 
-class MemoError(_Base):  # type: ignore[misc,valid-type]
+class MemoError(StudyError):
     """Bad input or a failed operation in memo rendering, signing or verifying."""
 
     def __init__(self, path: str, message: str):

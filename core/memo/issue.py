@@ -15,7 +15,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import os
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -25,6 +24,7 @@ from typing import Any
 from core.memo.errors import MemoError
 from core.memo.render import MemoOptions, render_memo_pages
 from core.memo.sign import _atomic_write, sign_pdf_bytes
+from core.studyfile import fingerprint
 
 __all__ = ["IssuedMemo", "issue_memo"]
 
@@ -56,8 +56,6 @@ def issue_memo(
 
     ``progress(percent, text)`` is called at each step (the window's progress bar).
     """
-    from core.studyfile import fingerprint
-
     def step(p: int, text: str) -> None:
         if progress is not None:
             progress(p, text)
@@ -76,13 +74,14 @@ def issue_memo(
         signer_name = info.common_name
         names = opts.names()
         if not names.get(role):
-            opts = dataclasses.replace(opts, **{f"{role}_by": info.common_name})
+            opts = opts.with_signer(role, info.common_name)
     step(15, "Laying out the memo")
     pdf, pages = render_memo_pages(result, opts)
     step(70, "Attaching the study")
     role_done = None
     if identity is not None:
         step(80, "Signing")
+        assert passphrase is not None  # checked above
         pdf, res = sign_pdf_bytes(pdf, identity, passphrase, role)
         role_done = res.role
         signer_name = res.signer

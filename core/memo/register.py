@@ -1,7 +1,6 @@
 """Record an issued memo in the workbook's memo register (docs/method.md §7), when there is one.
 
-Calls ``core.workbook.record_memo`` lazily (the workbook package belongs to
-another part of the project), passing only the keyword arguments it accepts.
+Calls ``core.workbook.record_memo``, passing only the keyword arguments it accepts.
 Recording never makes issuing fail: problems come back as a short note.
 """
 
@@ -9,6 +8,8 @@ from __future__ import annotations
 
 import inspect
 from typing import Any
+
+import core.workbook
 
 __all__ = ["record_in_workbook"]
 
@@ -21,13 +22,7 @@ def record_in_workbook(workbook_path: str | None, issued: Any) -> str | None:
     """
     if not workbook_path:
         return None
-    try:
-        from core import workbook  # lazily: another helper's package
-    except Exception:  # noqa: BLE001
-        return "the workbook register is not available in this build"
-    fn = getattr(workbook, "record_memo", None)
-    if not callable(fn):
-        return "the workbook register is not available in this build"
+    fn = core.workbook.record_memo  # looked up at call time (tests put a stand-in there)
     meta = {
         "memo_path": issued.path, "pdf_path": issued.path, "memo": issued.path,
         "fingerprint": issued.fingerprint, "study_fingerprint": issued.fingerprint,

@@ -26,6 +26,7 @@ b'%PDF-'
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import io
 import math
@@ -50,6 +51,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from core import text
 from core.bases import basis_views
 from core.currency import currency_symbol, format_money
 from core.memo.cautions import caution_texts
@@ -57,6 +59,8 @@ from core.memo.chart import aw_chart
 from core.memo.fonts import FB, FI, FR
 from core.memo.page_one import AssetFacts, PageMarker, page_one_facts, page_one_flowables
 from core.memo.sign import ROLES, finish_pdf
+from core.studyfile import dump_study_document, fingerprint, is_rate_input
+from core.text import percent
 
 __all__ = ["MemoOptions", "render_memo", "render_memo_pages", "money", "PAGE_SIZES"]
 
@@ -111,23 +115,13 @@ LEGEND = (
 
 
 def money(x: float | None, decimals: int = 0) -> str:
-    """Thousands separators, ASCII minus, '-' never on a zero; blank for None.
+    """Amounts as the memo prints them (``core.text.money``): blank for None, 'n/a' when
+    undefined; the currency is named in each column head.
 
     >>> money(-12345.6), money(0.4), money(1234.5, 2), money(None)
     ('-12,346', '0', '1,234.50', '')
     """
-    if x is None:
-        return ""
-    try:
-        v = float(x)
-    except (TypeError, ValueError):
-        return str(x)
-    if not math.isfinite(v):
-        return "n/a"
-    r = round(v, decimals)
-    if r == 0:
-        r = 0.0
-    return f"{r:,.{decimals}f}"
+    return text.money(x, decimals=decimals, missing="", not_finite="n/a")
 
 
 def pct(x: float | None) -> str:
@@ -166,6 +160,14 @@ class MemoOptions:
     def names(self) -> dict[str, str | None]:
         return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
                 "approved": self.approved_by}
+
+    def with_signer(self, role: str, name: str) -> MemoOptions:
+        """These options with ``name`` in the sign-off box of ``role``."""
+        if role == "prepared":
+            return dataclasses.replace(self, prepared_by=name)
+        if role == "reviewed":
+            return dataclasses.replace(self, reviewed_by=name)
+        return dataclasses.replace(self, approved_by=name)
 
 
 # --------------------------------------------------------------------------- styles
@@ -319,51 +321,6 @@ def _fit(text: str, width: float, c, size: float) -> str:
 
 
 # --------------------------------------------------------------------------- helpers
-def _to_json(obj: Any) -> dict | None:
-    if obj is None:
-        return None
-    if isinstance(obj, dict):
-        return obj
-    fn = getattr(obj, "to_json", None)
-    if callable(fn):
-        try:
-            out = fn()
-        except Exception:  # noqa: BLE001 - another helper's object; be defensive
-            return None
-        return out if isinstance(out, dict) else None
-    return None
-
-
-def _label(key: str) -> str:
-    return key.replace("_", " ").capitalize()
-
-
-def _fmt_value(v: Any, key: str = "") -> str:
-    if v is None:
-        return "-"
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, int):
-        return f"{v:,}" if abs(v) >= 10000 else str(v)
-    if isinstance(v, float):
-        k = key.lower()
-        if any(w in k for w in ("probability", "share", "rate", "marr")) and abs(v) <= 1.5:
-            return pct(v) if "probability" not in k and "share" not in k else f"{v * 100:.1f}%"
-        return money(v, 2 if abs(v) < 100 else 0)
-    if isinstance(v, (list, tuple)):
-        if all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in v):
-            return ", ".join(_fmt_value(x, key) for x in v)
-        return "; ".join(_fmt_value(x, key) for x in v)
-    if isinstance(v, dict):
-        return "; ".join(f"{_label(k)}: {_fmt_value(x, k)}" for k, x in v.items())
-    return str(v)
-
-
-def _generic_rows(d: dict, skip: Iterable[str] = ()) -> list[list[str]]:
-    skip = set(skip)
-    return [[_label(k), _fmt_value(v, k)] for k, v in d.items() if k not in skip]
-
-
 # --------------------------------------------------------------------------- sections
 class _Builder:
     def __init__(self, result: Any, opts: MemoOptions, width: float):
@@ -397,9 +354,8 @@ class _Builder:
 
     def key_figures(self):
         r, s, cur = self.r, self.s, self.cur
-        ats = {a.name: _to_json(getattr(a, "after_tax", None)) for a in r.alternatives}
-        with_tax = all(isinstance(d, dict) and isinstance(d.get("economic_life"), int)
-                       for d in ats.values())
+        ats = {a.name: a for a in r.after_tax.alternatives} if r.after_tax is not None else {}
+        with_tax = r.after_tax is not None
         self.h("Key figures" + (" (decision basis: after tax)"
                                 if r.recommendation.basis == "after-tax" else " (before tax)"))
         rows = [["#", "Alternative", "Role", f"Price ({cur})", "Max life",
@@ -409,15 +365,14 @@ class _Builder:
                            f"EAC after tax ({cur}/yr)"]
         order = r.ranking
         if with_tax and r.recommendation.basis == "after-tax":
-            order = sorted(r.alternatives, key=lambda a: ats[a.name].get("rank") or 0)
+            order = sorted(r.alternatives, key=lambda a: ats[a.name].rank)
         for n, a in enumerate(order, 1):
             row = [str(n if with_tax else a.rank), Paragraph(escape(a.name), s["cell"]), a.role,
                    money(a.price), yrs(a.max_life), yrs(a.economic_life)]
             if with_tax:
                 d = ats[a.name]
-                at_esl = d.get("annual_worth_at_economic_life")
-                row += [money(-a.annual_worth_at_economic_life), yrs(d["economic_life"]),
-                        money(-at_esl) if isinstance(at_esl, (int, float)) else "-"]
+                row += [money(-a.annual_worth_at_economic_life), yrs(d.economic_life),
+                        money(-d.annual_worth_at_economic_life)]
             else:
                 row += [money(a.annual_worth_at_economic_life),
                         money(-a.annual_worth_at_economic_life)]
@@ -432,8 +387,8 @@ class _Builder:
         rec = r.recommendation
         facts = [["Basis of the recommendation", rec.basis],
                  ["Interest rate used for AW" + (" before tax" if r.study.tax else ""),
-                  pct(getattr(r, "rate", r.study.marr))
-                  + ("" if getattr(r, "rate", r.study.marr) == r.study.marr
+                  pct(r.before_tax.rate)
+                  + ("" if r.before_tax.rate == r.study.marr
                      else f" (MARR {pct(r.study.marr)}, adjusted for inflation)")]]
         if r.study.tax is not None:
             facts.append(["After-tax MARR and tax rate",
@@ -445,23 +400,20 @@ class _Builder:
             facts.append([f"Replacement value of the defender ({cur})",
                           f"{money(rec.replacement_value)} (market value today "
                           f"{money(r.defender.price)})"])
-        omy = rec.one_more_year or {}
-        if "defender_marginal_cost" in omy:
-            keep = "keep" if omy.get("keep_next_year") else "do not keep"
-            facts.append(["One-more-year check (next year)",
-                          f"defender marginal cost "
-                          f"{format_money(omy['defender_marginal_cost'], cur)} vs best "
-                          f"challenger EAC {format_money(omy.get('challenger_annual_cost'), cur)}"
-                          f": {keep} it another year"])
+        omy = rec.one_more_year
+        keep = "keep" if omy.keep_next_year else "do not keep"
+        facts.append(["One-more-year check (next year)",
+                      f"defender marginal cost {format_money(omy.defender_marginal_cost, cur)} "
+                      f"vs best challenger EAC {format_money(omy.challenger_annual_cost, cur)}"
+                      f": {keep} it another year"])
         if rec.action == "keep" and rec.planned_defender_years and r.study.study_period is None:
             facts.append(["Planned replacement (today's estimates)",
                           f"after {yrs(rec.planned_defender_years)}"])
         if r.study.study_period:
             facts.append(["Study period", yrs(r.study.study_period)])
-        risk = _to_json(r.risk)
-        if risk and isinstance(risk.get("probability_replace"), (int, float)):
+        if r.risk is not None:
             facts.append(["Risk: share of simulated trials that say replace",
-                          f"{risk['probability_replace'] * 100:.1f}% (see Risk)"])
+                          f"{percent(r.risk.probability_replace)} (see Risk)"])
         facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
         self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
                                       header=False))
@@ -499,7 +451,7 @@ class _Builder:
                 rows.append([str(k + 1) + (" ESL" if k + 1 == a.economic_life else ""),
                              money(_at(a.market_values, k)), money(_at(a.operating_costs, k)),
                              money(_at(a.extra_costs, k)), money(a.annual_worth[k]),
-                             money(-_at(a.capital_recovery, k)), money(_at(a.operating, k)),
+                             money(_neg(_at(a.capital_recovery, k))), money(_at(a.operating, k)),
                              money(-a.annual_worth[k]), money(_at(a.marginal_cost, k))])
             esl_row = a.economic_life
             w = self.w / 9
@@ -548,243 +500,161 @@ class _Builder:
 
     def after_tax(self):
         r, s, cur = self.r, self.s, self.cur
-        per_alt = [(a, _to_json(getattr(a, "after_tax", None))) for a in r.alternatives]
-        per_alt = [(a, d) for a, d in per_alt if d]
-        top = _to_json(r.after_tax) or {}
-        if not per_alt and not top:
+        after = r.after_tax
+        if after is None or after.tax is None:
             return
+        terms = after.tax
         self.h("After-tax results")
-        tax = r.study.tax
-        bits = []
-        if tax is not None:
-            bits.append(f"Effective tax rate {pct(tax.rate)}; after-tax MARR "
-                        f"{pct(tax.after_tax_marr)}.")
-        if isinstance(top.get("rate_used"), (int, float)):
-            bits.append(f"Rate used for after-tax AW {pct(top['rate_used'])}"
-                        + (f" (discounting depreciation at {pct(top['discount_rate'])})"
-                           if isinstance(top.get("discount_rate"), (int, float))
-                           and top.get("discount_rate") != top.get("rate_used") else "") + ".")
-        if top.get("money"):
-            bits.append(f"After-tax AW is in {top['money']}.")
-        bits.append("Year j flow: -(1-t)(C_j+X_j) + t D_j; disposal at k: S_k - t(S_k - BV_k); "
-                    "the defender today is valued at its forgone after-tax sale proceeds "
-                    "MV - t(MV - BV_now).")
+        bits = [f"Effective tax rate {pct(terms.tax_rate)}; after-tax MARR "
+                f"{pct(terms.after_tax_marr)}.",
+                f"Rate used for after-tax AW {pct(after.rate)}"
+                + (f" (discounting depreciation at {pct(terms.discount_rate)})"
+                   if terms.discount_rate != after.rate else "") + ".",
+                f"After-tax AW is in {after.money}.",
+                "Year j flow: -(1-t)(C_j+X_j) + t D_j; disposal at k: S_k - t(S_k - BV_k); "
+                "the defender today is valued at its forgone after-tax sale proceeds "
+                "MV - t(MV - BV_now)."]
         self.add(_p(" ".join(bits), s["small"]))
-        if isinstance(top.get("conventions"), str) and top["conventions"]:
-            self.add(_p(top["conventions"], s["small"]))
-        if per_alt:
-            rows = [["Alternative", "Depreciation", f"Tax basis ({cur})",
-                     f"Book value today ({cur})", f"Outlay today ({cur})", "ESL after tax",
-                     f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
-            for a, d in per_alt:
-                aw = list(d.get("annual_worth") or [])
-                esl = d.get("economic_life")
-                at_esl = d.get("annual_worth_at_economic_life")
-                if at_esl is None and isinstance(esl, int) and 0 < esl <= len(aw):
-                    at_esl = aw[esl - 1]
-                rows.append([Paragraph(escape(a.name), s["cell"]),
-                             str(d.get("depreciation_method") or "-").replace("_", " "),
-                             money(d.get("tax_basis")), money(d.get("book_value_today")),
-                             money(d.get("initial_outlay")),
-                             yrs(esl) if isinstance(esl, int) else "-", money(at_esl),
-                             money(-at_esl) if isinstance(at_esl, (int, float)) else ""])
-            w = self.w
-            self.add(_table(rows, [0.22 * w, 0.12 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w,
-                                   0.125 * w, 0.125 * w], numeric_from=2))
-            for a, d in per_alt:
-                aw = list(d.get("annual_worth") or [])
-                if not aw:
-                    continue
-                esl = d.get("economic_life") if isinstance(d.get("economic_life"), int) else 0
-                dep_ = list(d.get("depreciation") or [])
-                bv = list(d.get("book_value_at_disposal") or [])
-                disp = list(d.get("after_tax_disposal") or [])
-                rows = [["k", f"Depreciation D_k ({cur})", f"Book value BV_k ({cur})",
-                         f"After-tax disposal ({cur})", f"After-tax AW_k ({cur}/yr)",
-                         f"EAC_k ({cur}/yr)"]]
-                for k, v in enumerate(aw):
-                    rows.append([str(k + 1) + (" ESL" if k + 1 == esl else ""),
-                                 money(_at(dep_, k)), money(_at(bv, k)), money(_at(disp, k)),
-                                 money(v), money(-v)])
-                extra = []
-                if esl:
-                    extra = [("BACKGROUND", (0, esl), (-1, esl), colors.HexColor("#fff2cc")),
-                             ("FONT", (0, esl), (-1, esl), FB(), 7.5)]
-                tbl = _table(rows, [self.w / 6] * 6, numeric_from=1, extra=extra)
-                head = _p(f"{a.name}, after tax", s["h3"])
-                self.add(KeepTogether([head, tbl]) if len(aw) <= 25 else head, )
-                if len(aw) > 25:
-                    self.add(tbl)
-        known = {"tax_rate", "after_tax_marr", "rate_used", "discount_rate", "money",
-                 "conventions", "alternatives", "recommendation", "study_period_options",
-                 "before_tax_study_period_options"}
-        rest = [[_p(_label(k), s["cell"]), _p(_fmt_value(v, k), s["cell"])]
-                for k, v in top.items()
-                if k not in known and isinstance(v, (str, int, float, bool)) and v is not None]
-        if rest:
-            self.add(Spacer(1, 3), _table([["Item", "Value"]] + rest,
-                                          [0.3 * self.w, 0.7 * self.w], numeric_from=None))
+        if terms.conventions:
+            self.add(_p(terms.conventions, s["small"]))
+        rows = [["Alternative", "Depreciation", f"Tax basis ({cur})",
+                 f"Book value today ({cur})", f"Outlay today ({cur})", "ESL after tax",
+                 f"AW at ESL ({cur}/yr)", f"EAC at ESL ({cur}/yr)"]]
+        for a in after.alternatives:
+            tax = a.tax
+            assert tax is not None
+            at_esl = a.annual_worth_at_economic_life
+            rows.append([Paragraph(escape(a.name), s["cell"]),
+                         (tax.method or "-").replace("_", " "), money(tax.tax_basis),
+                         money(tax.book_value_0), money(tax.initial), yrs(a.economic_life),
+                         money(at_esl), money(-at_esl)])
+        w = self.w
+        self.add(_table(rows, [0.22 * w, 0.12 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w,
+                               0.125 * w, 0.125 * w], numeric_from=2))
+        for a in after.alternatives:
+            tax = a.tax
+            assert tax is not None
+            esl = a.economic_life
+            rows = [["k", f"Depreciation D_k ({cur})", f"Book value BV_k ({cur})",
+                     f"After-tax disposal ({cur})", f"After-tax AW_k ({cur}/yr)",
+                     f"EAC_k ({cur}/yr)"]]
+            for k, v in enumerate(a.annual_worth.tolist()):
+                rows.append([str(k + 1) + (" ESL" if k + 1 == esl else ""),
+                             money(_at(tax.allowance, k)), money(_at(tax.book_value, k)),
+                             money(_at(tax.disposal, k)), money(v), money(-v)])
+            extra = [("BACKGROUND", (0, esl), (-1, esl), colors.HexColor("#fff2cc")),
+                     ("FONT", (0, esl), (-1, esl), FB(), 7.5)]
+            tbl = _table(rows, [self.w / 6] * 6, numeric_from=1, extra=extra)
+            head = _p(f"{a.name}, after tax", s["h3"])
+            n = len(a.annual_worth)
+            self.add(KeepTogether([head, tbl]) if n <= 25 else head, )
+            if n > 25:
+                self.add(tbl)
 
     def risk(self):
         r, s, cur = self.r, self.s, self.cur
-        d = _to_json(r.risk)
-        if not d:
+        risk = r.risk
+        if risk is None:
             return
         from core.risk.labels import input_label  # inputs in words; the JSON keeps the paths
+        sim = risk.simulation
         self.h("Risk")
-        trials = d.get("trials")
-        unc = r.study.uncertainty
-        if trials is None and unc is not None:
-            trials = unc.trials
-        seed = d.get("seed", unc.seed if unc is not None else None)
-        intro = "Monte Carlo simulation"
-        if isinstance(trials, int):
-            intro += f": {trials:,} trials"
-        if seed is not None:
-            intro += f", seed {seed}"
-        intro += (". Each trial draws every uncertain input, recomputes every economic life and "
-                  "compares the best challenger's AW at its ESL with the defender's.")
-        if d.get("basis"):
-            intro += f" Basis: {d['basis']}."
-        if isinstance(d.get("decision_rule"), str):
-            intro += f" Decision rule: {d['decision_rule']}."
+        intro = (f"Monte Carlo simulation: {sim.trials:,} trials, seed {sim.seed}. Each trial "
+                 "draws every uncertain input, recomputes every economic life and compares the "
+                 "best challenger's AW at its ESL with the defender's."
+                 f" Basis: {risk.basis}. Decision rule: {risk.decision_rule}.")
         self.add(_p(intro, s["small"]))
-        rows = [["Result", "Value"]]
-        p = d.get("probability_replace")
-        if isinstance(p, (int, float)):
-            se = d.get("probability_replace_standard_error")
-            rows.append(["Share of trials that say replace",
-                         f"{p * 100:.1f}%" + (f" (standard error {se * 100:.1f} points)"
-                                              if isinstance(se, (int, float)) else "")])
-        base = d.get("base_case")
-        if isinstance(base, dict) and base.get("action"):
-            rows.append(["Base case (every input at its estimate)",
-                         f"{base['action']}; AW difference {money(base.get('annual_worth_difference'))}"
-                         f" {cur}/yr"])
-        awd = d.get("annual_worth_difference")
-        if isinstance(awd, dict):
-            names = {"p5": "P5", "p10": "P10", "p50": "P50 (median)", "p90": "P90", "p95": "P95",
-                     "mean": "mean", "standard_deviation": "standard deviation",
-                     "min": "smallest", "max": "largest"}
-            for k, v in awd.items():
-                if k in ("mean_standard_error",) or not isinstance(v, (int, float)):
-                    continue
-                rows.append([f"AW difference, best challenger minus defender, {names.get(k, k)} "
-                             f"({cur}/yr)", money(v)])
-        for k, v in d.items():
-            if k in ("probability_replace", "probability_replace_standard_error", "base_case",
-                     "annual_worth_difference", "breakeven", "breakeven_search_range", "trials",
-                     "seed", "basis", "decision_rule", "inputs", "tornado", "notes", "two_way",
-                     "annual_worth_difference_histogram", "economic_life_distribution",
-                     "best_challenger_distribution"):
+        rows = [["Result", "Value"],
+                ["Share of trials that say replace",
+                 f"{percent(risk.probability_replace)} (standard error "
+                 f"{sim.probability_standard_error * 100:.1f} points)"],
+                ["Base case (every input at its estimate)",
+                 f"{risk.base_action}; AW difference {money(_finite(risk.base_difference))}"
+                 f" {cur}/yr"]]
+        names = {"p5": "P5", "p10": "P10", "p50": "P50 (median)", "p90": "P90", "p95": "P95",
+                 "mean": "mean", "standard_deviation": "standard deviation",
+                 "min": "smallest", "max": "largest"}
+        for k, v in risk.difference_summary().items():
+            if k == "mean_standard_error" or v is None:
                 continue
-            if isinstance(v, (str, int, float, bool)):
-                rows.append([_label(k), _fmt_value(v, k)])
+            rows.append([f"AW difference, best challenger minus defender, {names.get(k, k)} "
+                         f"({cur}/yr)", money(v)])
         rows = [rows[0]] + [[_p(a, s["cell"]), b] for a, b in rows[1:]]
         self.add(_table(rows, [0.62 * self.w, 0.38 * self.w], numeric_from=1))
-        hist = d.get("annual_worth_difference_histogram")
-        if isinstance(hist, dict) and hist.get("counts") and hist.get("bin_edges"):
-            try:
-                from core.memo.chart import histogram_chart
+        counts, edges = risk.histogram()
+        if counts.size:
+            from core.memo.chart import histogram_chart
 
-                self.add(Spacer(1, 4), histogram_chart(
-                    [float(e) for e in hist["bin_edges"]], [int(c) for c in hist["counts"]],
-                    self.w, 150, cur))
-            except Exception:  # noqa: BLE001 - a chart is optional
-                pass
-        best = d.get("best_challenger_distribution")
-        tot = trials if isinstance(trials, int) and trials > 0 else None
-        if isinstance(best, dict) and tot:
-            self.add(_p("Best challenger across trials: " + "; ".join(
-                f"{k} {100 * v / tot:.1f}%" for k, v in best.items()
-                if isinstance(v, (int, float))), s["small"]))
-        esl = d.get("economic_life_distribution")
-        if isinstance(esl, dict) and tot:
-            for name, counts in esl.items():
-                if isinstance(counts, dict):
-                    parts = [f"{k}: {100 * v / tot:.1f}%" for k, v in counts.items()
-                             if isinstance(v, (int, float)) and v]
-                    self.add(_p(f"ESL of {name} across trials (years: share): "
-                                + "; ".join(parts), s["small"]))
-        ins = d.get("inputs")
-        if isinstance(ins, list) and ins:
+            self.add(Spacer(1, 4), histogram_chart(
+                [round(float(e), 2) for e in edges], [int(c) for c in counts], self.w, 150, cur))
+        tot = sim.trials
+        self.add(_p("Best challenger across trials: " + "; ".join(
+            f"{k} {100 * v / tot:.1f}%" for k, v in risk.best_challenger_counts().items()),
+            s["small"]))
+        for name, row in risk.economic_life_counts().items():
+            parts = [f"{k + 1}: {100 * v / tot:.1f}%" for k, v in enumerate(row) if v]
+            self.add(_p(f"ESL of {name} across trials (years: share): " + "; ".join(parts),
+                        s["small"]))
+        if risk.inputs:
             rows = [["Uncertain input", "Distribution", "Estimate", "P10", "P90"]]
-            for x in ins:
-                if not isinstance(x, dict):
-                    continue
-                addr = str(x.get("input", ""))
-                par = ", ".join(_num_for(addr, v) for v in (x.get("parameters") or []))
+            for x in risk.inputs:
+                addr = x.address
+                par = ", ".join(_num_for(addr, v) for v in x.distribution.params)
                 rows.append([Paragraph(escape(input_label(addr, r.study)), s["cell"]),
-                             Paragraph(escape(f"{x.get('distribution', '')} ({par})"), s["cell"]),
-                             _num_for(addr, x.get("estimate")), _num_for(addr, x.get("p10")),
-                             _num_for(addr, x.get("p90"))])
+                             Paragraph(escape(f"{x.distribution.kind} ({par})"), s["cell"]),
+                             _num_for(addr, x.estimate), _num_for(addr, x.p10),
+                             _num_for(addr, x.p90)])
             w = self.w
             self.add(Spacer(1, 4), _table(rows, [0.36 * w, 0.28 * w, 0.12 * w, 0.12 * w, 0.12 * w],
                                           numeric_from=2))
-        tor = d.get("tornado")
-        if isinstance(tor, list) and tor:
+        if risk.tornado:
             rows = [["Input (P10 to P90, the rest at estimates)", "Low", "High",
                      f"AW difference at low ({cur}/yr)", f"at high ({cur}/yr)",
                      f"Swing ({cur}/yr)"]]
-            for x in tor:
-                if not isinstance(x, dict):
-                    continue
-                addr = str(x.get("input", ""))
-                rows.append([Paragraph(escape(input_label(addr, r.study)), s["cell"]),
-                             _num_for(addr, x.get("low_value")),
-                             _num_for(addr, x.get("high_value")),
-                             money(x.get("annual_worth_difference_at_low")),
-                             money(x.get("annual_worth_difference_at_high")),
-                             money(x.get("swing"))])
+            for b in risk.tornado:
+                addr = b.address
+                rows.append([Paragraph(escape(input_label(addr, r.study)), s["cell"]), _num_for(addr, b.low_value),
+                             _num_for(addr, b.high_value), money(_finite(b.difference_at_low)),
+                             money(_finite(b.difference_at_high)), money(_finite(b.swing))])
             w = self.w
             self.add(Spacer(1, 4), _table(rows, [0.34 * w, 0.11 * w, 0.11 * w, 0.15 * w,
                                                  0.15 * w, 0.14 * w], numeric_from=1))
-        be = d.get("breakeven")
-        if isinstance(be, dict) and be:
-            ranges = d.get("breakeven_search_range") if isinstance(
-                d.get("breakeven_search_range"), dict) else {}
+        if risk.breakeven:
             brow = [["Uncertain input (alone; the rest at their estimates)",
                      "Value at which the recommendation flips"]]
-            for k, v in be.items():
-                rng = ranges.get(k)
+            for k, v in risk.breakeven.items():
+                rng = risk.breakeven_ranges.get(k)
                 if v is None:
                     txt = "does not flip within a tenfold range"
-                    if isinstance(rng, list) and len(rng) == 2:
+                    if rng is not None:
                         txt += f" ({_num_for(k, rng[0])} to {_num_for(k, rng[1])})"
                 else:
                     txt = _num_for(k, v)
                 brow.append([Paragraph(escape(input_label(k, r.study)), s["cell"]),
                              Paragraph(escape(txt), s["cell"])])
             self.add(Spacer(1, 4), _table(brow, [0.55 * self.w, 0.45 * self.w], numeric_from=None))
-        notes = d.get("notes")
-        if isinstance(notes, list):
-            for n in notes:
-                self.add(Paragraph(escape(str(n)), s["bullet"], bulletText="\u2022"))
+        for n in risk.notes:
+            self.add(Paragraph(escape(n), s["bullet"], bulletText="\u2022"))
 
     def technology(self):
-        """The technology plan (docs/method.md §11), read from its to_json() dict."""
+        """The technology plan (docs/method.md §11)."""
         r, s, cur = self.r, self.s, self.cur
-        d = _to_json(getattr(r, "technology", None))
-        if not d or not isinstance(d.get("policy"), list) or not d["policy"]:
+        plan = r.technology
+        if plan is None or not plan.policy:
             return
         self.h("Technology plan: replace now or wait for a better model?")
-        horizon, first = d.get("horizon"), d.get("first_action")
-        pw, flat = d.get("present_worth"), d.get("no_change_present_worth")
-        now, wait = d.get("best_replace_now_present_worth"), d.get("best_wait_present_worth")
+        horizon, first = plan.horizon, plan.first_action
+        pw, flat = plan.present_worth, plan.no_change_present_worth
+        now, wait = plan.best_replace_now_present_worth, plan.best_wait_present_worth
         verb = "replace the defender now" if first == "replace" else "keep the defender this year"
-        span = f"{horizon}-year" if isinstance(horizon, int) else "multi-year"
+        span = f"{horizon}-year"
         self.add(_p(f"Over a {span} plan in which each year's model of a challenger "
                     "costs and runs differently (the change rates below), the best chain of "
                     f"replacements{' after tax' if r.study.tax is not None else ''} says: {verb}. "
                     "Present worths (PW) are in today's money, "
                     f"{cur}; the defender's market value today counts as an outlay.", s["body"]))
-        segs: list[list[Any]] = []       # consecutive plan years of one machine
-        for step in d["policy"]:
-            if step.get("action") == "replace" or not segs:
-                name = step.get("challenger") or r.study.defender.name
-                vint = step.get("vintage")
-                segs.append([name, "-" if vint is None else str(vint), step.get("year"), 0])
-            segs[-1][3] += 1
+        segs = [[seg.name, "-" if seg.vintage is None else str(seg.vintage), seg.start,
+                 seg.end - seg.start] for seg in plan.segments()]
         rows = [["Machine in service", "Vintage (year bought)", "Plan years (0 = now)", "Years"]]
         for name, vint, start, n in segs:
             rows.append([Paragraph(escape(str(name)), s["cell"]), vint,
@@ -792,17 +662,14 @@ class _Builder:
         w = self.w
         self.add(_table(rows, [0.44 * w, 0.2 * w, 0.2 * w, 0.16 * w], numeric_from=1))
         self.add(Spacer(1, 4))
-        value = (pw - flat) if isinstance(pw, (int, float)) and isinstance(flat, (int, float)) \
-            else None
-        gain = (wait - now) if isinstance(wait, (int, float)) and isinstance(now, (int, float)) \
-            else None
-        rates = "; ".join(
-            f"{name}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
-            for name, gp, gc in getattr(getattr(r, "technology", None), "change_rates", ()))
+        value = plan.value_of_change
+        gain = plan.waiting_gain
+        rates = "; ".join(f"{name}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
+                          for name, gp, gc in plan.change_rates)
         fig = [["Figure", f"{cur}"],
                ["First action", "replace now" if first == "replace" else "keep (wait)"],
                ["PW of the best plan", money(pw)],
-               ["AW over the horizon", money(d.get("annual_worth"))],
+               ["AW over the horizon", money(plan.annual_worth)],
                ["Best plan that replaces now, PW", money(now)],
                ["Best plan that waits, PW", money(wait)],
                ["Waiting against replacing now (PW)", money(gain)],
@@ -942,14 +809,23 @@ class _Builder:
             Spacer(1, 3), block]))
 
 
-def _num_for(address: str, v: Any) -> str:
-    """An uncertain input's value: rates as percentages, money with separators."""
-    if not isinstance(v, (int, float)) or isinstance(v, bool):
-        return "-" if v is None else str(v)
-    leaf = address.rsplit(".", 1)[-1].lower()
-    if any(w in leaf for w in ("rate", "growth", "marr")):
+def _finite(x: float) -> float | None:
+    """None (printed blank) for an undefined figure (NaN)."""
+    return x if math.isfinite(x) else None
+
+
+def _num_for(address: str, v: float | None) -> str:
+    """An uncertain input's value: rates (``is_rate_input``) as percentages, money with
+    separators."""
+    if v is None or not math.isfinite(v):
+        return "-"
+    if is_rate_input(address):
         return pct(round(float(v), 4))
     return money(v, 2 if abs(v) < 100 else 0)
+
+
+def _neg(x: float | None) -> float | None:
+    return None if x is None else -x
 
 
 def _at(arr: Any, k: int) -> float | None:
@@ -1024,8 +900,6 @@ def render_memo(result: Any, options: MemoOptions | None = None) -> bytes:
 
 def render_memo_pages(result: Any, options: MemoOptions | None = None) -> tuple[bytes, int]:
     """:func:`render_memo`, and the page count."""
-    from core.studyfile import dump_study_document, fingerprint
-
     opts = options or MemoOptions()
     if opts.page_size not in PAGE_SIZES:
         raise ValueError(f"page size must be one of {', '.join(PAGE_SIZES)}")

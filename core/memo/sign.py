@@ -19,6 +19,7 @@ from pathlib import Path
 
 from core.memo.errors import MemoError, NotAMemoError
 from core.memo.identity import load_pkcs12_bytes
+from core.memo.roles import FIELD_NAMES, ROLES
 
 __all__ = [
     "ROLES",
@@ -30,8 +31,6 @@ __all__ = [
     "signature_fields",
 ]
 
-ROLES = ("prepared", "reviewed", "approved")
-FIELD_NAMES = {"prepared": "Prepared", "reviewed": "Reviewed", "approved": "Approved"}
 ATTACHMENT_NAME = "study.tenure.json"
 PLAN_ATTACHMENT_NAME = "plan.tenure.json"
 INFO_FINGERPRINT_KEY = "/TenureFingerprint"
@@ -104,7 +103,8 @@ def finish_pdf(
             SigFieldSpec(
                 sig_field_name=FIELD_NAMES[role],
                 on_page=page,
-                box=tuple(int(round(v)) for v in box),
+                box=(int(round(box[0])), int(round(box[1])), int(round(box[2])),
+                     int(round(box[3]))),
             ),
         )
     out = io.BytesIO()

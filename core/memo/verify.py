@@ -34,6 +34,7 @@ from core.memo.sign import (
     INFO_FINGERPRINT_KEY,
     PLAN_ATTACHMENT_NAME,
 )
+from core.studyfile import fingerprint, loads_json, parse_study_document
 
 __all__ = [
     "SignatureReport",
@@ -261,10 +262,6 @@ def read_attachment(pdf: bytes) -> bytes | None:
 def _attachment_fingerprint(data: bytes) -> tuple[str | None, str | None, str | None]:
     """(fingerprint, title, problem) of the attached study document."""
     try:
-        from core.studyfile import fingerprint, loads_json, parse_study_document
-    except Exception:  # pragma: no cover - study file module missing
-        return None, None, "cannot check the attached study (core.studyfile unavailable)"
-    try:
         doc = loads_json(data.decode("utf-8"), "attachment")
     except Exception as e:  # noqa: BLE001
         return None, None, f"the attached study does not load: {e}"
@@ -438,7 +435,7 @@ def verify_memo_bytes(
         coverage = {
             SignatureCoverageLevel.ENTIRE_FILE: "entire file",
             SignatureCoverageLevel.ENTIRE_REVISION: "entire revision",
-        }.get(cov, "partial")
+        }.get(cov, "partial") if cov is not None else "partial"
         if coverage == "partial":
             sp.append("the signature does not cover its whole revision")
         lvl = st.modification_level

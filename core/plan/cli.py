@@ -60,7 +60,7 @@ def parse_budgets(budget: str | None, budgets: str | None, horizon: int | None
 def format_plan(plan: CapitalPlan) -> str:
     """The plan as plain-text tables for the terminal."""
     from core.report import table
-    from core.study import money
+    from core.text import money
 
     years = plan.calendar_years
     head = ["", *[str(y) for y in years]]

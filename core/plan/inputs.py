@@ -61,36 +61,24 @@ class AssetInput:
 def plan_input(result: StudyResult, study: Study, *, tag: str | None = None,
                site: str | None = None, must: bool = False, must_reason: str = ""
                ) -> AssetInput:
-    """The plan's view of one study result (read on the decision basis).
+    """The plan's view of one study result, read on its decision basis (``result.decision``).
 
-    Before tax the AW arrays are the result's, brought back to constant money for a
-    then-current study (``core.inflation.reporting_factor``); after tax they are the
-    after-tax constant-money AW at the after-tax rate.  Nothing is recomputed.
+    The AW arrays are the basis's constant-money AW (``annual_worth_constant``) at the
+    basis's rate; nothing is recomputed.
     """
-    from core import inflation
-
-    rec = result.recommendation
-    after = result.after_tax
-    d_res = result.alternative(study.defender.name)
-    if after is not None:
-        basis: Basis = "after-tax"
-        rate = float(after.rate)
-        aw = {a.name: np.asarray(a.annual_worth_constant, dtype=float) for a in after.alternatives}
-        esl = {a.name: int(a.economic_life) for a in after.alternatives}
-    else:
-        basis = "before-tax"
-        rate = float(result.rate)
-        aw = {}
-        for a in result.alternatives:
-            factor = inflation.reporting_factor(study, rate, a.max_life)
-            aw[a.name] = np.asarray(a.annual_worth, dtype=float) / factor
-        esl = {a.name: int(a.economic_life) for a in result.alternatives}
+    dec = result.decision
+    rec = dec.recommendation
+    d_res = result.before_tax.alternative(study.defender.name)
+    basis: Basis = dec.basis
+    rate = float(dec.rate)
+    aw = {a.name: np.asarray(a.annual_worth_constant, dtype=float) for a in dec.alternatives}
+    esl = {a.name: int(a.economic_life) for a in dec.alternatives}
     best = rec.best_challenger
     c_aw = float(aw[best][esl[best] - 1])
     then_current = study.inflation is not None and study.inflation.estimates == "then-current"
     growth = 1.0 + study.inflation.rate if then_current and study.inflation is not None else 1.0
     options = tuple(PeriodOption(o.defender_years, o.challenger, float(o.annual_worth))
-                    for o in result.study_period_options
+                    for o in dec.study_period_options
                     if o.feasible and o.annual_worth is not None)
     s = np.concatenate([[float(study.defender.price)],
                         np.asarray(d_res.market_values, dtype=float)])

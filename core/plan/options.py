@@ -3,7 +3,7 @@
 Rows are assets, columns option slots (docs/method.md §10).  Without a study
 period, slot y (y = 0..min(H-1, n_D)) is "replace in plan year y", worth
 
-    V_a(0) = 0,   V_a(y) = PW_D(y) - AW_c (P/A,i,y)            (core.study.keep_values)
+    V_a(0) = 0,   V_a(y) = PW_D(y) - AW_c (P/A,i,y)            (core.decision.keep_values)
 
 and slot H, when n_D >= H, is "after the horizon", worth max_{H<=y<=n_D} V_a(y) with
 no capital inside the horizon.  With a study period T, each feasible option
@@ -23,9 +23,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from core.decision import keep_values
 from core.factors import pa
 from core.plan.inputs import AssetInput
-from core.study import keep_values
 
 AFTER = -1  #: the year code of "after the horizon"
 
@@ -98,7 +98,8 @@ def option_table(assets: Sequence[AssetInput], horizon: int) -> OptionTable:
             s[row, :a.defender_life + 1] = a.market_values[:a.defender_life + 1]
         rate = np.array([assets[k].rate for k in plain])
         c_aw = np.array([assets[k].challenger_aw for k in plain])
-        v = keep_values(aw, c_aw, rate)                        # (m, top + 1), NaN past n_D
+        annuity = pa(rate[:, None], np.arange(1, top + 1))
+        v = keep_values(aw, c_aw, annuity)                     # (m, top + 1), NaN past n_D
         cols = min(h, top + 1)
         years = np.arange(cols)
         inside = years[None, :] <= life[:, None]

@@ -1,24 +1,16 @@
-"""Risk analysis of the replacement decision (docs/method.md §5-6, ``uncertainty`` and ``risk``).
+"""Risk analysis of the replacement decision (docs/method.md §12, ``uncertainty`` and ``risk``).
 
-``analyse(study, result)`` is the engine hook (``core.study.run_study`` calls it
-when the study has an ``uncertainty`` block); it returns the result with
-``risk`` set to a ``RiskResult``.  The window uses ``run_risk`` with progress
-and cancel callbacks.  See ``core.risk.engine`` for how inputs move the cash
-flows and ``core.risk.distributions`` for the distributions and their bounds.
+``run_risk`` is what ``core.study.run_studies`` calls for a study with an ``uncertainty``
+block (the window calls it with progress and cancel callbacks).  See ``core.risk.engine``
+for how inputs move the cash flows and ``core.risk.distributions`` for the distributions
+and their bounds.  The records (``RiskResult`` ...) live in ``core.results``.
 """
 
 from __future__ import annotations
 
-from dataclasses import replace
-
-from core.estimates import Study
-from core.results import StudyResult
+from core.results import RiskResult, Simulation, TornadoBar, TwoWayMap
 from core.risk.analysis import (
     RiskCancelled,
-    RiskResult,
-    Simulation,
-    TornadoBar,
-    TwoWayMap,
     breakeven,
     draw_inputs,
     resolve_seed,
@@ -29,16 +21,10 @@ from core.risk.analysis import (
     two_way_map,
     validate,
 )
-from core.risk.engine import Model, Outcome, annual_worth_batch, perturbed_study
+from core.risk.engine import Model, Outcome, perturbed_study
 
 __all__ = [
     "Model", "Outcome", "RiskCancelled", "RiskResult", "Simulation", "TornadoBar", "TwoWayMap",
-    "analyse", "annual_worth_batch", "breakeven", "draw_inputs", "perturbed_study",
-    "resolve_seed", "run_risk", "search_range", "simulate", "tornado", "two_way_map", "validate",
+    "breakeven", "draw_inputs", "perturbed_study", "resolve_seed", "run_risk", "search_range",
+    "simulate", "tornado", "two_way_map", "validate",
 ]
-
-
-def analyse(study: Study, result: StudyResult) -> StudyResult:
-    """``result`` with ``risk`` set: Monte Carlo, tornado, breakevens and the two-way map."""
-    risk = run_risk(study, best_challenger=result.recommendation.best_challenger)
-    return replace(result, risk=risk)

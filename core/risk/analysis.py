@@ -8,26 +8,30 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.optimize import brentq
 
 from core.errors import StudyError
 from core.estimates import Distribution, Study
+from core.results import (
+    Basis,
+    InputSummary,
+    RiskResult,
+    Simulation,
+    TornadoBar,
+    TwoWayMap,
+)
 from core.risk import distributions as dists
 from core.risk.engine import Model, Outcome
-from core.risk.labels import input_label
 from core.studyfile import split_address
 
 Progress = Callable[[float], None]
 Cancelled = Callable[[], bool]
 
-PERCENTILES = (5, 10, 50, 90, 95)
 #: Trials per vectorised chunk are chosen so that one (trials x years) array holds about
 #: this many numbers (a few MB), which bounds memory for any trial count.
 CHUNK_ELEMENTS = 1_000_000
-HISTOGRAM_BINS = 40
 GRID_POINTS = 241
 MAP_POINTS = 41
 RATE_INPUTS = ("marr", "market_values.decline_rate", "operating_costs.growth")
@@ -76,7 +80,9 @@ def resolve_seed(study: Study, seed: int | None = None) -> int:
         return int(seed)
     if study.uncertainty is not None and study.uncertainty.seed is not None:
         return int(study.uncertainty.seed)
-    return int(np.random.SeedSequence().entropy)
+    entropy = np.random.SeedSequence().entropy
+    assert isinstance(entropy, int)
+    return entropy
 
 
 def draw_inputs(study: Study, trials: int, seed: int) -> dict[str, np.ndarray]:
@@ -85,27 +91,6 @@ def draw_inputs(study: Study, trials: int, seed: int) -> dict[str, np.ndarray]:
 
 
 # --------------------------------------------------------------------------- Monte Carlo
-@dataclass(frozen=True)
-class Simulation:
-    """Per-trial results of a Monte Carlo run (arrays of length ``trials``)."""
-
-    trials: int
-    seed: int
-    replace: np.ndarray
-    difference: np.ndarray
-    economic_life: dict[str, np.ndarray]
-    best_challenger: np.ndarray
-
-    @property
-    def probability_replace(self) -> float:
-        return float(np.mean(self.replace))
-
-    @property
-    def probability_standard_error(self) -> float:
-        p = self.probability_replace
-        return math.sqrt(p * (1.0 - p) / self.trials)
-
-
 def chunk_trials(study: Study) -> int:
     years = max(a.max_life for a in study.alternatives)
     return max(256, CHUNK_ELEMENTS // years)
@@ -156,21 +141,6 @@ def simulate(study: Study, trials: int | None = None, seed: int | None = None,
 
 
 # --------------------------------------------------------------------------- sensitivity
-@dataclass(frozen=True)
-class TornadoBar:
-    """One input swept from its distribution's 10th to 90th percentile, the rest fixed."""
-
-    address: str
-    low_value: float
-    high_value: float
-    difference_at_low: float
-    difference_at_high: float
-
-    @property
-    def swing(self) -> float:
-        return abs(self.difference_at_high - self.difference_at_low)
-
-
 def tornado(model: Model, inputs: tuple[tuple[str, Distribution], ...]) -> list[TornadoBar]:
     """Tornado data, widest swing first."""
     bars = []
@@ -242,20 +212,6 @@ def breakeven(model: Model, address: str) -> float | None:
     return float(brentq(f, a, b, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=200))
 
 
-@dataclass(frozen=True)
-class TwoWayMap:
-    """Where replacing wins over a grid of two inputs (rows: y, columns: x)."""
-
-    x_input: str
-    x_values: np.ndarray
-    y_input: str
-    y_values: np.ndarray
-    difference: np.ndarray   # (len(y), len(x))
-    replace: np.ndarray      # (len(y), len(x)) bool
-    x_estimate: float = math.nan
-    y_estimate: float = math.nan
-
-
 def two_way_map(model: Model, x_input: str, y_input: str = "marr",
                 inputs: Mapping[str, Distribution] | None = None,
                 points: int = MAP_POINTS,
@@ -296,186 +252,11 @@ def two_way_map(model: Model, x_input: str, y_input: str = "marr",
 
 
 # --------------------------------------------------------------------------- the result
-@dataclass(frozen=True)
-class InputSummary:
-    address: str
-    distribution: Distribution
-    estimate: float
-    mean: float
-    p10: float
-    p90: float
-    bounds: str
-
-
-@dataclass(frozen=True)
-class RiskResult:
-    """Monte Carlo, tornado, breakevens and two-way map of one study (``to_json`` for views)."""
-
-    basis: str
-    decision_rule: str
-    alternatives: tuple[tuple[str, int], ...]        # (name, max_life)
-    challengers: tuple[str, ...]
-    simulation: Simulation
-    base_difference: float
-    base_action: str
-    inputs: tuple[InputSummary, ...]
-    tornado: tuple[TornadoBar, ...]
-    breakeven: dict[str, float | None]
-    breakeven_ranges: dict[str, tuple[float, float]]
-    two_way: TwoWayMap | None
-    notes: tuple[str, ...] = field(default_factory=tuple)
-
-    # ---------------------------------------------------------------- statistics
-    @property
-    def probability_replace(self) -> float:
-        return self.simulation.probability_replace
-
-    def difference_summary(self) -> dict[str, float | None]:
-        d = self.simulation.difference
-        d = d[np.isfinite(d)]
-        if d.size == 0:
-            return {f"p{p}": None for p in PERCENTILES} | {
-                "mean": None, "mean_standard_error": None, "standard_deviation": None,
-                "min": None, "max": None}
-        q = np.percentile(d, PERCENTILES)
-        sd = float(np.std(d, ddof=1)) if d.size > 1 else 0.0
-        out: dict[str, float | None] = {f"p{p}": float(v) for p, v in zip(PERCENTILES, q,
-                                                                          strict=True)}
-        out |= {"mean": float(np.mean(d)), "mean_standard_error": sd / math.sqrt(d.size),
-                "standard_deviation": sd, "min": float(d.min()), "max": float(d.max())}
-        return out
-
-    def histogram(self, bins: int = HISTOGRAM_BINS) -> tuple[np.ndarray, np.ndarray]:
-        d = self.simulation.difference
-        d = d[np.isfinite(d)]
-        if d.size == 0:
-            return np.zeros(0, dtype=int), np.zeros(0)
-        lo, hi = float(d.min()), float(d.max())
-        if hi - lo < 0.01:
-            lo, hi = lo - 0.5, hi + 0.5
-        counts, edges = np.histogram(d, bins=bins, range=(lo, hi))
-        return counts, edges
-
-    def economic_life_counts(self) -> dict[str, list[int]]:
-        """Per alternative: how many trials had ESL 1, 2, ..., max_life."""
-        return {name: np.bincount(self.simulation.economic_life[name],
-                                  minlength=life + 1)[1:].tolist()
-                for name, life in self.alternatives}
-
-    def best_challenger_counts(self) -> dict[str, int]:
-        counts = np.bincount(self.simulation.best_challenger, minlength=len(self.challengers))
-        return {name: int(c) for name, c in zip(self.challengers, counts, strict=True)}
-
-    # ---------------------------------------------------------------- output
-    def to_json(self) -> dict:
-        sim = self.simulation
-        counts, edges = self.histogram()
-        summary = self.difference_summary()
-        out = {
-            "basis": self.basis,
-            "trials": sim.trials,
-            "seed": sim.seed,
-            "decision_rule": self.decision_rule,
-            "probability_replace": _r(self.probability_replace, 6),
-            "probability_replace_standard_error": _r(sim.probability_standard_error, 6),
-            "base_case": {"action": self.base_action,
-                          "annual_worth_difference": _r(self.base_difference, 2)},
-            "annual_worth_difference": {k: _r(v, 2) for k, v in summary.items()},
-            "annual_worth_difference_histogram": {
-                "bin_edges": [round(float(e), 2) for e in edges],
-                "counts": [int(c) for c in counts]},
-            "economic_life_distribution": {
-                name: {str(k + 1): c for k, c in enumerate(row)}
-                for name, row in self.economic_life_counts().items()},
-            "best_challenger_distribution": self.best_challenger_counts(),
-            "inputs": [{"input": s.address, "distribution": s.distribution.kind,
-                        "parameters": list(s.distribution.params), "estimate": s.estimate,
-                        "mean": _r(s.mean, 6), "p10": _r(s.p10, 6), "p90": _r(s.p90, 6),
-                        "physical_range": s.bounds} for s in self.inputs],
-            "tornado": [{"input": b.address, "low_value": _r(b.low_value, 6),
-                         "high_value": _r(b.high_value, 6),
-                         "annual_worth_difference_at_low": _r(b.difference_at_low, 2),
-                         "annual_worth_difference_at_high": _r(b.difference_at_high, 2),
-                         "swing": _r(b.swing, 2)} for b in self.tornado],
-            "breakeven": {k: _r(v, 8) for k, v in self.breakeven.items()},
-            "breakeven_search_range": {k: [_r(lo, 8), _r(hi, 8)]
-                                       for k, (lo, hi) in self.breakeven_ranges.items()},
-            "notes": list(self.notes),
-        }
-        if self.two_way is not None:
-            m = self.two_way
-            out["two_way"] = {
-                "x_input": m.x_input, "x_estimate": _r(m.x_estimate, 6),
-                "x_values": [_r(v, 6) for v in m.x_values],
-                "y_input": m.y_input, "y_estimate": _r(m.y_estimate, 6),
-                "y_values": [_r(v, 6) for v in m.y_values],
-                "annual_worth_difference": [[_r(v, 2) for v in row] for row in m.difference],
-                "replace": [[bool(v) for v in row] for row in m.replace]}
-        return out
-
-    def format_text(self) -> str:
-        from core.report import table
-        from core.study import money
-
-        sim = self.simulation
-        s = self.difference_summary()
-
-        def m(v: float | None) -> str:
-            return "-" if v is None or not math.isfinite(v) else money(v)
-
-        lines = [f"Risk ({self.basis}; {sim.trials:,} Monte Carlo trials, seed {sim.seed})",
-                 f"Replace wins in {self.probability_replace:.1%} of trials "
-                 f"(standard error {sim.probability_standard_error:.2%}).",
-                 "AW difference = best challenger's AW minus the defender's "
-                 f"({'each at its ESL' if self.decision_rule.startswith('no study') else 'study-period options'}); "
-                 "positive favours replacing.",
-                 f"  base case {m(self.base_difference)} ({self.base_action}); mean "
-                 f"{m(s['mean'])} (standard error {m(s['mean_standard_error'])})",
-                 "  percentiles: " + ", ".join(f"p{p} {m(s[f'p{p}'])}" for p in PERCENTILES)]
-        lines += ["", "Tornado (each input from its 10th to 90th percentile, the rest at "
-                  "their estimates):",
-                  table(["input", "low", "high", "AW difference at low", "at high", "swing"],
-                        [[input_label(b.address), _fmt(b.low_value), _fmt(b.high_value),
-                          m(b.difference_at_low), m(b.difference_at_high),
-                          m(b.swing)] for b in self.tornado])]
-        lines += ["", "Breakeven (the value at which the recommendation flips, the rest at "
-                  "their estimates):",
-                  table(["input", "estimate", "breakeven", "searched"],
-                        [[input_label(s_.address), _fmt(s_.estimate),
-                          "no flip" if self.breakeven[s_.address] is None
-                          else _fmt(self.breakeven[s_.address]),
-                          f"{_fmt(self.breakeven_ranges[s_.address][0])} to "
-                          f"{_fmt(self.breakeven_ranges[s_.address][1])}"]
-                         for s_ in self.inputs])]
-        rows = []
-        for name, row in self.economic_life_counts().items():
-            share = {k + 1: c / sim.trials for k, c in enumerate(row) if c}
-            top = sorted(share.items(), key=lambda kv: -kv[1])[:3]
-            rows.append([name, ", ".join(f"{k} y {v:.0%}" for k, v in top)])
-        lines += ["", "Economic service life across trials (most frequent):",
-                  table(["alternative", "ESL share"], rows)]
-        lines += [f"Note: {n}" for n in self.notes]
-        return "\n".join(lines)
-
-
-def _r(x: float | None, digits: int) -> float | None:
-    if x is None or not math.isfinite(x):
-        return None
-    return round(float(x), digits)
-
-
-def _fmt(x: float) -> str:
-    if abs(x) < 5 and x != int(x):
-        return f"{x:.4f}"
-    from core.study import money
-
-    return money(x)
-
-
 # --------------------------------------------------------------------------- assembly
-def _basis(model: Model) -> tuple[str, list[str]]:
+def _basis(model: Model) -> tuple[Basis, list[str]]:
     notes = []
-    if model.after_tax is not None and any(a == "marr" for a, _ in model.study.uncertainty.inputs):
+    unc = model.study.uncertainty
+    if model.after_tax is not None and unc is not None and any(a == "marr" for a, _ in unc.inputs):
         notes.append("After tax, a 'marr' input moves the after-tax MARR in proportion "
                      "(after-tax MARR x sampled MARR / MARR).")
     if model.study.inflation is not None:

@@ -40,60 +40,25 @@ to cents of the two sides).
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
-from core.estimates import Alternative, Study
-from core.factors import ap, pa, pf
+from core import aftertax, depreciation
+from core import inflation as infl
+from core.annual_worth import annual_worth_parts
+from core.cashflows import declining_market_values, geometric_costs, gradient_costs
+from core.decision import (
+    economic_life,
+    first_best,
+    option_grid,
+    period_options,
+    replaces,
+)
+from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+from core.factors import FactorTable, ap, factor_table
+from core.results import Basis
 from core.studyfile import split_address
-
-
-def batch_factors(rate: np.ndarray | float, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """((P/F,i,j), (A/P,i,k), (A/F,i,k)) for j, k = 1..n, from one power of (1+i).
-
-    (P/F,i,j) = (1+i)^-j;  (P/A,i,k) = (1 - (1+i)^-k)/i (k at i = 0);
-    (A/P,i,k) = 1/(P/A,i,k);  (A/F,i,k) = (A/P,i,k) - i.  ``rate`` scalar or (...);
-    each result (..., n).  Same values as ``core.factors`` (pf, ap, af), cheaper
-    for a batch of rates.
-
-    >>> v, cap, sink = batch_factors(0.10, 2)
-    >>> v.round(4).tolist(), cap.round(4).tolist(), sink.round(4).tolist()
-    ([0.9091, 0.8264], [1.1, 0.5762], [1.0, 0.4762])
-    """
-    i = np.asarray(rate, dtype=float)
-    if np.any(i <= -1.0) or not np.all(np.isfinite(i)):
-        raise ValueError("interest rate must be a finite number greater than -1")
-    years = np.arange(1, n + 1, dtype=float)
-    i_col = i[..., None]
-    v = np.power(1.0 + i_col, -years)
-    zero = np.abs(i_col) < 1e-12
-    annuity = np.where(zero, years, (1.0 - v) / np.where(zero, 1.0, i_col))
-    cap = 1.0 / annuity
-    return v, cap, cap - i_col
-
-
-def annual_worth_batch(price: np.ndarray | float, market_values: np.ndarray,
-                       costs: np.ndarray, rate: np.ndarray | float,
-                       factors: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
-                       ) -> np.ndarray:
-    """AW_k = -[P(A/P,i,k) - S_k(A/F,i,k)] - [sum_{j<=k} (C_j+X_j)(P/F,i,j)](A/P,i,k).
-
-    The AW part of ``core.annual_worth.annual_worth_schedule`` (same equation, same
-    sign convention: costs positive in, AW negative out) without the extra
-    schedules; the factors come from ``batch_factors`` (or are passed in, sliced
-    from a longer life, so that one batch of rates is raised to a power once).
-    ``price`` (...), ``market_values`` and ``costs`` (..., n) or (n,), ``rate``
-    scalar or (...); returns (..., n).
-
-    >>> annual_worth_batch(np.array([10000.0, 20000.0]), np.array([7000.0, 5000.0]),
-    ...                    np.array([1000.0, 1500.0]), 0.10).round(2).tolist()
-    [[-5000.0, -4619.05], [-16000.0, -10380.95]]
-    """
-    n = np.shape(market_values)[-1]
-    v, cap, sink = batch_factors(rate, n) if factors is None else (f[..., :n] for f in factors)
-    P_col = np.asarray(price, dtype=float)[..., None]
-    return market_values * sink - P_col * cap - np.cumsum(costs * v, axis=-1) * cap
 
 
 @dataclass(frozen=True)
@@ -119,11 +84,7 @@ class _Inflation:
     """
 
     def __init__(self, study: Study, after_tax: bool) -> None:
-        from dataclasses import replace
-
-        from core import inflation
-        from core.estimates import MarketValues, OperatingCosts
-
+        inflation = infl
         self.study = study
         self.module = inflation
         convert = inflation.then_current_arrays if after_tax else inflation.before_tax_arrays
@@ -144,17 +105,15 @@ class _Inflation:
                     "the inflation conversion is not a year-by-year scaling; the risk "
                     "analysis cannot vectorise it")
         self._base_rate = float(inflation.before_tax_rate(study))
-        probe = study.marr + 0.0123
+        marr_probe = study.marr + 0.0123
         self._identity = (self._base_rate == study.marr and float(
-            inflation.before_tax_rate(replace(study, marr=probe))) == probe)
+            inflation.before_tax_rate(replace(study, marr=marr_probe))) == marr_probe)
 
     def rate(self, marr: np.ndarray | float) -> np.ndarray | float:
         if self._identity:
             return marr
         if np.ndim(marr) == 0 and float(marr) == self.study.marr:
             return self._base_rate
-        from dataclasses import replace
-
         flat = np.atleast_1d(np.asarray(marr, dtype=float))
         unique, inverse = np.unique(flat, return_inverse=True)
         rates = np.array([float(self.module.before_tax_rate(replace(self.study, marr=float(m))))
@@ -175,8 +134,6 @@ class _AfterTax:
     """
 
     def __init__(self, study: Study) -> None:
-        from core import aftertax, depreciation
-
         assert study.tax is not None
         self.study = study
         self.module = aftertax
@@ -189,14 +146,13 @@ class _AfterTax:
         """(decision rate, discount rate of the then-current flows)."""
         m0 = self.study.marr
         m = np.asarray(marr, dtype=float)
-        i = (self.after_tax_marr * m / m0) if m0 != 0 else self.after_tax_marr + (m - m0)
+        i: np.ndarray | float = ((self.after_tax_marr * m / m0) if m0 != 0
+                                 else self.after_tax_marr + (m - m0))
         if np.ndim(marr) == 0 and float(marr) == m0:
             i = self.after_tax_marr
         if self.study.inflation is None:
             return i, i
-        from core.inflation import market_rate
-
-        return i, market_rate(i, self.study.inflation.rate)
+        return i, infl.market_rate(i, self.study.inflation.rate)
 
     def annual_worth(self, alt: Alternative, price: np.ndarray | float, s: np.ndarray,
                      c: np.ndarray, marr: np.ndarray | float) -> np.ndarray:
@@ -221,13 +177,12 @@ class Model:
         self.study = study
         self.names = [a.name for a in study.alternatives]
         self.after_tax = _AfterTax(study) if study.tax is not None else None
-        self.basis = "after-tax" if self.after_tax is not None else "before-tax"
+        self.basis: Basis = "after-tax" if self.after_tax is not None else "before-tax"
         self.inflation = (_Inflation(study, self.after_tax is not None)
                           if study.inflation is not None else None)
         self._extras = {a.name: a.extra_cost_array() for a in study.alternatives}
         self._years = {a.name: np.arange(1, a.max_life + 1, dtype=float)
                        for a in study.alternatives}
-        self._options = self._study_period_options() if study.study_period else None
 
     # ------------------------------------------------------------------ inputs
     def estimate(self, address: str) -> float:
@@ -248,8 +203,8 @@ class Model:
             s = alt.market_value_array()
         else:
             d = values.get(f"{name}.market_values.decline_rate", mv.decline_rate or 0.0)
-            s = np.asarray(price, float)[..., None] * np.power(
-                1.0 - np.asarray(d, float)[..., None], years)
+            s = declining_market_values(np.asarray(price, float)[..., None],
+                                        np.asarray(d, float)[..., None], years)
         oc = alt.operating_costs
         if oc.values is not None:
             c = alt.operating_cost_array()
@@ -259,11 +214,11 @@ class Model:
             if oc.growth is not None:
                 g = np.asarray(values.get(f"{name}.operating_costs.growth", oc.growth),
                                float)[..., None]
-                c = first * np.power(1.0 + g, years - 1.0)
+                c = geometric_costs(first, g, years - 1.0)
             else:
                 grad = np.asarray(values.get(f"{name}.operating_costs.gradient",
                                              oc.gradient or 0.0), float)[..., None]
-                c = first + (years - 1.0) * grad
+                c = gradient_costs(first, grad, years - 1.0)
         c = c + self._extras[name]
         if self.inflation is not None:
             fp_, fs, fc = self.inflation.factors[name]
@@ -272,80 +227,64 @@ class Model:
 
     # ------------------------------------------------------------------ decision
     def evaluate(self, values: Mapping[str, np.ndarray], size: int) -> Outcome:
-        """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed)."""
+        """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed).
+
+        The AW kernels of ``core.annual_worth`` / ``core.aftertax`` and the rules of
+        ``core.decision``, with the trials as the batch axis.
+        """
         values = {k: np.asarray(v, dtype=float) for k, v in values.items()}
         marr = values.get("marr", self.study.marr)
         if self.after_tax is not None:
             rate = self.after_tax.rates(marr)[0]
         else:
             rate = self.inflation.rate(marr) if self.inflation is not None else marr
-        factors = None
-        if self.after_tax is None:
-            factors = batch_factors(rate, max(a.max_life for a in self.study.alternatives))
+        study = self.study
+        width = max([a.max_life for a in study.alternatives] + [study.study_period or 0])
+        factors = factor_table(rate, width)
         aw: dict[str, np.ndarray] = {}
         esl: dict[str, np.ndarray] = {}
         at_esl: dict[str, np.ndarray] = {}
-        for alt in self.study.alternatives:
+        for alt in study.alternatives:
             price, s, c = self._arrays(alt, values)
             if self.after_tax is not None:
                 raw = self.after_tax.annual_worth(alt, price, s, c, marr)
             else:
-                raw = annual_worth_batch(price, s, c, rate, factors)
+                raw = annual_worth_parts(price, s, c, factors.head(alt.max_life))[0]
             schedule = np.broadcast_to(raw, (size, alt.max_life))
-            idx = np.argmax(np.round(schedule, 2), axis=-1)
+            life = economic_life(schedule)
             aw[alt.name] = schedule
-            esl[alt.name] = idx + 1
-            at_esl[alt.name] = np.take_along_axis(schedule, idx[:, None], axis=-1)[:, 0]
-        d_name = self.study.defender.name
-        ch_aw = np.stack([at_esl[c.name] for c in self.study.challengers], axis=-1)
-        best = np.argmax(np.round(ch_aw, 2), axis=-1)
+            esl[alt.name] = life
+            at_esl[alt.name] = np.take_along_axis(schedule, life[:, None] - 1, axis=-1)[:, 0]
+        d_name = study.defender.name
+        ch_aw = np.stack([at_esl[c.name] for c in study.challengers], axis=-1)
+        best = first_best(ch_aw)
         c_best = np.take_along_axis(ch_aw, best[:, None], axis=-1)[:, 0]
-        if self._options is None:
-            replace = np.round(c_best, 2) > np.round(at_esl[d_name], 2)
+        if study.study_period is None:
+            replace_now = replaces(c_best, at_esl[d_name])
             difference = c_best - at_esl[d_name]
         else:
-            replace, difference = self._period_decision(aw, rate, size)
-        return Outcome(aw, esl, at_esl, best, replace, difference)
+            replace_now, difference = self._period_decision(aw, factors, size)
+        return Outcome(aw, esl, at_esl, best, replace_now, difference)
 
-    def _study_period_options(self) -> list[tuple[int, int | None, int]]:
-        """Feasible (j, challenger index or None, T-j) in the order of core.study."""
-        study = self.study
-        period = int(study.study_period or 0)
-        out: list[tuple[int, int | None, int]] = []
-        for j in range(0, min(study.defender.max_life, period) + 1):
-            rest = period - j
-            if rest == 0:
-                out.append((j, None, 0))
-                continue
-            for k, ch in enumerate(study.challengers):
-                if rest <= ch.max_life:
-                    out.append((j, k, rest))
-        return out
-
-    def _period_decision(self, aw: dict[str, np.ndarray], rate: np.ndarray | float,
+    def _period_decision(self, aw: dict[str, np.ndarray], factors: FactorTable,
                          size: int) -> tuple[np.ndarray, np.ndarray]:
+        """Replace now when the best feasible option starts a challenger today; the AW
+        difference is the best such option minus the best option keeping the defender."""
         study = self.study
-        period = int(study.study_period or 0)
-        i = np.broadcast_to(np.asarray(rate, dtype=float), (size,))
-        d_aw = aw[study.defender.name]
-        values = []
-        for j, k, rest in self._options or []:
-            pw_d = d_aw[:, j - 1] * pa(i, j) if j else np.zeros(size)
-            if k is None:
-                value = pw_d * ap(i, period)
-            else:
-                c_aw = aw[study.challengers[k].name][:, rest - 1]
-                value = (pw_d + pf(i, j) * c_aw * pa(i, rest)) * ap(i, period)
-            values.append(value)
-        table = np.stack(values, axis=-1)
-        top = np.argmax(np.round(table, 2), axis=-1)
-        now = np.array([j == 0 and k is not None for j, k, _ in self._options or []])
-        replace = now[top]
-        if now.any() and (~now).any():
-            difference = table[:, now].max(axis=-1) - table[:, ~now].max(axis=-1)
+        grid = option_grid(int(study.study_period or 0),
+                           (study.defender.name, study.defender.max_life),
+                           [(c.name, c.max_life) for c in study.challengers])
+        table = np.broadcast_to(period_options(
+            grid, aw[study.defender.name], [aw[c.name] for c in study.challengers], factors),
+            (size, grid.feasible.size))
+        top = first_best(table, grid.feasible)
+        now = grid.replace_now & grid.feasible
+        keep = ~grid.replace_now & grid.feasible
+        if now.any() and keep.any():
+            difference = table[:, now].max(axis=-1) - table[:, keep].max(axis=-1)
         else:
             difference = np.full(size, np.nan)
-        return replace, difference
+        return grid.replace_now[top], difference
 
 
 def _get(alt: Alternative, suffix: str) -> float:
@@ -364,8 +303,6 @@ def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
     ``_AfterTax``).  The scalar, one-study counterpart of ``Model.evaluate``, used by the
     tests' naive reference loop and to check breakevens with ``core.study.run_study``.
     """
-    from dataclasses import replace
-
     alts = {a.name: a for a in study.alternatives}
     marr = study.marr
     for address, value in values.items():
@@ -381,9 +318,12 @@ def perturbed_study(study: Study, values: Mapping[str, float]) -> Study:
             current = replace(current, market_values=replace(current.market_values,
                                                              decline_rate=value))
         else:
+            oc = current.operating_costs
             field = suffix.split(".")[1]
-            current = replace(current, operating_costs=replace(current.operating_costs,
-                                                               **{field: value}))
+            oc = (replace(oc, first=value) if field == "first" else
+                  replace(oc, gradient=value) if field == "gradient" else
+                  replace(oc, growth=value))
+            current = replace(current, operating_costs=oc)
         alts[alt.name] = current
     tax = study.tax
     if tax is not None and marr != study.marr:  # the after-tax MARR follows (see _AfterTax)

@@ -11,14 +11,14 @@ Reference: R. Bellman (1955), "Equipment replacement policy", J. SIAM 3(3).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Literal
 
 import numpy as np
 
 from core.errors import StudyError
 from core.estimates import Study
 from core.factors import ap
+from core.results import PlanStep, TechnologyPlan
 from core.technology import induction, settings, vintages
 
 Action = Literal["keep", "replace"]
@@ -26,117 +26,6 @@ Action = Literal["keep", "replace"]
 
 def _r(x: float, digits: int = 2) -> float:
     return round(float(x), digits)
-
-
-@dataclass(frozen=True)
-class PlanStep:
-    """One plan year: ``action`` at its start; the machine then in service and its age at its end.
-
-    ``challenger`` and ``vintage`` are None while the defender stays in service.
-    """
-
-    year: int
-    action: Action
-    challenger: str | None
-    vintage: int | None
-    age_after: int
-
-    def to_json(self) -> dict[str, Any]:
-        return {"year": self.year, "action": self.action, "challenger": self.challenger,
-                "vintage": self.vintage, "age_after": self.age_after}
-
-
-@dataclass(frozen=True)
-class PlanSegment:
-    """One machine's time in service within the plan: plan years ``start`` to ``end`` (exclusive)."""
-
-    name: str
-    role: Literal["defender", "challenger"]
-    vintage: int | None
-    start: int
-    end: int
-
-
-@dataclass(frozen=True)
-class TechnologyPlan:
-    """The optimal plan over the horizon and the comparisons the report needs.
-
-    Money in the study's currency at time 0 (constant money); ``annual_worth``
-    is ``present_worth`` (A/P,``rate``,H).  ``change_rates``: (name, gP, gC)
-    per challenger.
-    """
-
-    horizon: int
-    basis: Literal["before-tax", "after-tax"]
-    rate: float
-    defender: str
-    present_worth: float
-    annual_worth: float
-    policy: tuple[PlanStep, ...]
-    best_replace_now_present_worth: float
-    best_wait_present_worth: float
-    no_change_present_worth: float
-    change_rates: tuple[tuple[str, float, float], ...]
-
-    @property
-    def first_action(self) -> Action:
-        return self.policy[0].action
-
-    @property
-    def value_of_change(self) -> float:
-        """Best PW with the change rates minus best PW if every future model were today's."""
-        return self.present_worth - self.no_change_present_worth
-
-    @property
-    def waiting_gain(self) -> float:
-        """Best plan that waits minus best plan that replaces now (positive: waiting pays)."""
-        return self.best_wait_present_worth - self.best_replace_now_present_worth
-
-    def segments(self) -> tuple[PlanSegment, ...]:
-        """The machines of the plan in order, each with its years in service."""
-        out: list[PlanSegment] = []
-        start, name, role, vintage = 0, self.defender, "defender", None
-        for step in self.policy:
-            if step.action == "replace":
-                if step.year > start:
-                    out.append(PlanSegment(name, role, vintage, start, step.year))
-                start, name, role, vintage = step.year, step.challenger, "challenger", step.vintage
-        out.append(PlanSegment(name, role, vintage, start, self.horizon))  # type: ignore[arg-type]
-        return tuple(out)
-
-    def to_json(self) -> dict[str, Any]:
-        """The ``technology_plan`` object of ``tenure study --json`` (docs/method.md §6, §11)."""
-        return {"horizon": self.horizon, "present_worth": _r(self.present_worth),
-                "annual_worth": _r(self.annual_worth), "first_action": self.first_action,
-                "policy": [s.to_json() for s in self.policy],
-                "best_replace_now_present_worth": _r(self.best_replace_now_present_worth),
-                "best_wait_present_worth": _r(self.best_wait_present_worth),
-                "no_change_present_worth": _r(self.no_change_present_worth)}
-
-    def format_text(self) -> str:
-        """The short section of the readable output."""
-        from core.report import table
-        from core.study import money, years
-
-        tag = " (after tax)" if self.basis == "after-tax" else ""
-        rates = "; ".join(f"{n}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
-                          for n, gp, gc in self.change_rates)
-        rows = [[str(s.year), s.action, s.challenger or self.defender,
-                 "-" if s.vintage is None else str(s.vintage), str(s.age_after)]
-                for s in self.policy]
-        first = ("REPLACE NOW" if self.first_action == "replace" else "KEEP (wait)")
-        return "\n".join([
-            f"Technology plan over {years(self.horizon)}{tag}: each year's model changes "
-            f"({rates}).",
-            table(["plan year", "action", "machine in service", "vintage", "age at year end"],
-                  rows),
-            f"First action: {first}. Best plan PW {money(self.present_worth)}, AW over the "
-            f"horizon {money(self.annual_worth)}.",
-            f"Best plan that replaces now: PW {money(self.best_replace_now_present_worth)}; "
-            f"best plan that waits: PW {money(self.best_wait_present_worth)}.",
-            f"Value of waiting for better models: {money(self.value_of_change)} in PW against "
-            f"the best plan if every future model were today's (PW "
-            f"{money(self.no_change_present_worth)})."])
 
 
 def _solve(study: Study, rates: vintages.Rates, horizon: int, change: bool

@@ -56,9 +56,7 @@ def plan_rates(study: Study) -> Rates:
     """Before tax: the study rate (real MARR with inflation); after tax: ``core.aftertax.rates``."""
     f = float(study.inflation.rate) if study.inflation is not None else 0.0
     if study.tax is None:
-        from core.study import study_rate
-
-        i = float(study_rate(study))
+        i = float(infl.before_tax_rate(study))
         return Rates("before-tax", i, i, f)
     decision, discount, _ = after_tax_rates(study)
     return Rates("after-tax", float(discount), float(decision), f)
@@ -67,10 +65,7 @@ def plan_rates(study: Study) -> Rates:
 def _arrays(study: Study, alt: Alternative, basis: Basis) -> tuple[float, np.ndarray, np.ndarray,
                                                                     np.ndarray]:
     """(price, S, C, X) in the money the basis discounts: kernel arrays, C and X apart."""
-    if basis == "before-tax":
-        from core.study import alternative_arrays as arrays
-    else:
-        arrays = infl.then_current_arrays
+    arrays = infl.before_tax_arrays if basis == "before-tax" else infl.then_current_arrays
     price, s, cx = arrays(study, alt)
     _, _, c = arrays(study, dataclasses.replace(alt, extra_costs=()))
     return float(price), np.asarray(s, float), np.asarray(c, float), np.asarray(cx - c, float)

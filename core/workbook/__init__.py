@@ -61,7 +61,7 @@ writing; ``PRAGMA application_id`` marks the file as ours.
 
 Studies are stored as the canonical study JSON (docs/method.md §5, via
 ``core.studyfile.study_to_dict`` / ``parse_study``) with relational columns for
-the register, and the computed result (``StudyResult.to_json()``) alongside as a
+the register, and the computed result (``core.jsonout.study_json(result)``) alongside as a
 readable snapshot.
 """
 

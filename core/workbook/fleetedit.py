@@ -2,7 +2,7 @@
 
 Everything here goes through :class:`core.workbook.Workbook` and writes in one
 transaction per call. Study results are read in one place,
-:func:`result_snapshot` (the stored ``StudyResult.to_json()``) and
+:func:`result_snapshot` (the stored ``core.jsonout.study_json`` of the result) and
 :func:`register_state` (its words for the register), so they can follow the
 engine's result types at one spot.
 
@@ -24,15 +24,15 @@ from typing import Any
 
 from core.errors import StudyError
 from core.estimates import Alternative, Study
+from core.jsonout import study_json
+from core.study import run_study
 from core.workbook.files import WorkbookError
 from core.workbook.model import Asset, Candidate, Workbook
 
 
 def result_snapshot(study: Study) -> dict[str, Any]:
-    """The result kept with a stored study: ``core.study.run_study(study).to_json()``."""
-    from core.study import run_study
-
-    return run_study(study).to_json()
+    """The result kept with a stored study: ``study_json(run_study(study))``."""
+    return study_json(run_study(study))
 
 
 def register_state(study: Study | None, result_json: Mapping[str, Any] | None) -> str:

@@ -23,6 +23,7 @@ from core.studyfile import (
     parse_study,
     study_to_dict,
 )
+from core.text import SITE_SEPARATOR
 from core.workbook.files import (
     WorkbookError,
     WorkbookInUse,
@@ -32,7 +33,7 @@ from core.workbook.files import (
     check_file,
     write_problem,
 )
-from core.workbook.schema import SCHEMA_VERSION, create_v1, migrate
+from core.workbook.schema import MIGRATIONS, SCHEMA_VERSION, create_v1, migrate
 
 HISTORY_KINDS = ("operating", "maintenance", "resale")
 
@@ -529,7 +530,7 @@ class Workbook:
         return _dt.date.today().year
 
     def meta(self) -> dict[str, str]:
-        return dict(self._q("SELECT key, value FROM meta"))
+        return {str(k): str(v) for k, v in self._q("SELECT key, value FROM meta")}
 
     def set_meta(self, key: str, value: str) -> None:
         with self.transaction() as c:
@@ -779,7 +780,7 @@ class Workbook:
                    result_json: Mapping[str, Any] | None = None) -> str:
         """Store the study of ``tag`` for ``year`` (replacing that year's); returns its fingerprint.
 
-        ``result_json`` is ``StudyResult.to_json()`` of this very study, kept
+        ``result_json`` is ``core.jsonout.study_json(result)`` of this very study, kept
         as a readable snapshot; a snapshot of another study is refused.
         """
         self._active(tag)
@@ -944,7 +945,7 @@ class Workbook:
                 cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
                                 "file_name) VALUES (?, ?, ?, ?, ?, ?)",
                                 (tag, year, fingerprint, signer or "", when, os.fspath(path)))
-        return int(cur.lastrowid)
+        return int(cur.lastrowid or 0)
 
     def memos(self, tag: str | None = None) -> list[MemoRecord]:
         cols = "id, tag, year, fingerprint, signer, signed_at, file_name"
@@ -963,8 +964,6 @@ class Workbook:
 
 
 def _migrate_to(conn: sqlite3.Connection, target: int) -> int:
-    from core.workbook.schema import MIGRATIONS
-
     version = 1
     while version < target:
         MIGRATIONS[version](conn)
@@ -986,8 +985,6 @@ def studies_from_workbook(path: str | Path) -> list[Study]:
         raise WorkbookError(path, "the workbook holds no study yet")
     return studies
 
-
-SITE_SEPARATOR = " — "
 
 
 def _asset_for_title(wb: Workbook, title: str, by_title: dict[str, str]) -> str:
@@ -1026,7 +1023,7 @@ def save_studies(path: str | Path, studies: Sequence[Study], year: int | None = 
     to the asset named by the title "Site — TAG description"; else to a new
     asset. It is stored as ``year``'s study (default: this calendar year),
     replacing that year's and leaving earlier years as they were. ``results``
-    maps a title to its ``StudyResult.to_json()``. One transaction for all.
+    maps a title to its ``core.jsonout.study_json(result)``. One transaction for all.
     Returns the (tag, year) of each study, in order.
     """
     year = _dt.date.today().year if year is None else int(year)

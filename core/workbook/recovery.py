@@ -24,7 +24,7 @@ from pathlib import Path
 from core.estimates import Study
 from core.fsutil import fsync_dir, remove_leftovers
 from core.studyfile import fingerprint, study_to_dict
-from core.workbook.files import WorkbookError, check_file
+from core.workbook.files import WorkbookError, WriterLock, check_file
 from core.workbook.model import Workbook
 
 
@@ -107,8 +107,6 @@ def restore_recovery(path: str | Path) -> Path:
     rec = find_recovery(path)
     if rec is None:
         raise WorkbookError(path, "no intact recovery copy to restore")
-    from core.workbook.files import WriterLock
-
     lock = WriterLock(path)
     lock.acquire()
     try:

@@ -51,7 +51,7 @@ CREATE TABLE studies (
     year        INTEGER NOT NULL,
     title       TEXT    NOT NULL,
     study_json  TEXT    NOT NULL,   -- docs/method.md §5 study object
-    result_json TEXT,               -- StudyResult.to_json() snapshot, or NULL
+    result_json TEXT,               -- core.jsonout.study_json snapshot, or NULL
     fingerprint TEXT    NOT NULL,   -- core.studyfile.fingerprint
     action      TEXT,               -- 'keep' | 'replace' from the snapshot
     saved_at    TEXT    NOT NULL,
