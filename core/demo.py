@@ -23,7 +23,6 @@ from typing import Any
 from core.errors import StudyError
 from core.estimates import Study
 from core.studyfile import loads_json, parse_study
-from core.workbook import Asset, Site, Workbook, WorkbookError
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "resources" / "demo"
 DEMO_NAME = "Harrowgate demo fleet.tenure"
@@ -76,6 +75,8 @@ def build_demo(out: str | Path, data_dir: str | Path | None = None) -> Path:
     The workbook is built beside ``out`` under a temporary name and renamed
     when complete, so a failure never leaves a half-built demo.
     """
+    from core.workbook import WorkbookError  # only when a workbook is made
+
     out = Path(out)
     if out.exists():
         raise WorkbookError(out, "already exists; not overwritten")
@@ -105,6 +106,7 @@ def _build(out: Path, src: Path) -> None:
     )
     from core.jsonout import study_json
     from core.study import run_study
+    from core.workbook import Asset, Site, Workbook  # only when a workbook is made
 
     # core.workbook is imported where a workbook is made or opened, so `tenure study` on a
     # study file registers this command without loading it.
@@ -161,6 +163,8 @@ def demo_workbook_path() -> Path:
     """The user's copy of the demo workbook (built on first use) in the user data folder."""
     from platformdirs import user_data_dir
 
+    from core.workbook import WorkbookError  # only when a workbook is made
+
 
     folder = Path(user_data_dir("tenure", appauthor=False))
     folder.mkdir(parents=True, exist_ok=True)
@@ -179,6 +183,8 @@ def demo_workbook_path() -> Path:
 
 def run_demo(args: argparse.Namespace) -> int:
     """``tenure demo OUT.tenure``: write the demo workbook."""
+    from core.workbook import Workbook  # only when a workbook is made
+
     out = Path(args.out)
     if out.exists() and not args.force:
         raise StudyError(str(out), "already exists (use --force to overwrite)")

@@ -95,10 +95,32 @@ def write_error(target: str | os.PathLike, exc: BaseException) -> StudyError:
 _LEFTOVER = re.compile(r"\.(?:(\d+)\.part|part|tmp(\d+))$")
 
 
-def _pid_alive(pid: int) -> bool:
-    from core.workbook.files import _pid_alive as alive
+def pid_alive(pid: int) -> bool:
+    """Whether process ``pid`` is running on this computer (never signals it)."""
+    if pid <= 0:
+        return False
+    if os.name == "nt":  # os.kill(pid, 0) would terminate the process on Windows
+        import ctypes
 
-    return alive(pid)
+        kernel32 = ctypes.windll.kernel32  # type: ignore[attr-defined]
+        handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
+        if not handle:
+            return False
+        code = ctypes.c_ulong()
+        try:
+            kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
+        finally:
+            kernel32.CloseHandle(handle)
+        return code.value == 259  # STILL_ACTIVE
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
 
 
 def remove_leftovers(folder: str | os.PathLike, stem: str | None = None) -> list[Path]:
@@ -120,7 +142,7 @@ def remove_leftovers(folder: str | os.PathLike, stem: str | None = None) -> list
         if m is None:
             continue
         pid = m.group(1) or m.group(2)
-        if pid is not None and int(pid) != os.getpid() and _pid_alive(int(pid)):
+        if pid is not None and int(pid) != os.getpid() and pid_alive(int(pid)):
             continue
         if pid is not None and int(pid) == os.getpid():
             continue

@@ -87,8 +87,8 @@ def test_after_tax_replace_with_a_negative_replacement_value(demo):
     assert rows["First cost of VSD screw compressor 75 kW"] == "£64,000"
     assert rows["Net capital required before tax"] == "£56,500"
     after = [v for k, v in facts.capital if k.startswith("Net outlay after tax")]
-    assert after == [f"£{64000 - d.initial:,.0f}"]
-    assert d.initial == pytest.approx(7500 - 0.25 * (7500 - d.book_value_0))
+    assert after == [f"£{64000 - d.tax.initial:,.0f}"]
+    assert d.tax.initial == pytest.approx(7500 - 0.25 * (7500 - d.tax.book_value_0))
     assert "now (2026)" in facts.capital_intro
     assert facts.one_offs == ("Airend rebuild: £9,500 in year 1 of keeping Rotary screw "
                               "compressor 75 kW (2012) (the defender).",)
@@ -159,8 +159,8 @@ def test_keep_when_next_year_alone_costs_more_than_the_challenger(demo):
     # rule that the one-more-year check contradicts
     result = run_study(_study(demo, "Ouseburn Yard — PB-02 Hydraulic press brake 100 t"))
     omy = result.recommendation.one_more_year
-    assert result.recommendation.action == "keep" and omy["keep_next_year"] is False
+    assert result.recommendation.action == "keep" and omy.keep_next_year is False
     facts = page_one_facts(result, "£")
     assert "only while" not in facts.sentence
-    assert f"Next year alone costs £{omy['defender_marginal_cost']:,.0f}" in facts.sentence
+    assert f"Next year alone costs £{omy.defender_marginal_cost:,.0f}" in facts.sentence
     assert not re.search(r"-£?\d", facts.sentence)

@@ -334,9 +334,9 @@ def test_asset_flag_is_read_when_the_workbook_has_one(demo: Path, monkeypatch) -
 
     real = Workbook.assets
 
-    def assets(self, site=None):
+    def assets(self, site=None, **options):
         return [FlaggedAsset(**{f.name: getattr(a, f.name) for f in dataclasses.fields(a)},
-                             must_replace=a.tag == "PB-05") for a in real(self, site)]
+                             must_replace=a.tag == "PB-05") for a in real(self, site, **options)]
 
     monkeypatch.setattr(Workbook, "assets", assets)
     source = load_plan_source(demo)

@@ -157,15 +157,15 @@ def page_one_facts(result: StudyResult, currency: str = "",
             sentence = (f"Keep {d.name}. Over its best remaining life of "
                         f"{_yrs(d.economic_life)} it has an equivalent annual cost{tag} of "
                         f"{money(d_eac)}")
-            omy = rec.one_more_year or {}
+            omy = rec.one_more_year
             if c is not None:
                 sentence += (f", {money(c_eac - d_eac)} a year less than the best "
                              f"challenger, {c.name} ({money(c_eac)} a year over "
                              f"{_yrs(c.economic_life)}).")
-                if omy.get("keep_next_year") is False:
+                if not omy.keep_next_year:
                     # the one-more-year check disagrees: say why keeping still wins
                     sentence += (f" Next year alone costs "
-                                 f"{money(omy.get('defender_marginal_cost'))} to keep it, "
+                                 f"{money(omy.defender_marginal_cost)} to keep it, "
                                  f"more than {money(c_eac)}, but the years after it cost "
                                  "less, so keeping wins over its best remaining life")
                 else:

@@ -25,7 +25,7 @@ class PlanSource:
 
 
 def _is_workbook(path: Path) -> bool:
-    from core.cli import SQLITE_MAGIC
+    from core.loading import SQLITE_MAGIC
 
     try:
         with path.open("rb") as fh:
@@ -50,7 +50,7 @@ def load_plan_source(path: str | Path, must: Sequence[str] = ()) -> PlanSource:
     ``must`` names assets to replace now: tags for a workbook, study titles for a
     study file.  Unknown names are refused.
     """
-    from core.cli import load_studies
+    from core.loading import load_studies
 
     file = Path(path)
     if not file.exists():

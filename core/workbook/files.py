@@ -168,31 +168,6 @@ def check_file(path: str | Path) -> int:
 
 
 # --------------------------------------------------------------------------- lock
-def _pid_alive(pid: int) -> bool:
-    if pid <= 0:
-        return False
-    if os.name == "nt":  # os.kill(pid, 0) would terminate the process on Windows
-        import ctypes
-
-        kernel32 = ctypes.windll.kernel32  # type: ignore[attr-defined]
-        handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
-        if not handle:
-            return False
-        code = ctypes.c_ulong()
-        try:
-            kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
-        finally:
-            kernel32.CloseHandle(handle)
-        return code.value == 259  # STILL_ACTIVE
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
-
-
 def lock_path(path: Path) -> Path:
     return path.with_name(path.name + ".lock")
 
