@@ -109,6 +109,13 @@ def main(path: str | None = None) -> int:
 
     if path is not None and not Path(path).exists():
         raise StudyError(path, "no such file")
+    # Before Qt starts: a missing system library would make Qt abort in QApplication.
+    from desktop_app.system_libs import check_qt_libraries
+
+    problem = check_qt_libraries()
+    if problem is not None:
+        where, what = problem.split(": ", 1)
+        raise StudyError(where, what)
     app = create_app()
     window = build_window(path, deferred=True)
     recovery.install_excepthook(window.handle_unexpected)
