@@ -88,18 +88,23 @@ def fill_wheelhouse(requirements: Sequence[str]) -> Path:
     return house
 
 
+def load_installer(name: str):
+    """A module of installer/ (build_kit, build_bundle), imported from its file."""
+    import importlib.util
+
+    folder = str(ROOT / "installer")
+    if folder not in sys.path:
+        sys.path.insert(0, folder)  # build_bundle imports build_kit
+    spec = importlib.util.spec_from_file_location(name, ROOT / "installer" / f"{name}.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
 def build_wheel(out: Path) -> Path:
     """Tenure's wheel, built from this checkout offline (build requirements from the wheelhouse)."""
     house = fill_wheelhouse(build_requirements())
-    out.mkdir(parents=True, exist_ok=True)
-    done = subprocess.run([sys.executable, "-m", "pip", "wheel", "-q", "--no-deps", "--no-index",
-                           "--find-links", str(house), "-w", str(out), str(ROOT)],
-                          capture_output=True, text=True, env=offline_env())
-    assert done.returncode == 0, done.stdout + done.stderr
-    # a setuptools build folder left in the checkout would be picked up by the next build
-    shutil.rmtree(ROOT / "build" / "lib", ignore_errors=True)
-    (wheel,) = out.glob("tenure-*.whl")
-    return wheel
+    return load_installer("build_kit").build_wheel(out, ["--no-index", "--find-links", str(house)])
 
 
 def venv_bin(venv: Path, name: str) -> Path:
@@ -177,3 +182,35 @@ def exercise_tenure(tenure: Sequence[str], work: Path, env: dict[str, str],
         else:
             out, err = proc.communicate()
             raise AssertionError(f"the window exited early (rc {proc.returncode}): {out}\n{err}")
+
+
+def no_network_wrapper() -> tuple[list[str], str]:
+    """A command prefix that runs a program with no network, and how.
+
+    ``unshare -n`` (a new network namespace holding only a loopback that is down) where
+    it works (root on Linux); else no namespace, but every proxy variable points at a
+    closed local port, so pip or anything else that tried the network would fail.
+    """
+    unshare = shutil.which("unshare")
+    if unshare:
+        probe = subprocess.run([unshare, "-n", sys.executable, "-c",
+                                "import socket; print([n for _, n in socket.if_nameindex()])"],
+                               capture_output=True, text=True)
+        if probe.returncode == 0 and probe.stdout.strip() == "['lo']":
+            return [unshare, "-n"], "netns"
+    return [], "proxy"
+
+
+def no_network_env(env: dict[str, str], how: str) -> dict[str, str]:
+    if how == "netns":
+        return env
+    dead = "http://127.0.0.1:9"
+    return {**env, "http_proxy": dead, "https_proxy": dead, "HTTP_PROXY": dead,
+            "HTTPS_PROXY": dead, "no_proxy": "", "NO_PROXY": ""}
+
+
+def base_python() -> str:
+    """The interpreter behind this (virtual) environment: what a site's python3 would be."""
+    candidates = [Path(sys.base_prefix) / "bin" / f"python{sys.version_info[0]}.{sys.version_info[1]}",
+                  Path(sys.base_prefix) / "python.exe", Path(sys._base_executable)]
+    return str(next(p for p in candidates if p.exists()))

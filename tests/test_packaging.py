@@ -105,3 +105,10 @@ def test_wheel_installs_and_runs_outside_the_checkout(tmp_path: Path) -> None:
                             "print(resources.__file__); print(core.__file__)"],
                            capture_output=True, text=True, cwd=tmp_path, check=True)
     assert str(ROOT) not in where.stdout and str(env_dir) in where.stdout
+
+
+def test_window_icon_is_read_from_the_package(qapp) -> None:
+    from desktop_app.app import window_icon
+
+    icon = window_icon()
+    assert not icon.isNull() and icon.availableSizes()[0].width() == 128
