@@ -68,9 +68,11 @@ def ensure_environment(extras: tuple[str, ...] = ()) -> Path:
             subprocess.run([*pip, "--upgrade", "pip"], check=True)
             subprocess.run([*pip, "-e", target], check=True)
         except subprocess.CalledProcessError as exc:
-            sys.exit(f"error: installer: pip could not install Tenure (exit {exc.returncode}); "
-                     "is the package index reachable? At a site without internet, use the "
-                     "offline kit (README: Installing at a site without internet)")
+            print(f"error: installer: pip could not install Tenure (exit {exc.returncode}); "
+                  "is the package index reachable? At a site without internet, use the "
+                  "offline kit (README: Installing at a site without internet)",
+                  file=sys.stderr)
+            raise SystemExit(2) from None
         STAMP.write_text(json.dumps({"digest": _digest(), "extras": wanted}), encoding="utf-8")
     return python
 
