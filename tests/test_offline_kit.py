@@ -133,3 +133,46 @@ def test_kit_installs_and_runs_with_no_network(tmp_path: Path) -> None:
 
     exercise_tenure([str(prefix / "venv" / "bin" / "tenure")], tmp_path / "work", env,
                     wrapper, window_seconds=8)
+
+
+def _mini_kit(folder: Path) -> Path:
+    """install.sh with a tiny stand-in kit: two 'wheels', their checksums and kit-info."""
+    kit = folder / "kit"
+    (kit / "wheels").mkdir(parents=True)
+    (kit / "install.sh").write_text((ROOT / "installer" / "kit" / "install.sh").read_text())
+    (kit / "wheels" / "pip-99-py3-none-any.whl").write_bytes(b"not really a wheel")
+    (kit / "wheels" / "tenure-0.1.0-py3-none-any.whl").write_bytes(b"nor this one")
+    (kit / "kit-info.txt").write_text(f"version=0.1.0\nplatforms={build_kit.this_platform()}\n"
+                                      "pythons=3.11\nglibc=2.17\n")
+    (kit / "tenure.png").write_bytes(b"png")
+    build_kit.write_checksums(kit)
+    return kit
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="install.sh runs under sh")
+def test_install_sh_names_every_damaged_or_missing_file_and_installs_nothing(tmp_path) -> None:
+    kit = _mini_kit(tmp_path)
+    (kit / "wheels" / "tenure-0.1.0-py3-none-any.whl").write_bytes(b"nor this one!")
+    (kit / "tenure.png").unlink()
+    done = subprocess.run(["sh", str(kit / "install.sh"), "--prefix", str(tmp_path / "p")],
+                          capture_output=True, text=True)
+    assert done.returncode == 2 and done.stdout == ""
+    assert done.stderr.splitlines() == [
+        "error: kit: these files are damaged or missing (copy the kit again; nothing was "
+        "installed):", "  missing: tenure.png", "  damaged: wheels/tenure-0.1.0-py3-none-any.whl"]
+    assert not (tmp_path / "p").exists()
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="install.sh runs under sh")
+def test_install_sh_refuses_a_python_the_kit_has_no_wheels_for(tmp_path) -> None:
+    kit = _mini_kit(tmp_path)
+    fake = tmp_path / "python3.99"
+    fake.write_text("#!/bin/sh\necho 3.99\n")
+    fake.chmod(0o755)
+    done = subprocess.run(["sh", str(kit / "install.sh"), "--python", str(fake), "--prefix",
+                           str(tmp_path / "p")], capture_output=True, text=True)
+    assert done.returncode == 2
+    assert done.stderr.strip() == (f"error: python: {fake} is Python 3.99; this kit holds wheels "
+                                   "for Python 3.11 (name another with --python, or build a kit "
+                                   "with --python 3.99)")
+    assert not (tmp_path / "p").exists()
