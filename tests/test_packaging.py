@@ -33,8 +33,11 @@ PYPROJECT = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
 
 
 def _packaged(package: str, relative: str) -> bool:
-    data = PYPROJECT["tool"]["setuptools"]["package-data"].get(package, [])
-    return any(fnmatch(relative, pattern) for pattern in data)
+    """Whether package-data ships ``relative`` (a path inside ``package``'s folder)."""
+    folder, _, name = relative.rpartition("/")
+    owner = ".".join(filter(None, [package, *folder.split("/")]))
+    data = PYPROJECT["tool"]["setuptools"]["package-data"].get(owner, [])
+    return any(fnmatch(name, pattern) for pattern in data)
 
 
 def test_every_resource_file_is_package_data() -> None:
