@@ -122,7 +122,9 @@ if (-not $NoShortcut) {
     $shell = New-Object -ComObject WScript.Shell
     $link = $shell.CreateShortcut((Join-Path $programs "Tenure.lnk"))
     $link.TargetPath = Join-Path $Venv "Scripts\pythonw.exe"
-    $link.Arguments = "-m core.cli"
+    # -P: the working folder (Documents) is not put on the module path, so a folder there
+    # named like one of Tenure's packages cannot stand in for it
+    $link.Arguments = "-P -m core.cli"
     $link.WorkingDirectory = [Environment]::GetFolderPath("MyDocuments")
     $link.IconLocation = Join-Path $Prefix "tenure.ico"
     $link.Description = "Keep-or-replace decisions for production equipment"
