@@ -1,6 +1,7 @@
 """The demo fleet: Harrowgate Fabrication Ltd. (an invented company; every figure is fictional).
 
-The source data is readable JSON and CSV in ``resources/demo/``:
+The source data is readable JSON and CSV in ``resources/demo/`` (read with
+:mod:`importlib.resources`, so it is found inside an installed wheel or bundle too):
 
 * ``fleet.json``: company, sites, challenger candidates by asset class, and
   each asset with its register entry and defender estimates (and, for some,
@@ -17,6 +18,8 @@ from __future__ import annotations
 
 import argparse
 import shutil
+from importlib.resources import as_file, files
+from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Any
 
@@ -24,15 +27,17 @@ from core.errors import StudyError
 from core.estimates import Study
 from core.studyfile import loads_json, parse_study
 
-DEMO_DIR = Path(__file__).resolve().parent.parent / "resources" / "demo"
+DEMO_DIR: Traversable = files("resources").joinpath("demo")
 DEMO_NAME = "Harrowgate demo fleet.tenure"
 
 
-def _data_dir(data_dir: str | Path | None) -> Path:
-    return DEMO_DIR if data_dir is None else Path(data_dir)
+def _data_dir(data_dir: str | Path | Traversable | None) -> Traversable:
+    if data_dir is None:
+        return DEMO_DIR
+    return Path(data_dir) if isinstance(data_dir, str) else data_dir
 
 
-def load_fleet(data_dir: str | Path | None = None) -> dict[str, Any]:
+def load_fleet(data_dir: str | Path | Traversable | None = None) -> dict[str, Any]:
     """The parsed ``fleet.json``."""
     path = _data_dir(data_dir) / "fleet.json"
     try:
@@ -94,7 +99,7 @@ def build_demo(out: str | Path, data_dir: str | Path | None = None) -> Path:
     return out
 
 
-def _build(out: Path, src: Path) -> None:
+def _build(out: Path, src: Traversable) -> None:
     from datetime import date
 
     from core.history import (
@@ -138,12 +143,13 @@ def _build(out: Path, src: Path) -> None:
             study = asset_study(fleet, a)
             wb.save_study(a["tag"], year, study, study_json(run_study(study)))
         in_service = {a.tag: a.in_service for a in wb.assets()}
-        costs = import_file(src / "cost_history.csv",
-                            ColumnMapping(tag="Asset", date="Date", amount="Amount", kind="Kind"),
-                            in_service)
-        quotes = import_file(src / "resale_quotes.csv",
-                             ColumnMapping(tag="Asset", date="Quote date", amount="Quote",
-                                           default_kind="resale"), in_service)
+        with as_file(src / "cost_history.csv") as cost_file:
+            costs = import_file(cost_file, ColumnMapping(tag="Asset", date="Date",
+                                                         amount="Amount", kind="Kind"), in_service)
+        with as_file(src / "resale_quotes.csv") as quote_file:
+            quotes = import_file(quote_file, ColumnMapping(tag="Asset", date="Quote date",
+                                                           amount="Quote", default_kind="resale"),
+                                 in_service)
         for report in (costs, quotes):
             if report.rejected or report.flagged:
                 raise StudyError(report.source, "; ".join(

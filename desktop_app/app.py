@@ -43,12 +43,22 @@ def create_app(argv: list[str] | None = None):
     app.setOrganizationName("Tenure")
     app.setApplicationName("Tenure")
     app.setApplicationDisplayName("Tenure")
-    icon = Path(__file__).resolve().parents[1] / "resources" / "icons" / "tenure.png"
-    if icon.exists():
-        from PySide6.QtGui import QIcon
-
-        app.setWindowIcon(QIcon(str(icon)))
+    app.setWindowIcon(window_icon())
     return app
+
+
+def window_icon():
+    """Tenure's icon, read with importlib.resources (so a wheel or bundle finds it too)."""
+    from importlib.resources import files
+
+    from PySide6.QtGui import QIcon, QPixmap
+
+    pixmap = QPixmap()
+    try:
+        pixmap.loadFromData(files("resources").joinpath("icons", "tenure.png").read_bytes(), "PNG")
+    except OSError:  # an icon missing from a damaged installation is not worth stopping for
+        return QIcon()
+    return QIcon(pixmap)
 
 
 def initial_path(path: str | None, prefs) -> str | None:
@@ -132,6 +142,13 @@ def main(path: str | None = None) -> int:
 
     if path is not None and not Path(path).exists():
         raise StudyError(path, "no such file")
+    # Before Qt starts: a missing system library would make Qt abort in QApplication.
+    from desktop_app.system_libs import check_qt_libraries
+
+    problem = check_qt_libraries()
+    if problem is not None:
+        where, what = problem.split(": ", 1)
+        raise StudyError(where, what)
     recovery.remove_leftovers()  # sidecars of a window killed mid-autosave
     app = create_app()
     window = build_window(path, deferred=True)

@@ -5,6 +5,7 @@ Study files go through ``core.studyfile``; workbooks through ``core.workbook``. 
 
 from __future__ import annotations
 
+from importlib.resources import files
 from pathlib import Path
 
 from core.errors import StudyError
@@ -64,8 +65,7 @@ def demo_path() -> str | None:
             return str(path)
     except Exception:  # noqa: BLE001 - any failure falls back to the bundled JSON
         pass
-    root = Path(__file__).resolve().parents[1]
-    for candidate in sorted((root / "resources" / "demo").glob("*.json")):
-        return str(candidate)
-    fallback = Path(__file__).with_name("demo_fallback.json")
-    return str(fallback) if fallback.exists() else None
+    # demo_fallback.json ships in the desktop_app package; a file-system package (source,
+    # wheel, bundle) gives a real path the window can open.
+    fallback = files("desktop_app").joinpath("demo_fallback.json")
+    return str(fallback) if fallback.is_file() else None

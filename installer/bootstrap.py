@@ -5,13 +5,17 @@ Usage (from the repository root, with any Python 3.11+):
     python3 installer/bootstrap.py run     # set up if needed, open the window on the demo
     python3 installer/bootstrap.py test    # set up if needed, run the whole test suite
 
-The environment lives in ``.venv`` beside this repository. It is rebuilt only
-when ``pyproject.toml`` changes, so the second call is fast.
+The environment lives in ``.venv`` beside this repository. ``run`` installs what
+running needs (the runtime dependencies); ``test`` adds the ``test`` extra. Pip runs
+again only when ``pyproject.toml`` changes or an extra is missing, so the second call is
+fast. This script needs the package index; a site without internet installs from the
+offline kit instead (README, "Installing at a site without internet").
 """
 
 from __future__ import annotations
 
 import hashlib
+import json
 import os
 import subprocess
 import sys
@@ -29,25 +33,47 @@ def _venv_python() -> Path:
     return VENV / "bin" / "python"
 
 
-def _wanted_stamp() -> str:
+def _digest() -> str:
     digest = hashlib.sha256((ROOT / "pyproject.toml").read_bytes()).hexdigest()
     return f"{digest} {sys.version_info[:2]}"
 
 
-def ensure_environment() -> Path:
-    """Create the virtual environment and install Tenure with its test extra."""
+def _installed_extras() -> set[str] | None:
+    """The extras installed for this pyproject.toml and Python, or None if out of date."""
+    try:
+        stamp = json.loads(STAMP.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if not isinstance(stamp, dict) or stamp.get("digest") != _digest():
+        return None
+    return set(stamp.get("extras", []))
+
+
+def ensure_environment(extras: tuple[str, ...] = ()) -> Path:
+    """Create the virtual environment and install Tenure (editable) with ``extras``."""
     if sys.version_info < (3, 11):  # noqa: UP036 (this script runs on whatever python3 is)
         sys.exit("error: python: Tenure needs Python 3.11 or newer")
     python = _venv_python()
     if not python.exists():
         print("Creating the virtual environment in .venv ...", flush=True)
         venv.EnvBuilder(with_pip=True).create(VENV)
-    if not STAMP.exists() or STAMP.read_text() != _wanted_stamp():
-        print("Installing Tenure and its dependencies (first run only) ...", flush=True)
+    installed = _installed_extras()
+    if installed is None or not set(extras) <= installed:
+        wanted = sorted(set(extras) | (installed or set()))
+        what = f" and its {', '.join(wanted)} extra" if wanted else ""
+        print(f"Installing Tenure{what} into .venv (first run only) ...", flush=True)
         pip = [str(python), "-m", "pip", "install", "--disable-pip-version-check", "-q"]
-        subprocess.run([*pip, "--upgrade", "pip"], check=True)
-        subprocess.run([*pip, "-e", f"{ROOT}[test]"], check=True)
-        STAMP.write_text(_wanted_stamp())
+        target = f"{ROOT}[{','.join(wanted)}]" if wanted else str(ROOT)
+        try:
+            subprocess.run([*pip, "--upgrade", "pip"], check=True)
+            subprocess.run([*pip, "-e", target], check=True)
+        except subprocess.CalledProcessError as exc:
+            print(f"error: installer: pip could not install Tenure (exit {exc.returncode}); "
+                  "is the package index reachable? At a site without internet, use the "
+                  "offline kit (README: Installing at a site without internet)",
+                  file=sys.stderr)
+            raise SystemExit(2) from None
+        STAMP.write_text(json.dumps({"digest": _digest(), "extras": wanted}), encoding="utf-8")
     return python
 
 
@@ -55,11 +81,13 @@ def main(argv: list[str]) -> int:
     if not argv or argv[0] not in {"run", "test"}:
         print(__doc__)
         return 2
-    python = ensure_environment()
+    python = ensure_environment(() if argv[0] == "run" else ("test",))
     if argv[0] == "run":
         return subprocess.call([str(python), "-m", "core.cli", *argv[1:]], cwd=ROOT)
     env = dict(os.environ, QT_QPA_PLATFORM=os.environ.get("QT_QPA_PLATFORM", "offscreen"))
-    return subprocess.call([str(python), "-m", "pytest", *argv[1:]], cwd=ROOT, env=env)
+    # pyproject's addopts leave the slow tests out of a plain pytest run; this is the whole suite
+    return subprocess.call([str(python), "-m", "pytest", "-m", "slow or not slow", *argv[1:]],
+                           cwd=ROOT, env=env)
 
 
 if __name__ == "__main__":

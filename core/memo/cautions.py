@@ -1,8 +1,11 @@
 """The cautions every memo (and the window) shows, docs/method.md §9.
 
 The texts live in ``resources/memo/cautions.txt`` (one caution per paragraph,
-``#`` lines are comments) so the window and the memo show the same words. A
-built-in copy is used if the resource file cannot be found.
+``#`` lines are comments), read with :mod:`importlib.resources`, so the window and
+the memo show the same words from a source checkout, an installed wheel or the
+standalone bundle. That file is the only copy: an installation without it is
+broken and says so (:class:`~core.memo.errors.MemoError`) instead of printing
+other words.
 
 >>> texts = caution_texts()
 >>> len(texts) >= 4 and texts[0].startswith("Estimates are forecasts")
@@ -12,25 +15,13 @@ True
 from __future__ import annotations
 
 from functools import lru_cache
-from pathlib import Path
+from importlib.resources import files
 
-__all__ = ["caution_texts", "CAUTIONS_FILE"]
+from core.memo.errors import MemoError
 
-CAUTIONS_FILE = Path(__file__).resolve().parents[2] / "resources" / "memo" / "cautions.txt"
+__all__ = ["caution_texts", "CAUTIONS_FILE", "parse_cautions"]
 
-_BUILT_IN = (
-    "Estimates are forecasts. Market values, operating costs, overhauls and service lives are "
-    "judgements about the future; the recommendation is only as good as they are, and it should "
-    "be revisited when they change.",
-    "Replacement required for safety, regulation or code overrides the economics: if the "
-    "equipment must be replaced or withdrawn for those reasons, do so whatever this memo concludes.",
-    "Tax treatment is simplified: one effective tax rate, the stated depreciation method and no "
-    "other allowances, credits or timing effects. Defer to a tax adviser for the tax position "
-    "that applies.",
-    "Decommissioning, removal and changeover follow site safety rules and local codes, under "
-    "licensed engineering practice where it applies. This memo does not cover how the work is "
-    "done safely.",
-)
+CAUTIONS_FILE = files("resources").joinpath("memo", "cautions.txt")
 
 
 def parse_cautions(text: str) -> list[str]:
@@ -58,11 +49,14 @@ def parse_cautions(text: str) -> list[str]:
 def _load() -> tuple[str, ...]:
     try:
         texts = parse_cautions(CAUTIONS_FILE.read_text(encoding="utf-8"))
-    except OSError:
-        texts = []
-    return tuple(texts) if texts else _BUILT_IN
+    except (OSError, UnicodeDecodeError) as exc:
+        raise MemoError("resources/memo/cautions.txt",
+                        f"cannot be read ({exc}); reinstall Tenure") from None
+    if not texts:
+        raise MemoError("resources/memo/cautions.txt", "holds no caution; reinstall Tenure")
+    return tuple(texts)
 
 
 def caution_texts() -> list[str]:
-    """The caution paragraphs, in order (always at least the four of docs/method.md §9)."""
+    """The caution paragraphs of ``resources/memo/cautions.txt``, in order."""
     return list(_load())
