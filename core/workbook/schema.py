@@ -12,6 +12,10 @@ Schema history:
 2. ``fits`` (a trend fit and the data it was fitted to, kept with the study of
    one asset-year), ``assets.notes``, and ``memos.title`` (the study title the
    memo was issued for, filled from the study register for existing rows).
+3. ``memos.role`` (the sign-off role of the signature the row records: prepared,
+   reviewed, approved; '' for rows written before) and ``memos.certificate_sha256``
+   (the signer's certificate fingerprint, hex; '' when unknown), so a later
+   signature gets its own row (docs/method.md §8).
 """
 
 from __future__ import annotations
@@ -23,7 +27,7 @@ from collections.abc import Callable
 APPLICATION_ID = 0x54454E55
 
 #: The schema version this build writes.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 SCHEMA_V1 = """
 CREATE TABLE meta (
@@ -114,8 +118,13 @@ def _v1_to_v2(conn: sqlite3.Connection) -> None:
             (SELECT s.title FROM studies s WHERE s.fingerprint = memos.fingerprint LIMIT 1), '')""")
 
 
+def _v2_to_v3(conn: sqlite3.Connection) -> None:
+    conn.execute("ALTER TABLE memos ADD COLUMN role TEXT NOT NULL DEFAULT ''")
+    conn.execute("ALTER TABLE memos ADD COLUMN certificate_sha256 TEXT NOT NULL DEFAULT ''")
+
+
 #: MIGRATIONS[v] carries a workbook from schema v to v + 1.
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2}
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2, 2: _v2_to_v3}
 
 
 def migrate(conn: sqlite3.Connection, start: int) -> int:
