@@ -308,7 +308,7 @@ class VerifyMemoDialog(QDialog):
         self.error: str | None = None
         self._job: _Job | None = None
         self.setWindowTitle("Verify a memo")
-        self.setMinimumWidth(720)
+        self.setMinimumWidth(940)
         root = QVBoxLayout(self)
         form = QFormLayout()
         self.memo_edit = QLineEdit(memo_path or "")
@@ -322,13 +322,17 @@ class VerifyMemoDialog(QDialog):
         self.table = QTableWidget(0, len(COLUMNS))
         self.table.setHorizontalHeaderLabels(list(COLUMNS))
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
-        self.table.setWordWrap(True)
+        self.table.setWordWrap(False)
         self.table.verticalHeader().setVisible(False)
         head = self.table.horizontalHeader()
-        for i in range(len(COLUMNS) - 1):
+        for i in range(len(COLUMNS)):
             head.setSectionResizeMode(i, QHeaderView.ResizeMode.ResizeToContents)
-        head.setSectionResizeMode(len(COLUMNS) - 1, QHeaderView.ResizeMode.Stretch)
-        root.addWidget(self.table, 1)
+        head.setStretchLastSection(True)
+        self.table.setMinimumHeight(80)
+        root.addWidget(self.table)
+        from PySide6.QtGui import QFontDatabase
+
+        self._mono = QFontDatabase.systemFont(QFontDatabase.SystemFont.FixedFont)
         self.findings = QLabel("")
         self.findings.setWordWrap(True)
         self.findings.setTextFormat(Qt.TextFormat.PlainText)
@@ -403,17 +407,28 @@ class VerifyMemoDialog(QDialog):
                                          f"{attached}.{empty}"))
         self.table.setRowCount(len(rep.signatures))
         for r, s in enumerate(rep.signatures):
-            intact = "intact" if s.integrity_ok else "BROKEN: " + "; ".join(s.problems)
-            cells = (s.role or s.field, s.printed_name or "(none printed)", s.signer,
-                     s.name_words(), intact, s.trust_state, format_fingerprint(s.cert_sha256))
-            for c, text in enumerate(cells):
-                item = QTableWidgetItem(escape_text(text))
-                item.setToolTip(escape_text(text))
+            intact = "intact" if s.integrity_ok else "BROKEN"
+            groups = format_fingerprint(s.cert_sha256).split(" ")
+            fp = " ".join(groups[:8]) + "\n" + " ".join(groups[8:])
+            trust_short = "trusted" if s.trusted else "not vouched for"
+            cells = ((s.role or s.field, ""), (s.printed_name or "(none printed)", ""),
+                     (s.signer, ""), (s.name_words(), ""),
+                     (intact, "; ".join(s.problems)), (trust_short, s.trust_state), (fp, ""))
+            for c, (text, tip) in enumerate(cells):
+                item = QTableWidgetItem("\n".join(escape_text(x) for x in text.split("\n")))
+                item.setToolTip(escape_text(tip or text))
+                if c == len(cells) - 1:
+                    item.setFont(self._mono)
                 self.table.setItem(r, c, item)
+        self.table.resizeColumnsToContents()
         self.table.resizeRowsToContents()
+        rows_h = sum(self.table.rowHeight(r) for r in range(self.table.rowCount()))
+        self.table.setFixedHeight(min(400, self.table.horizontalHeader().height() + rows_h
+                                      + 2 * self.table.frameWidth() + 4))
+        self.adjustSize()
         notes = [f"Check: {f.message}" for f in rep.signer_findings]
         notes += [f"Problem: {p}" for p in rep.problems]
-        self.findings.setText(escape_text("\n".join(notes)))
+        self.findings.setText("\n".join(escape_text(n) for n in notes))
         verdict = rep.lines()[-1].removeprefix("result: ")
         if rep.exit_code() == 0 and rep.signer_findings:
             verdict += " (but check who signed: see above)"

@@ -169,10 +169,14 @@ def test_verify_dialog_lists_each_signature_and_the_checks(qtbot, setup, tmp_pat
     rows = [[t.item(r, c).text() for c in range(len(COLUMNS))] for r in range(2)]
     assert rows[0][:4] == ["prepared", "Priya Natarajan", "Priya Natarajan", "yes"]
     assert rows[1][:4] == ["reviewed", "Tom Ashworth", "Priya Natarajan", "NO"]
-    assert rows[1][4] == "intact" and rows[1][5].startswith("not vouched for")
-    assert rows[1][6].replace(" ", "").lower() == load_identity(
+    assert rows[1][4] == "intact" and rows[1][5] == "not vouched for"
+    assert t.item(1, 5).toolTip().startswith("not vouched for (no trusted certificate given)")
+    assert rows[1][6].replace(" ", "").replace("\n", "").lower() == load_identity(
         setup["ids"]["priya"], PASS.encode()).sha256  # shown in groups of four
-    assert "Check: Priya Natarajan signed 2 roles (prepared and reviewed)" in dlg.findings.text()
+    assert dlg.findings.text().splitlines() == [
+        "Check: the Reviewed box names Tom Ashworth, but it was signed with Priya Natarajan's "
+        "certificate", "Check: Priya Natarajan signed 2 roles (prepared and reviewed) with one "
+        "certificate"]
     assert dlg.result_label.text().startswith("FAILED: intact, but signed by an identity you "
                                               "have not trusted")
 

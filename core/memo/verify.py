@@ -189,8 +189,11 @@ class VerifyReport:
             out.append("unsigned fields: " + esc(", ".join(self.empty_fields)))
         for p in self.problems:
             out.append(f"problem: {esc(p)}")
+        seen: dict[str, SignatureReport] = {}
+        for s in self.untrusted:  # one signer in two roles is named once
+            seen.setdefault(s.cert_sha256, s)
         who = "; ".join(f"{s.signer}, fingerprint {format_fingerprint(s.cert_sha256)}"
-                        for s in self.untrusted)
+                        for s in seen.values())
         damaged = any("damaged signature" in p for p in self.problems) or any(
             "damaged signature" in p for s in self.signatures for p in s.problems)
         if damaged:
