@@ -185,3 +185,27 @@ def test_sign_refuses_a_file_that_is_not_a_workbook(ids, prepared, tmp_path, cap
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("error: --workbook:")
     assert memo.read_bytes() == prepared
+
+
+def test_memo_signed_at_issue_checks_the_printed_name_too(ids, tmp_path, capsys):
+    # `tenure memo --sign` into a box printed with another person's name
+    study = tmp_path / "study.json"
+    from core.studyfile import dump_study_document
+
+    d = Alternative("Saw S-3 (2014)", "defender", 8000.0, 3, MarketValues(decline_rate=0.3),
+                    OperatingCosts(first=5000.0, gradient=1200.0))
+    c = Alternative("Saw S-8", "challenger", 26000.0, 8, MarketValues(decline_rate=0.2),
+                    OperatingCosts(first=2000.0, gradient=250.0))
+    study.write_text(dump_study_document([Study("Ouseburn Yard saw", 0.1, d, (c,))]))
+    out = tmp_path / "m.pdf"
+    args = ["memo", str(study), "-o", str(out), "--reviewed-by", "Tom Ashworth", "--sign",
+            str(ids["priya"]), "--passphrase-file", str(ids["pw"]), "--role", "reviewed"]
+    assert main(args) == 1
+    err = capsys.readouterr().err
+    assert "the Reviewed box names Tom Ashworth, but the certificate is Priya Natarajan's" in err
+    assert not out.exists()  # nothing written
+    assert main([*args, "--confirm"]) == 0
+    capsys.readouterr()
+    rep = verify_memo(out, use_user_trust=False)
+    assert [(s.role, s.printed_name, s.name_matches) for s in rep.signatures] == [
+        ("reviewed", "Tom Ashworth", False)]

@@ -212,3 +212,38 @@ def test_window_menu_opens_sign_and_verify(qtbot, setup, tmp_path, monkeypatch):
     texts["&Sign a memo…"].trigger()
     texts["&Verify a memo…"].trigger()
     assert opened == [("sign", window.doc.path), ("verify", None)]
+
+
+def test_issue_memo_dialog_asks_before_signing_another_persons_box(qtbot, tmp_path,
+                                                                   monkeypatch):
+    from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+    from core.study import run_study
+    from desktop_app import memo_dialog
+
+    monkeypatch.setattr(memo_dialog.QDesktopServices, "openUrl", lambda url: None)
+    d = Alternative("Saw S-1", "defender", 9000.0, 3, MarketValues(decline_rate=0.3),
+                    OperatingCosts(first=6000.0, gradient=1500.0))
+    c = Alternative("Band saw B-9", "challenger", 30000.0, 8, MarketValues(decline_rate=0.2),
+                    OperatingCosts(first=2500.0, gradient=300.0))
+    ident = tmp_path / "dana.p12"
+    new_identity("Dana Whitfield", ident, PASS.encode())
+    dlg = memo_dialog.IssueMemoDialog(run_study(Study("Ouseburn Yard saw", 0.1, d, (c,))))
+    qtbot.addWidget(dlg)
+    out = tmp_path / "memo.pdf"
+    dlg.out_edit.setText(str(out))
+    dlg.names["prepared"].setText("Tom Ashworth")
+    dlg.sign_box.setChecked(True)
+    dlg.identity_edit.setText(str(ident))
+    asked = []
+    dlg.ask_confirm = lambda findings: asked.append(findings) or False
+    dlg.passphrase.setText(PASS)
+    dlg.start()
+    qtbot.waitUntil(lambda: dlg.error is not None, timeout=30000)
+    assert [f.kind for f in asked[0]] == ["name differs"]
+    assert dlg.error.startswith("Not issued:") and not out.exists()
+    dlg.ask_confirm = lambda findings: asked.append(findings) or True
+    dlg.passphrase.setText(PASS)
+    with qtbot.waitSignal(dlg.memoIssued, timeout=30000):
+        dlg.start()
+    assert dlg.issued.signed_by == "Dana Whitfield"
+    assert verify_memo(out, use_user_trust=False).signatures[0].name_matches is False

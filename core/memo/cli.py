@@ -139,8 +139,17 @@ def run_memo(args: argparse.Namespace) -> int:
                        prepared_by=args.prepared_by, reviewed_by=args.reviewed_by,
                        approved_by=args.approved_by, organisation=args.organisation,
                        asset=asset_facts(args.file, study) if workbook else None)
-    issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
-                        role=args.role)
+    from core.memo.countersign import SignerNotConfirmed
+
+    try:
+        issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
+                            role=args.role, confirmed=args.confirm)
+    except SignerNotConfirmed as e:
+        for f in e.findings:
+            print(f"warning: {escape_text(f.message)}", file=sys.stderr)
+        print(f"error: --confirm: memo not written; check who signs, then repeat with "
+              f"--confirm to sign as {args.role} anyway", file=sys.stderr)
+        return 1
     print(f"memo: {issued.path}")
     print(f"study: {escape_text(study.title)}")
     print(f"study fingerprint: {issued.fingerprint}")
@@ -295,6 +304,9 @@ def register(subparsers) -> None:
                    help="file whose first line is the identity's passphrase")
     m.add_argument("--role", choices=ROLES, default="prepared",
                    help="the sign-off field to sign with --sign (default: prepared)")
+    m.add_argument("--confirm", action="store_true",
+                   help="sign with --sign even though the identity's name differs from the "
+                        "name printed in the role's box")
     m.add_argument("--page-size", choices=("A4", "Letter"), default="A4")
     m.add_argument("--prepared-by", metavar="NAME", default=None)
     m.add_argument("--reviewed-by", metavar="NAME", default=None)
