@@ -248,6 +248,10 @@ class MainWindow(QMainWindow):
         self.memo_action = self._action("Issue &memo…", self.issue_memo,
                                         tip="Write and sign the decision memo (PDF)")
         m.addAction(self.memo_action)
+        m.addAction(self._action("&Sign a memo…", self.sign_memo,
+                                 tip="Sign an issued memo as its reviewer or approver"))
+        m.addAction(self._action("&Verify a memo…", self.verify_memo,
+                                 tip="Check a memo's signatures, who signed, and trust"))
         m.addAction(self._action("&Trust a colleague's certificate…", self.trust_certificate,
                                  tip="Accept memos signed with a colleague's certificate, after "
                                      "comparing its fingerprint"))
@@ -806,6 +810,20 @@ class MainWindow(QMainWindow):
         status = trust_certificate(self)
         if status:
             self.report(status)
+
+    def sign_memo(self) -> None:
+        from desktop_app.signoff_dialog import SignMemoDialog
+
+        workbook = self.doc.path if self.doc.kind == "workbook" else None
+        dialog = SignMemoDialog(self, workbook_path=workbook)
+        dialog.signed.connect(lambda res: self.report(
+            f"Signed as {res.role} by {res.signer}: {res.path}"))
+        dialog.exec()
+
+    def verify_memo(self) -> None:
+        from desktop_app.signoff_dialog import VerifyMemoDialog
+
+        VerifyMemoDialog(self).exec()
 
     def issue_memo(self) -> None:
         if self.current_result is None:

@@ -45,27 +45,35 @@ class MemoSignals(QObject):
     progress = Signal(int, str)
     done = Signal(object)  # IssuedMemo
     failed = Signal(str)
+    confirm = Signal(object)  # the SignerFinding tuple to confirm before signing
 
 
 class MemoJob(QRunnable):
     """Render (and sign) one memo off the GUI thread."""
 
     def __init__(self, result: Any, out: str, options: MemoOptions, identity: str | None,
-                 passphrase: bytes | None, role: str) -> None:
+                 passphrase: bytes | None, role: str, confirmed: bool = False) -> None:
         super().__init__()
         self.result, self.out, self.options = result, out, options
         self.identity, self.passphrase, self.role = identity, passphrase, role
+        self.confirmed = confirmed
         self.signals = MemoSignals()
         self.setAutoDelete(False)
 
     def run(self) -> None:
         from core.errors import StudyError
+        from core.memo.countersign import SignerNotConfirmed
         from core.memo.issue import issue_memo
 
+        asking = False
         try:
             issued = issue_memo(self.result, self.out, self.options, identity=self.identity,
                                 passphrase=self.passphrase, role=self.role,
-                                progress=lambda p, t: self.signals.progress.emit(p, t))
+                                progress=lambda p, t: self.signals.progress.emit(p, t),
+                                confirmed=self.confirmed)
+        except SignerNotConfirmed as exc:
+            asking = True  # the passphrase stays with the job until the signer answers
+            self.signals.confirm.emit(exc.findings)
         except StudyError as exc:  # MemoError included: a message the user can act on
             self.signals.failed.emit(str(exc))
         except Exception as exc:  # noqa: BLE001 - never let a worker die silently
@@ -73,7 +81,8 @@ class MemoJob(QRunnable):
         else:
             self.signals.done.emit(issued)
         finally:
-            self.passphrase = None
+            if not asking:
+                self.passphrase = None
 
 
 def _safe_name(title: str) -> str:
@@ -251,14 +260,40 @@ class IssueMemoDialog(QDialog):
         self._set_busy(True)
         self.progress.setValue(0)
         self.progress.setVisible(True)
+        self.passphrase.clear()
+        self._start_job(out, identity, passphrase, role, confirmed=False)
+
+    def _start_job(self, out: str, identity: str | None, passphrase: bytes | None, role: str,
+                   confirmed: bool) -> None:
         self.status.setText("Issuing the memo...")
-        job = MemoJob(self.result, out, self.options(), identity, passphrase, role)
+        job = MemoJob(self.result, out, self.options(), identity, passphrase, role, confirmed)
         job.signals.progress.connect(self._on_progress)
         job.signals.done.connect(self._on_done)
         job.signals.failed.connect(self._fail)
+        job.signals.confirm.connect(self._on_confirm)
         self._job = job
-        self.passphrase.clear()
         QThreadPool.globalInstance().start(job)
+
+    def ask_confirm(self, findings: tuple) -> bool:
+        """Ask the signer to confirm despite the signer checks (a dialog; tests patch it)."""
+        from PySide6.QtWidgets import QMessageBox
+
+        text = "\n\n".join(f.message for f in findings)
+        answer = QMessageBox.warning(
+            self, "Check who signs", f"{text}\n\nSign as {self.role.currentText()} anyway?",
+            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No,
+            QMessageBox.StandardButton.No)
+        return answer == QMessageBox.StandardButton.Yes
+
+    @Slot(object)
+    def _on_confirm(self, findings: tuple) -> None:
+        job = self._job
+        if job is not None and self.ask_confirm(findings):
+            self._start_job(job.out, job.identity, job.passphrase, job.role, confirmed=True)
+            return
+        if job is not None:
+            job.passphrase = None
+        self._fail("Not issued: " + "; ".join(f.message for f in findings))
 
     @Slot(int, str)
     def _on_progress(self, percent: int, text: str) -> None:

@@ -189,7 +189,8 @@ def load_years(workbook_path: str | Path, tag: str) -> list[YearRow]:
                 recomputed = True
             rec_json = result.get("recommendation") or {}
             issued = tuple(
-                f"{m.signer or 'unsigned'} {m.signed_at[:10]}".strip()
+                f"{m.signer or 'unsigned'}{f' ({m.role})' if getattr(m, 'role', '') else ''} "
+                f"{m.signed_at[:10]}".strip()
                 for m in memos
                 if m.fingerprint == rec.fingerprint or (m.tag == tag and m.year == year))
             rows.append(YearRow(

@@ -140,6 +140,7 @@ def render(out_dir: Path) -> list[Path]:
     ed.clear_errors()
     window.report("")
     shots += render_sizes(app, window, out_dir)
+    shots += render_signoff(app, window, out_dir, state)
     window.close()
     return shots
 
@@ -194,7 +195,108 @@ def render_sizes(app, window, out_dir: Path) -> list[Path]:
     return shots
 
 
+def _over_window(app, window, dialog, path: Path) -> Path:
+    """The window at its size with ``dialog`` centred over it, as the user sees it."""
+    from PySide6.QtGui import QPainter
+
+    dialog.adjustSize()
+    dialog.resize(min(dialog.width(), window.width() - 40),
+                  min(dialog.height(), window.height() - 40))
+    dialog.show()
+    _settle(app)
+    back = window.grab()
+    front = dialog.grab()
+    bar = 26  # a plain title bar: offscreen grabs have no window frame
+    x = (back.width() - front.width()) // 2
+    y = (back.height() - front.height() - bar) // 2
+    p = QPainter(back)
+    p.fillRect(back.rect(), Qt_dim())
+    p.fillRect(x - 1, y - 1, front.width() + 2, front.height() + bar + 2, Qt_dim(200))
+    p.fillRect(x, y, front.width(), bar, Qt_dim(255, "#3c4a5a"))
+    p.setPen(Qt_dim(255, "#ffffff"))
+    p.drawText(x + 10, y + 18, dialog.windowTitle())
+    p.drawPixmap(x, y + bar, front)
+    p.end()
+    dialog.hide()
+    back.save(str(path), "PNG")
+    return path
+
+
+def Qt_dim(alpha: int = 60, colour: str = "#000000"):  # noqa: N802 - a colour, named like Qt's
+    from PySide6.QtGui import QColor
+
+    c = QColor(colour)
+    c.setAlpha(alpha)
+    return c
+
+
+def render_signoff(app, window, out_dir: Path, state: Path) -> list[Path]:
+    """The Sign and Verify dialogs at each of ``SIZES``, over the window.
+
+    The memo names Tom Ashworth in the Reviewed box; the preparer also signed that box,
+    so Verify shows a name that does not match and one signer in two roles.
+    """
+    from core.memo.countersign import sign_later
+    from core.memo.identity import new_identity
+    from core.memo.issue import issue_memo
+    from core.memo.render import MemoOptions
+    from desktop_app.signoff_dialog import SignMemoDialog, VerifyMemoDialog
+
+    folder = state / "Memos"
+    folder.mkdir(exist_ok=True)
+    pw = b"screenshot-pass"
+    priya, tom = folder / "priya.p12", folder / "tom.p12"
+    new_identity("Priya Natarajan", priya, pw)
+    new_identity("Tom Ashworth", tom, pw)
+    window.select_asset(window.doc.keys()[0])
+    _settle(app, window)
+    memo = folder / "decision memo.pdf"
+    issue_memo(window.current_result, memo,
+               MemoOptions(prepared_by="Priya Natarajan", reviewed_by="Tom Ashworth",
+                           approved_by="Alan Greaves"),
+               identity=priya, passphrase=pw, role="prepared")
+    shots = []
+    signed = folder / "decision memo (reviewed).pdf"
+    signed.write_bytes(memo.read_bytes())
+    sign_later(signed, priya, pw, "reviewed", confirmed=True)
+    for width, height in SIZES:
+        window.resize(width, height)
+        _settle(app, window)
+        window.reset_layout()
+        _settle(app, window)
+        sign = SignMemoDialog(window, workbook_path=window.doc.path, memo_path=str(memo))
+        sign.identity_edit.setText(str(tom))
+        sign.passphrase.setText("screenshot")
+        shots.append(_over_window(app, window, sign, out_dir / f"sign-{width}x{height}.png"))
+        sign.deleteLater()
+        verify = VerifyMemoDialog(window, memo_path=str(signed))
+        verify.start()
+        verify.wait_for_job()
+        _settle(app)
+        shots.append(_over_window(app, window, verify, out_dir / f"verify-{width}x{height}.png"))
+        verify.deleteLater()
+    return shots
+
+
+def render_signoff_only(out_dir: Path) -> list[Path]:
+    """Only the Sign and Verify dialogs (``--signoff``)."""
+    state = _setup()
+    from core.demo import build_demo
+    from desktop_app.app import build_window, create_app
+
+    app = create_app(["tenure-screenshots"])
+    app.setStyle("Fusion")
+    window = build_window(str(build_demo(state / "Harrowgate demo fleet.tenure")))
+    window.show()
+    _settle(app, window)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    shots = render_signoff(app, window, out_dir, state)
+    window.close()
+    return shots
+
+
 if __name__ == "__main__":
-    target = Path(sys.argv[1]) if len(sys.argv) > 1 else ROOT / "resources" / "screenshots"
-    for shot in render(target):
+    args = [a for a in sys.argv[1:] if a != "--signoff"]
+    target = Path(args[0]) if args else ROOT / "resources" / "screenshots"
+    for shot in (render_signoff_only(target) if "--signoff" in sys.argv else render(target)):
         print(shot)

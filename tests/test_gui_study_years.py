@@ -57,10 +57,14 @@ def test_memo_matched_by_fingerprint(qtbot, demo, tmp_path):
         fp = wb.record(tag, years[0]).fingerprint
         wb.record_memo(None, None, fp, "R. Planner", tmp_path / "memo.pdf",
                        time="2025-03-01T10:00:00")
+        # a later signature of the same memo is its own row, shown with its role
+        wb.record_memo(None, None, fp, "T. Reviewer", tmp_path / "memo.pdf",
+                       time="2025-03-02T10:00:00", role="reviewed")
     dialog = StudyYearsDialog(copy, tag)
     qtbot.addWidget(dialog)
     memos = COLUMNS.index("Memos")
     assert "R. Planner" in dialog.table.item(0, memos).text()
+    assert "T. Reviewer (reviewed) 2025-03-02" in dialog.table.item(0, memos).text()
     assert dialog.table.item(len(years) - 1, memos).text() == "none"
 
 

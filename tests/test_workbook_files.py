@@ -82,7 +82,7 @@ def test_new_workbook_carries_version_and_application_id(book: Path) -> None:
     head = book.read_bytes()[:100]
     assert int.from_bytes(head[68:72], "big") == APPLICATION_ID
     conn = sqlite3.connect(book)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 3
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 4
     assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     conn.close()
     assert check_file(book) == SCHEMA_VERSION
@@ -114,6 +114,34 @@ def test_migration_from_v1_keeps_data_and_adds_v2(tmp_path: Path) -> None:
         assert wb.fits("P-7", 2025)[0]["params"]["gradient"] == 2.0
         assert wb.integrity_check() == "ok"
     assert sqlite3.connect(p).execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+
+
+def test_migration_from_v3_adds_the_role_and_certificate_of_each_memo_row(tmp_path: Path) -> None:
+    # schema 4 (docs/method.md §8): a later signature is its own register row with its role
+    p = tmp_path / "v3.tenure"
+    wb = Workbook.create(p, company="Harrowgate", schema=3)
+    assert wb.schema_version == 3
+    wb.add_site(Site("Millbrook"))
+    wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
+    fp = wb.save_study("P-7", 2025, study())
+    wb.record_memo("P-7", 2025, fp, "A. Signer", "memo.pdf", "2025-04-01T10:00:00+00:00")
+    assert (wb.memos()[0].role, wb.memos()[0].certificate_sha256) == ("", "")
+    wb.close()
+    before = digest(p)
+    with Workbook.open(p) as ro:  # read-only: readable as v3, file untouched
+        assert ro.schema_version == 3 and ro.memos()[0].signer == "A. Signer"
+    assert digest(p) == before
+    with Workbook.open(p, write=True) as wb:
+        assert wb.schema_version == 4
+        old = wb.memos()[0]
+        assert (old.signer, old.role, old.certificate_sha256) == ("A. Signer", "", "")
+        wb.record_memo("P-7", 2025, fp, "B. Reviewer", "memo.pdf", "2025-04-02T09:00:00+00:00",
+                       role="reviewed", certificate_sha256="ab" * 32)
+        new = wb.memos()[1]
+        assert (new.signer, new.role, new.certificate_sha256) == ("B. Reviewer", "reviewed",
+                                                                   "ab" * 32)
+        assert wb.integrity_check() == "ok"
+    assert sqlite3.connect(p).execute("PRAGMA user_version").fetchone()[0] == 4
 
 
 def test_failed_migration_leaves_v1(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

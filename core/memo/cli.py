@@ -9,7 +9,9 @@ input prints one line ``error: <where>: <what is wrong>`` and returns 2.
                 [--organisation ORG] [--currency CODE]
                 [--sign ID.p12 --passphrase-file F [--role prepared|reviewed|approved]]
     tenure sign MEMO.pdf --sign ID.p12 --passphrase-file F --role approved [-o OUT.pdf]
+                [--confirm] [--workbook WORKBOOK]
     tenure verify MEMO.pdf [--trust CERT.pem ...] [--integrity-only] [--no-user-trust] [--json]
+                [--strict]
     tenure identity new --name NAME --out ID.p12 --passphrase-file F
                 [--organisation ORG] [--email ADDRESS]
     tenure identity show ID.p12 --passphrase-file F [--cert-out CERT.pem]
@@ -126,8 +128,17 @@ def run_memo(args: argparse.Namespace) -> int:
                        prepared_by=args.prepared_by, reviewed_by=args.reviewed_by,
                        approved_by=args.approved_by, organisation=args.organisation,
                        asset=asset_facts(args.file, study) if workbook else None)
-    issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
-                        role=args.role)
+    from core.memo.countersign import SignerNotConfirmed
+
+    try:
+        issued = issue_memo(result, out, opts, identity=args.sign, passphrase=passphrase,
+                            role=args.role, confirmed=args.confirm)
+    except SignerNotConfirmed as e:
+        for f in e.findings:
+            print(f"warning: {escape_text(f.message)}", file=sys.stderr)
+        print(f"error: --confirm: memo not written; check who signs, then repeat with "
+              f"--confirm to sign as {args.role} anyway", file=sys.stderr)
+        return 1
     print(f"memo: {issued.path}")
     print(f"study: {escape_text(study.title)}")
     print(f"study fingerprint: {issued.fingerprint}")
@@ -150,19 +161,39 @@ def run_memo(args: argparse.Namespace) -> int:
 
 @_guard
 def run_sign(args: argparse.Namespace) -> int:
-    """tenure sign: add one signature to an existing memo, as an incremental update."""
-    from core.memo.sign import sign_memo_file
-    from core.memo.verify import verify_memo
+    """tenure sign: add one signature to an existing memo, as an incremental update.
+
+    The signer checks (docs/method.md §8) print one ``warning:`` line each and need
+    ``--confirm``; without it nothing is signed and the exit code is 1.
+    """
+    from core.errors import error_line
+    from core.memo.countersign import MemoNotIntact, SignerNotConfirmed, sign_later
 
     memo = Path(args.memo)
     passphrase = _passphrase(args)
-    rep = verify_memo(memo, use_user_trust=False)  # refuses non-memos (exit 2)
-    if rep.signatures and not rep.integrity_ok:
-        print(f"error: {escape_text(str(memo))}: the memo is not intact; refusing to add a signature "
-              "(run tenure verify for details)", file=sys.stderr)
+    if args.workbook and not _is_workbook(args.workbook):
+        raise MemoError("--workbook", f"{args.workbook} is not a Tenure workbook")
+    try:
+        res = sign_later(memo, args.sign, passphrase, args.role, output=args.output,
+                         confirmed=args.confirm, workbook=args.workbook)
+    except MemoNotIntact as e:
+        print(error_line(e), file=sys.stderr)
         return 1
-    res = sign_memo_file(memo, args.sign, passphrase, args.role, output=args.output)
-    print(f"signed: {res.role} by {escape_text(res.signer)} -> {escape_text(str(res.output))}")
+    except SignerNotConfirmed as e:
+        for f in e.findings:
+            print(f"warning: {escape_text(f.message)}", file=sys.stderr)
+        print(f"error: --confirm: not signed; check who signs, then repeat with --confirm "
+              f"to sign as {args.role} anyway", file=sys.stderr)
+        return 1
+    for f in res.findings:
+        print(f"warning (confirmed): {escape_text(f.message)}", file=sys.stderr)
+    print(f"signed: {res.role} by {escape_text(res.signer)} -> {escape_text(res.path)}")
+    if args.workbook:
+        if res.recorded:
+            print(f"recorded in the memo register of {escape_text(args.workbook)}")
+        else:
+            print(f"note: {escape_text(args.workbook)}: {escape_text(res.register_note or '')}",
+                  file=sys.stderr)
     return 0
 
 
@@ -173,14 +204,14 @@ def run_verify(args: argparse.Namespace) -> int:
 
     rep = verify_memo(args.memo, trust=args.trust or (), use_user_trust=not args.no_user_trust)
     if args.json:
-        json.dump(report_json(rep, args.integrity_only), sys.stdout, indent=2)
+        json.dump(report_json(rep, args.integrity_only, args.strict), sys.stdout, indent=2)
         sys.stdout.write("\n")
     else:
-        sys.stdout.write("\n".join(rep.lines(args.integrity_only)) + "\n")
-    return rep.exit_code(args.integrity_only)
+        sys.stdout.write("\n".join(rep.lines(args.integrity_only, args.strict)) + "\n")
+    return rep.exit_code(args.integrity_only, args.strict)
 
 
-def report_json(rep, integrity_only: bool = False) -> dict:
+def report_json(rep, integrity_only: bool = False, strict: bool = False) -> dict:
     """The verify report as a JSON-ready dict."""
     return {
         "memo": rep.path, "revisions": rep.revisions,
@@ -194,11 +225,14 @@ def report_json(rep, integrity_only: bool = False) -> dict:
             "intact": s.intact, "valid": s.valid, "coverage": s.coverage,
             "changes_after_signing": s.changes_after, "trusted": s.trusted,
             "trust_state": s.trust_state, "certificate_sha256": s.cert_sha256,
+            "printed_name": s.printed_name, "name_matches": s.name_matches,
             "problems": list(s.problems)} for s in rep.signatures],
+        "signer_findings": [{"kind": f.kind, "role": f.role, "message": f.message}
+                            for f in rep.signer_findings],
         "unsigned_fields": list(rep.empty_fields),
         "problems": list(rep.problems),
         "integrity_ok": rep.integrity_ok, "all_trusted": rep.all_trusted,
-        "exit_code": rep.exit_code(integrity_only),
+        "exit_code": rep.exit_code(integrity_only, strict),
     }
 
 
@@ -258,6 +292,9 @@ def register(subparsers) -> None:
                    help="file whose first line is the identity's passphrase")
     m.add_argument("--role", choices=ROLES, default="prepared",
                    help="the sign-off field to sign with --sign (default: prepared)")
+    m.add_argument("--confirm", action="store_true",
+                   help="sign with --sign even though the identity's name differs from the "
+                        "name printed in the role's box")
     m.add_argument("--page-size", choices=("A4", "Letter"), default="A4")
     m.add_argument("--prepared-by", metavar="NAME", default=None)
     m.add_argument("--reviewed-by", metavar="NAME", default=None)
@@ -272,13 +309,23 @@ def register(subparsers) -> None:
     s = subparsers.add_parser(
         "sign", help="add a signature (reviewer, approver) to an issued memo",
         description="Sign an existing memo in one role's empty field, as an incremental update "
-                    "that keeps earlier signatures valid. Writes in place unless -o is given.")
+                    "that keeps earlier signatures valid. Writes in place unless -o is given. "
+                    "Before signing, checks who signs: when the certificate's name differs from "
+                    "the name printed in the role's box, or the same certificate already signed "
+                    "another role, it prints a warning and signs only with --confirm (exit 1 "
+                    "without it). With --workbook, records the signature (role, signer, "
+                    "certificate fingerprint, time) in the workbook's memo register.")
     s.add_argument("memo", metavar="MEMO.pdf")
     s.add_argument("--sign", metavar="ID.p12", required=True, help="identity to sign with")
     s.add_argument("--passphrase-file", metavar="F", required=True)
     s.add_argument("--role", choices=ROLES, required=True)
     s.add_argument("-o", "--output", metavar="OUT.pdf", default=None,
                    help="write the signed memo here instead of in place")
+    s.add_argument("--confirm", action="store_true",
+                   help="sign even though the signer checks warn (a name that differs from the "
+                        "printed one, or one signer in two roles)")
+    s.add_argument("--workbook", metavar="WORKBOOK", default=None,
+                   help="record the signature in this workbook's memo register")
     s.set_defaults(func=run_sign)
 
     v = subparsers.add_parser(
@@ -289,7 +336,9 @@ def register(subparsers) -> None:
                     "signature is intact AND every signer is trusted (its certificate is in "
                     "your trust list, 'tenure trust', or given with --trust, or chains to one "
                     "that is; matched by SHA-256 fingerprint, never by name); 1 when a check "
-                    "fails or a signer is not trusted; 2 for a file that is not a memo.")
+                    "fails or a signer is not trusted; 2 for a file that is not a memo. Each "
+                    "signature's printed name is compared with its certificate's name, and one "
+                    "signer in two roles is noted (--strict: either makes the exit 1).")
     v.add_argument("memo", metavar="MEMO.pdf")
     v.add_argument("--trust", metavar="CERT.pem", action="append", default=[],
                    help="a certificate (PEM or DER) you trust: a colleague's or your "
@@ -302,6 +351,9 @@ def register(subparsers) -> None:
     v.add_argument("--no-user-trust", action="store_true",
                    help="ignore the trust folder in your Tenure settings folder")
     v.add_argument("--json", action="store_true", help="print the report as JSON")
+    v.add_argument("--strict", action="store_true",
+                   help="also exit 1 when a certificate's name differs from the name printed "
+                        "in its box, or one certificate signed two roles")
     v.set_defaults(func=run_verify)
 
     i = subparsers.add_parser(

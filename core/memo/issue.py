@@ -51,10 +51,14 @@ def issue_memo(
     passphrase: bytes | None = None,
     role: str = "prepared",
     progress: Callable[[int, str], None] | None = None,
+    confirmed: bool = False,
 ) -> IssuedMemo:
     """Render the memo of ``result`` into ``out``; sign it in ``role``'s field if an identity is given.
 
     ``progress(percent, text)`` is called at each step (the window's progress bar).
+    When the identity's name differs from the name printed in ``role``'s box, raises
+    :class:`core.memo.countersign.SignerNotConfirmed` unless ``confirmed``
+    (docs/method.md §8); nothing is written then.
     """
     def step(p: int, text: str) -> None:
         if progress is not None:
@@ -73,6 +77,13 @@ def issue_memo(
         cert_sha = info.sha256
         signer_name = info.common_name
         names = opts.names()
+        from core.memo.countersign import SignerNotConfirmed
+        from core.memo.signers import signer_findings
+
+        findings = signer_findings(role, info.common_name, info.sha256,
+                                   {r: n for r, n in names.items() if n}, {})
+        if findings and not confirmed:
+            raise SignerNotConfirmed(findings)
         if not names.get(role):
             opts = opts.with_signer(role, info.common_name)
     step(15, "Laying out the memo")

@@ -918,4 +918,4 @@ def render_memo_pages(result: Any, options: MemoOptions | None = None) -> tuple[
     attachment = dump_study_document([result.study]).encode("utf-8")
     return finish_pdf(pdf, attachment=attachment, fingerprint=fp,
                       fields=sink if opts.signature_fields else {},
-                      title=result.study.title), total[0]
+                      title=result.study.title, names=opts.names()), total[0]

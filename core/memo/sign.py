@@ -45,6 +45,7 @@ class SignResult:
     field: str
     signer: str
     output: str | None
+    certificate_sha256: str = ""  # hex
 
 
 def finish_pdf(
@@ -56,12 +57,15 @@ def finish_pdf(
     title: str | None = None,
     attachment_name: str = ATTACHMENT_NAME,
     description: str | None = None,
+    names: dict[str, str | None] | None = None,
 ) -> bytes:
     """Embed the study JSON, add the fingerprint keys and the empty signature fields.
 
     ``fields`` maps role -> (page index from 0, (x1, y1, x2, y2) in points).
     ``attachment_name`` and ``description`` name another attachment (the capital plan's
-    inputs, ``PLAN_ATTACHMENT_NAME``).
+    inputs, ``PLAN_ATTACHMENT_NAME``); ``names`` (role -> the name printed in its box)
+    goes into the ``/TenureSignOff`` Info key, for the signer checks of
+    :mod:`core.memo.signers`.
     Returns the new PDF bytes (an incremental update on ``pdf``).
     """
     from pyhanko.pdf_utils import generic
@@ -93,6 +97,11 @@ def finish_pdf(
     info = info_ref.get_object()
     info[generic.pdf_name(INFO_FINGERPRINT_KEY)] = generic.TextStringObject(fingerprint)
     info[generic.pdf_name(INFO_VERSION_KEY)] = generic.TextStringObject("1")
+    if names is not None:
+        from core.memo.signers import INFO_SIGNOFF_KEY, signoff_info_value
+
+        info[generic.pdf_name(INFO_SIGNOFF_KEY)] = generic.TextStringObject(
+            signoff_info_value(names))
     w.mark_update(info_ref)
     for role in ROLES:
         if role not in fields:
@@ -209,7 +218,8 @@ def sign_pdf_bytes(
         )
     except PdfError as e:
         raise MemoError("MEMO", f"cannot sign: {e}") from None
-    return out.getvalue(), SignResult(role=role, field=field, signer=name, output=None)
+    return out.getvalue(), SignResult(role=role, field=field, signer=name, output=None,
+                                      certificate_sha256=signer.signing_cert.sha256.hex())
 
 
 def sign_memo_file(
@@ -232,7 +242,7 @@ def sign_memo_file(
     new, res = sign_pdf_bytes(data, identity, passphrase, role, reason=reason)
     target = Path(output) if output else memo
     _atomic_write(target, new)
-    return SignResult(res.role, res.field, res.signer, str(target))
+    return SignResult(res.role, res.field, res.signer, str(target), res.certificate_sha256)
 
 
 def _atomic_write(target: Path, data: bytes) -> None:

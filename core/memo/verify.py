@@ -34,6 +34,7 @@ from core.memo.sign import (
     INFO_FINGERPRINT_KEY,
     PLAN_ATTACHMENT_NAME,
 )
+from core.memo.signers import SignerFinding
 from core.studyfile import fingerprint, loads_json, parse_study_document
 
 __all__ = [
@@ -70,10 +71,23 @@ class SignatureReport:
     trust_state: str  # "trusted (...)" | "not vouched for (...)"
     cert_sha256: str
     problems: tuple[str, ...] = ()
+    printed_name: str | None = None  # the name printed in the role's box, when recorded
 
     @property
     def integrity_ok(self) -> bool:
         return not self.problems
+
+    @property
+    def name_matches(self) -> bool | None:
+        """Certificate name against the printed name; None when no name was printed."""
+        from core.memo.signers import names_match
+
+        return None if not self.printed_name else names_match(self.printed_name, self.signer)
+
+    def name_words(self) -> str:
+        """'yes' | 'NO' | 'nothing printed to compare' (verify's report and the window)."""
+        m = self.name_matches
+        return "nothing printed to compare" if m is None else ("yes" if m else "NO")
 
 
 @dataclass(frozen=True)
@@ -110,15 +124,42 @@ class VerifyReport:
     def untrusted(self) -> tuple[SignatureReport, ...]:
         return tuple(s for s in self.signatures if not s.trusted)
 
-    def exit_code(self, integrity_only: bool = False) -> int:
-        """0 only when every signature is intact and (unless ``integrity_only``) trusted."""
+    @property
+    def signer_findings(self) -> tuple[SignerFinding, ...]:
+        """:class:`core.memo.signers.SignerFinding` s: printed names that differ from the
+        certificate's, and one certificate (SHA-256) signing two roles."""
+        from core.memo.signers import NAME_DIFFERS, SAME_SIGNER
+
+        out: list[SignerFinding] = []
+        for s in self.signatures:
+            if s.name_matches is False:
+                out.append(SignerFinding(NAME_DIFFERS, s.role or s.field,
+                                         f"the {s.field} box names {s.printed_name}, but it was "
+                                         f"signed with {s.signer}'s certificate"))
+        by_cert: dict[str, list[SignatureReport]] = {}
+        for s in self.signatures:
+            if s.cert_sha256:
+                by_cert.setdefault(s.cert_sha256.lower(), []).append(s)
+        for group in by_cert.values():
+            if len(group) > 1:
+                roles = " and ".join(s.role or s.field for s in group)
+                out.append(SignerFinding(SAME_SIGNER, group[-1].role or group[-1].field,
+                                         f"{group[0].signer} signed {len(group)} roles ({roles}) "
+                                         "with one certificate"))
+        return tuple(out)
+
+    def exit_code(self, integrity_only: bool = False, strict: bool = False) -> int:
+        """0 only when every signature is intact and (unless ``integrity_only``) trusted;
+        with ``strict``, also only when no signer finding stands (docs/method.md §8)."""
         if not self.integrity_ok:
             return 1
         if not integrity_only and not self.all_trusted:
             return 1
+        if strict and self.signer_findings:
+            return 1
         return 0
 
-    def lines(self, integrity_only: bool = False) -> list[str]:
+    def lines(self, integrity_only: bool = False, strict: bool = False) -> list[str]:
         """The text report; every name from the file is escaped (docs/method.md §8)."""
         from core.errors import escape_text as esc
         from core.memo.trust import format_fingerprint
@@ -139,6 +180,8 @@ class VerifyReport:
             org = f", {s.organisation}" if s.organisation else ""
             out.append(f"signature {n}: field {esc(s.field)} ({s.role or 'other'})")
             out.append(f"  signer: {esc(s.signer + org)}")
+            out.append(f"  printed name: {esc(s.printed_name or '(none)')}; certificate name: "
+                       f"{esc(s.signer)}; match: {s.name_words()}")
             out.append(f"  signing time: {when} (signer's clock)")
             out.append(f"  integrity: {'intact' if s.intact and s.valid else 'BROKEN'}"
                        f" (digest {'ok' if s.intact else 'mismatch'}, signature {'ok' if s.valid else 'invalid'})")
@@ -152,8 +195,11 @@ class VerifyReport:
             out.append("unsigned fields: " + esc(", ".join(self.empty_fields)))
         for p in self.problems:
             out.append(f"problem: {esc(p)}")
+        seen: dict[str, SignatureReport] = {}
+        for s in self.untrusted:  # one signer in two roles is named once
+            seen.setdefault(s.cert_sha256, s)
         who = "; ".join(f"{s.signer}, fingerprint {format_fingerprint(s.cert_sha256)}"
-                        for s in self.untrusted)
+                        for s in seen.values())
         damaged = any("damaged signature" in p for p in self.problems) or any(
             "damaged signature" in p for s in self.signatures for p in s.problems)
         if damaged:
@@ -175,6 +221,12 @@ class VerifyReport:
                       "'tenure trust add CERT.pem', or --trust CERT.pem")
             verdict = (f"FAILED: intact, but signed by an identity you have not trusted: {who} "
                        f"({advice})")
+        findings = self.signer_findings
+        for f in findings:
+            out.append(f"signer check: {esc(f.message)}")
+        if strict and findings and verdict.startswith("OK"):
+            verdict = (f"FAILED (strict): intact, but {len(findings)} signer check"
+                       f"{'s' if len(findings) > 1 else ''} stand (see above)")
         out.append(f"result: {esc(verdict)}")
         return out
 
@@ -370,6 +422,9 @@ def verify_memo_bytes(
         raise NotAMemoError(path, f"unreadable PDF ({type(e).__name__})") from None
     if footer_fp is None:
         raise NotAMemoError(path, "not a Tenure memo (no study fingerprint in its metadata)")
+    from core.memo.signers import printed_names
+
+    printed = printed_names(pdf) or {}
     footer_fp = str(footer_fp)
     problems: list[str] = []
     att = None
@@ -470,6 +525,7 @@ def verify_memo_bytes(
             signing_time=st.signer_reported_dt, intact=bool(st.intact), valid=bool(st.valid),
             coverage=coverage, changes_after=changes, trusted=trusted,
             trust_state=trust_state, cert_sha256=cert.sha256.hex(), problems=tuple(sp),
+            printed_name=printed.get(_ROLE_OF_FIELD.get(fname, "")),
         ))
     return VerifyReport(
         path=path, revisions=revisions, footer_fingerprint=footer_fp,

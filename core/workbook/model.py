@@ -139,6 +139,8 @@ class MemoRecord:
     signed_at: str
     file_name: str
     title: str = ""
+    role: str = ""  # sign-off role of this row's signature (schema 3; '' before)
+    certificate_sha256: str = ""  # the signer's certificate fingerprint, hex (schema 3)
 
 
 def _name(text: str, what: str) -> str:
@@ -927,8 +929,11 @@ class Workbook:
     # ------------------------------------------------------------------ memos
     def record_memo(self, tag: str | None, year: int | None, fingerprint: str, signer: str,
                     path: str | Path, time: str | _dt.datetime | None = None,
-                    title: str = "") -> int:
-        """Add an issued memo to the register; returns its id."""
+                    title: str = "", role: str = "", certificate_sha256: str = "") -> int:
+        """Add an issued memo, or a later signature of one (its role), to the register.
+
+        Returns the row's id. ``role`` and ``certificate_sha256`` need schema 3.
+        """
         when = (time.isoformat(timespec="seconds") if isinstance(time, _dt.datetime)
                 else (time or _now()))
         if not title and tag is not None:
@@ -936,7 +941,13 @@ class Workbook:
                            (fingerprint,))
             title = rows[0][0] if rows else ""
         with self.transaction() as c:
-            if self.schema_version >= 2:
+            if self.schema_version >= 4:
+                cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
+                                "file_name, title, role, certificate_sha256) "
+                                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                                (tag, year, fingerprint, signer or "", when,
+                                 os.fspath(path), title, role or "", certificate_sha256 or ""))
+            elif self.schema_version >= 2:
                 cur = c.execute("INSERT INTO memos (tag, year, fingerprint, signer, signed_at, "
                                 "file_name, title) VALUES (?, ?, ?, ?, ?, ?, ?)",
                                 (tag, year, fingerprint, signer or "", when,
@@ -950,6 +961,7 @@ class Workbook:
     def memos(self, tag: str | None = None) -> list[MemoRecord]:
         cols = "id, tag, year, fingerprint, signer, signed_at, file_name"
         cols += ", title" if self.schema_version >= 2 else ""
+        cols += ", role, certificate_sha256" if self.schema_version >= 4 else ""
         sql = f"SELECT {cols} FROM memos"
         rows = (self._q(sql + " WHERE tag = ? ORDER BY id", (tag,)) if tag is not None
                 else self._q(sql + " ORDER BY id"))
@@ -1075,7 +1087,8 @@ def _writer(path: str | Path) -> Iterator[Workbook]:
 
 def record_memo(workbook_path: str | Path, memo_path: str | Path, fingerprint: str,
                 signer: str | None = None, title: str | None = None, tag: str | None = None,
-                year: int | None = None, time: str | _dt.datetime | None = None) -> int:
+                year: int | None = None, time: str | _dt.datetime | None = None,
+                role: str | None = None, certificate_sha256: str | None = None) -> int:
     """Record an issued memo in the workbook at ``workbook_path`` (hook for the memo dialog).
 
     The asset and year are found from the study fingerprint when not given.
@@ -1087,7 +1100,7 @@ def record_memo(workbook_path: str | Path, memo_path: str | Path, fingerprint: s
             if found is not None:
                 tag, year = found
         return wb.record_memo(tag, year, fingerprint, signer or "", os.fspath(memo_path), time,
-                              title or "")
+                              title or "", role or "", certificate_sha256 or "")
 
 
 __all__ = ["Asset", "Candidate", "HistoryRow", "MemoRecord", "Site", "StudyRecord", "Workbook",

@@ -16,6 +16,10 @@ Schema history:
    object whose basis defaults to the original cost), ``assets.retired_on`` and
    ``assets.retired_reason`` (a retired asset keeps everything, read only), and the
    meta keys ``currency`` and ``first_year`` (filled for existing workbooks).
+4. ``memos.role`` (the sign-off role of the signature the row records: prepared,
+   reviewed, approved; '' for rows written before) and ``memos.certificate_sha256``
+   (the signer's certificate fingerprint, hex; '' when unknown), so a later
+   signature gets its own row (docs/method.md §8).
 """
 
 from __future__ import annotations
@@ -27,7 +31,7 @@ from collections.abc import Callable
 APPLICATION_ID = 0x54454E55
 
 #: The schema version this build writes.
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 SCHEMA_V1 = """
 CREATE TABLE meta (
@@ -129,8 +133,14 @@ def _v2_to_v3(conn: sqlite3.Connection) -> None:
                  "CAST(strftime('%Y', 'now') AS INTEGER)) AS TEXT)")
 
 
+def _v3_to_v4(conn: sqlite3.Connection) -> None:
+    conn.execute("ALTER TABLE memos ADD COLUMN role TEXT NOT NULL DEFAULT ''")
+    conn.execute("ALTER TABLE memos ADD COLUMN certificate_sha256 TEXT NOT NULL DEFAULT ''")
+
+
 #: MIGRATIONS[v] carries a workbook from schema v to v + 1.
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2, 2: _v2_to_v3}
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _v1_to_v2, 2: _v2_to_v3,
+                                                               3: _v3_to_v4}
 
 
 def migrate(conn: sqlite3.Connection, start: int) -> int:
