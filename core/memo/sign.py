@@ -19,7 +19,9 @@ from pathlib import Path
 
 from core.memo.errors import MemoError, NotAMemoError
 from core.memo.identity import load_pkcs12_bytes
+from core.memo.names import stamp_text
 from core.memo.roles import FIELD_NAMES, ROLES
+from core.memo.signers import INFO_SIGNOFF_KEY, signoff_info_value
 
 __all__ = [
     "ROLES",
@@ -98,7 +100,6 @@ def finish_pdf(
     info[generic.pdf_name(INFO_FINGERPRINT_KEY)] = generic.TextStringObject(fingerprint)
     info[generic.pdf_name(INFO_VERSION_KEY)] = generic.TextStringObject("1")
     if names is not None:
-        from core.memo.signers import INFO_SIGNOFF_KEY, signoff_info_value
 
         info[generic.pdf_name(INFO_SIGNOFF_KEY)] = generic.TextStringObject(
             signoff_info_value(names))
@@ -128,27 +129,6 @@ def signature_fields(pdf: bytes) -> dict[str, bool]:
 
     r = PdfFileReader(io.BytesIO(pdf), strict=False)
     return {name: value is not None for name, value, _ in enumerate_sig_fields(r)}
-
-
-_FOLD = str.maketrans({"Ł": "L", "ł": "l", "Ø": "O", "ø": "o", "Đ": "D", "đ": "d", "ß": "ss",
-                       "Æ": "AE", "æ": "ae", "Œ": "OE", "œ": "oe", "Þ": "Th", "þ": "th",
-                       "ı": "i", "Ħ": "H", "ħ": "h"})
-
-
-def stamp_text(text: str) -> str:
-    """ASCII form of a name for the signature appearance (its built-in font is ASCII-only).
-
-    The full name stays in the certificate, the sign-off block and ``verify``'s report.
-
-    >>> stamp_text("Łukasz Żak"), stamp_text("Zoë Brontë")
-    ('Lukasz Zak', 'Zoe Bronte')
-    """
-    import unicodedata
-
-    folded = unicodedata.normalize("NFKD", text.translate(_FOLD))
-    out = "".join(ch for ch in folded if not unicodedata.combining(ch))
-    out = out.encode("ascii", "replace").decode("ascii")
-    return out.replace("%", "%%")
 
 
 def _signer_name(cert) -> str:

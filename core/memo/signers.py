@@ -30,6 +30,8 @@ import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass
 
+from core.memo.names import stamp_text
+
 __all__ = [
     "INFO_SIGNOFF_KEY",
     "SignerFinding",
@@ -56,8 +58,6 @@ class SignerFinding:
 
 
 def _fold(name: str) -> str:
-    from core.memo.sign import stamp_text
-
     return " ".join(stamp_text(unicodedata.normalize("NFKC", name)).casefold().split())
 
 
