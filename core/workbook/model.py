@@ -278,7 +278,7 @@ class Workbook:
     ...     wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
     >>> with Workbook.open(p) as wb:
     ...     [a.tag for a in wb.assets(site="Millbrook")], wb.schema_version
-    (['P-7'], 3)
+    (['P-7'], 4)
     """
 
     def __init__(self, path: Path, conn: sqlite3.Connection, write: bool,
