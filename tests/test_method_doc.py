@@ -217,3 +217,110 @@ def test_section_6_json_keys_are_the_ones_the_result_writes() -> None:
     section = _sections()[6]
     for key in list(out) + list(out["alternatives"][0]) + list(out["recommendation"]):
         assert f'"{key}"' in section, key
+
+
+def _subcommands() -> list[str]:
+    """The subcommands ``tenure --help`` lists (its COMMAND block), in order."""
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-m", "core.cli", "--help"], cwd=ROOT,
+                         capture_output=True, text=True, check=True).stdout
+    block = out.split("positional arguments:", 1)[1].split("options:", 1)[0]
+    return [m.group(1) for m in re.finditer(r"^ {4}([a-z][a-z-]*)(?:\s|$)", block, flags=re.M)]
+
+
+def test_section_6_lists_every_subcommand_the_cli_shows() -> None:
+    # Source: the CLI's own --help (argparse), against the §6 command table.
+    commands = _subcommands()
+    assert {"study", "plan", "trust", "verify", "new", "list", "restudy"} <= set(commands)
+    section = _sections()[6]
+    missing = [c for c in commands if f"`tenure {c}" not in section]
+    assert not missing, f"§6 does not list: {missing}"
+    assert "--integrity-only" in section and "--require-trust" not in section
+
+
+def test_no_planned_markers_remain() -> None:
+    # Source: docs/method.md's own rule (every section describes what the code does today).
+    text = _text()
+    found = re.findall(r"\*\*Planned[:(]|\*\*Planned \(|Status: planned|\bplanned \(issue|\(issue \d+", text)
+    assert not found, found
+
+
+def test_section_5_bounds_are_the_reader_constants() -> None:
+    # Source: core/studyfile.py (the constants the reader checks), against the §5 table.
+    from core import studyfile
+
+    section = _sections()[5]
+    rows = {m.group(1): m.group(2) for m in
+            re.finditer(r"^\| `(MAX_[A-Z]+)` \| ([^|]+) \|", section, flags=re.M)}
+    assert set(rows) == {"MAX_AMOUNT", "MAX_RATE", "MAX_GROWTH", "MAX_SEED", "MAX_DIGITS",
+                         "MAX_HORIZON"}
+    assert float(rows["MAX_AMOUNT"].split()[0]) == studyfile.MAX_AMOUNT
+    assert float(rows["MAX_RATE"].split()[0]) == studyfile.MAX_RATE
+    assert float(rows["MAX_GROWTH"].split()[0]) == studyfile.MAX_GROWTH
+    assert int(rows["MAX_DIGITS"]) == studyfile.MAX_DIGITS
+    assert int(rows["MAX_HORIZON"]) == studyfile.MAX_HORIZON
+    assert rows["MAX_SEED"].strip() == "2^64 - 1" and studyfile.MAX_SEED == 2**64 - 1
+    # a duplicated key is refused with its path, as §5 says
+    import pytest
+
+    from core.errors import StudyError
+    with pytest.raises(StudyError) as err:
+        studyfile.loads_json('{"a": 1, "a": 2}')
+    assert str(err.value).startswith("$.a: given twice in one object")
+
+
+def test_section_10_solver_settings_are_the_code_ones() -> None:
+    # Source: core/plan/solve.py (TIME_LIMIT, REL_GAP), against the §10 text.
+    from core.plan.solve import REL_GAP, TIME_LIMIT
+
+    section = _sections()[10]
+    assert f"`TIME_LIMIT` = {TIME_LIMIT:g} s" in section
+    printed = re.search(r"`REL_GAP` = ([0-9.e-]+)", section)
+    assert printed is not None and float(printed.group(1)) == REL_GAP
+    assert "scipy.optimize.milp" in section
+
+
+def test_section_14_names_modules_that_exist() -> None:
+    # Source: the repository tree (every module the layer diagram names is there).
+    section = _sections()[14]
+    diagram = "\n".join(line for line in section.splitlines() if line.startswith("    "))
+    named: list[str] = []
+    for line in diagram.splitlines():
+        for m in re.finditer(r"\b(core/[a-z_/]+(?:\.py)?|[a-z_]+\.py)\b", line):
+            named.append(m.group(1))
+    base = "core"
+    paths = []
+    for name in named:
+        if name.startswith("core/"):
+            base = str(Path(name).parent) if name.endswith(".py") else "core"
+            paths.append(ROOT / name)
+        else:
+            paths.append(ROOT / base / name)
+    missing = [str(p.relative_to(ROOT)) for p in paths if not p.exists()]
+    assert not missing, missing
+    for kernel in ("factors", "cashflows", "annual_worth", "depreciation", "aftertax",
+                   "inflation"):
+        assert f"{kernel}.py" in diagram, kernel
+    for module in ("decision.py", "batch.py", "study.py", "core/risk", "core/plan",
+                   "core/technology", "jsonout.py", "text.py", "report.py", "export.py",
+                   "core/memo", "cli.py", "desktop_app"):
+        assert module in diagram, module
+
+
+def test_section_6_technology_plan_keys_are_the_ones_written() -> None:
+    # Source: docs/method.md §6 (technology_plan keys), checked on a small study.
+    study = loads_study_document(json.dumps({
+        "format": "tenure-study", "version": 1, "title": "t", "marr": 0.1,
+        "technology": {"horizon": 4, "first_cost_change": -0.05},
+        "defender": {"name": "D", "market_value": 1000, "max_life": 4,
+                     "market_values": {"decline_rate": 0.2},
+                     "operating_costs": {"first": 500, "gradient": 100}},
+        "challengers": [{"name": "C", "first_cost": 3000, "max_life": 5,
+                         "market_values": {"decline_rate": 0.2},
+                         "operating_costs": {"first": 100}}]}))[0]
+    plan = study_json(run_study(study))["technology_plan"]
+    section = _sections()[6]
+    for key in list(plan) + list(plan["policy"][0]):
+        assert f"`{key}`" in section, key
