@@ -106,7 +106,7 @@ def _one_more_year(c: Mapping[str, Any]) -> OneMoreYear:
 def basis_views(result: StudyResult | Mapping[str, Any]) -> tuple[BasisView, ...]:
     """The results of each basis the study has, the decision basis first.
 
-    ``result`` is a :class:`core.results.StudyResult` or its ``to_json()`` dict (the
+    ``result`` is a :class:`core.results.StudyResult` or its ``core.jsonout.study_json`` dict (the
     ``--json`` object; it does not keep the before-tax study-period options, so those
     come out empty). A study without tax has one view, before tax; with tax, two: after
     tax (the decision) then before tax.

@@ -1,6 +1,6 @@
 """Export study results and their tables to CSV and XLSX, safe against formula injection.
 
-Everything comes from the study results (a result object or its ``to_json()`` dict),
+Everything comes from the study results (a result object or its ``core.jsonout.study_json`` dict),
 read by basis through :func:`core.bases.basis_views`; nothing is recomputed. Every row
 names its basis (``before-tax`` or ``after-tax``). Tables:
 

@@ -22,7 +22,7 @@ at the after-tax MARR), computed for the whole batch by
 ``core.aftertax.after_tax_annual_worth``, as the engine's after-tax study does;
 otherwise on before-tax AW.  ``Model.basis`` says which.
 
-The decision is that of ``core.study.decide``: without a study period, replace
+The decision is that of ``core.decision`` (the rules every basis uses): without a study period, replace
 when the best challenger's AW at its ESL beats the defender's AW at its ESL by
 more than a cent (challengers ranked on AW at ESL, ties to the first listed).
 With a study period T, every "keep the defender j years, then challenger c for
@@ -127,7 +127,7 @@ class _AfterTax:
 
     Flows in then-current money discounted at the after-tax (market) rate, AW for
     the decision in constant money at the after-tax MARR, exactly as
-    ``core.aftertax.analyse``.  A challenger whose depreciation has no explicit
+    the after-tax basis of ``core.study.run_studies``.  A challenger whose depreciation has no explicit
     basis is depreciated on its (sampled) first cost.  A ``marr`` input moves the
     after-tax MARR in proportion (after-tax MARR x sampled MARR / MARR; by the same
     difference when MARR is 0), since the study states both.
