@@ -284,6 +284,22 @@ class _Plot(pg.PlotWidget):
         self._font = QFont()
         self._font.setPointSize(9)
 
+    def label_room(self) -> float:
+        """Headroom for the ESL labels beyond the curves, as a fraction of the data span:
+        12 % on a tall plot, more on a short one so that a label under the lowest point
+        (and any labels stacked under it) stays inside the plot."""
+        # label() anchors: (0.5, -0.35 - 1.1 s) under a point, (0.5, 1.35 + 1.1 s) over it
+        stacks = [(-t.anchor.y() - 0.35 if t.anchor.y() < 0 else t.anchor.y() - 1.35) / 1.1
+                  for t in self.labels if t.isVisible()]
+        rows = 1 + max([0.0, *stacks])
+        height = self.getPlotItem().vb.height()
+        line = max([QFontMetrics(self._font).height() + 6.0,
+                    *(t.boundingRect().height() for t in self.labels)])
+        need = line * (0.35 + 1.1 * rows) + 4
+        if height <= 2 * need:
+            return 0.5 if height > 0 else 0.12
+        return max(0.12, need / (height - need))
+
     def label(self, index: int, text: str, x: float, y: float, color: str,
               anchor: tuple[float, float]) -> pg.TextItem:
         """The index-th reusable text label, placed and shown."""
@@ -475,6 +491,9 @@ class ChartPanel(QWidget):
             plot = _Plot(self)
             plot.scene().sigMouseMoved.connect(
                 lambda pos, k=key: self._mouse_moved(k, pos))
+            if key in ("aw", "parts"):
+                plot.getPlotItem().vb.sigResized.connect(
+                    lambda _vb, k=key: self._view_resized(k))
             self.plots[key] = plot
             self.stack.addWidget(plot)
         self._build_items()
@@ -845,19 +864,8 @@ class ChartPanel(QWidget):
         plot.show_axes()
         values = [y for _x, y in self._series[key].values()]
         item = plot.getPlotItem()
-        y_range = x_range = None
-        if key in ("aw", "parts"):
-            # Room for the ESL labels: below the curves for EAC, above them for signed AW.
-            finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
-            finite = finite[np.isfinite(finite)]
-            if finite.size:
-                lo, hi = float(finite.min()), float(finite.max())
-                span = (hi - lo) or max(abs(hi), 1.0)
-                if self.signed():
-                    hi += 0.12 * span
-                else:
-                    lo -= 0.12 * span
-                y_range = (lo, hi)
+        x_range = None
+        y_range = self._labelled_range(key)
         if key == "marginal" and "Defender marginal cost" in self._series[key]:
             n = len(self._series[key]["Defender marginal cost"][0])
             x_range = (0.4, n + 0.6)
@@ -872,6 +880,27 @@ class ChartPanel(QWidget):
         if x_range is not None:
             item.setXRange(*x_range, padding=0.0)
         plot.fit_left_axis(*values)
+
+    def _labelled_range(self, key: str) -> tuple[float, float] | None:
+        """The y range of the "aw" and "parts" views with room for the ESL labels: below
+        the curves for EAC, above them for signed AW (None for the other views)."""
+        if key not in ("aw", "parts") or not self._series.get(key):
+            return None
+        values = [y for _x, y in self._series[key].values()]
+        finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
+        finite = finite[np.isfinite(finite)]
+        if not finite.size:
+            return None
+        lo, hi = float(finite.min()), float(finite.max())
+        span = (hi - lo) or max(abs(hi), 1.0)
+        room = span * self.plots[key].label_room()
+        return (lo, hi + room) if self.signed() else (lo - room, hi)
+
+    def _view_resized(self, key: str) -> None:
+        # The labels keep their size in pixels: a shorter plot needs more room in data units.
+        y_range = self._labelled_range(key)
+        if y_range is not None:
+            self.plots[key].getPlotItem().setYRange(*y_range, padding=0.04)
 
     # Views ------------------------------------------------------------------
     def _draw_aw(self) -> None:

@@ -285,3 +285,26 @@ def test_marginal_view_after_tax_falls_back_to_before_tax_on_both_sides(chart):
     level = taxed.before_tax.one_more_year.challenger_annual_cost
     np.testing.assert_allclose(s["Best challenger"][1], [level, level])
     assert level != pytest.approx(taxed.after_tax.one_more_year.challenger_annual_cost)
+
+
+@pytest.mark.parametrize("signed", [False, True])
+@pytest.mark.parametrize("height", [330, 600])
+def test_esl_labels_stay_inside_a_short_plot(qtbot, result, signed, height):
+    # At 1366x768 the chart gets about 550x330 pixels: a label under the lowest point
+    # (or over the highest, signed) once fell below the axis and was cut off.
+    w = ChartPanel()
+    qtbot.addWidget(w)
+    w.resize(550, height)
+    w.show()
+    QApplication.processEvents()
+    w.set_signed(signed)
+    w.set_result(result)
+    QApplication.processEvents()
+    plot = w.plot_widget()
+    box = plot.getPlotItem().vb.sceneBoundingRect()
+    shown = [t for t in plot.labels if t.isVisible()]
+    assert len(shown) == len(result.alternatives)
+    for t in shown:
+        r = t.sceneBoundingRect()
+        assert box.top() - 1 <= r.top() and r.bottom() <= box.bottom() + 1, (t.toPlainText(),
+                                                                            r, box)
