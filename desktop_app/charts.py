@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import ctypes
 import sys
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from html import escape
@@ -196,8 +196,9 @@ class YearAxis(_FastGridAxis):
 class _Legend:
     """A pyqtgraph legend that is rebuilt only when its entries change (rebuilding is slow)."""
 
-    def __init__(self, legend: pg.LegendItem) -> None:
+    def __init__(self, legend: pg.LegendItem, width: Callable[[], float] | None = None) -> None:
         self.item = legend
+        self._width = width
         self._shown: list[tuple[int, str]] = []
         self._pending: list[tuple[Any, str]] = []
 
@@ -212,7 +213,17 @@ class _Legend:
         if wanted != self._shown:
             self.item.clear()
             longest = max((len(label) for _item, label in self._pending), default=0)
-            self.item.setColumnCount(3 if longest <= 20 else 2 if longest <= 32 else 1)
+            columns = 3 if longest <= 20 else 2 if longest <= 32 else 1
+            if self._width is not None:
+                # the legend's row is as wide as its widest row: never wider than the plot
+                font = QFont()
+                font.setPointSizeF(9.0)
+                metrics = QFontMetrics(font)
+                entry = max((metrics.horizontalAdvance(label) for _i, label in self._pending),
+                            default=0) + 60
+                while columns > 1 and columns * entry > self._width():
+                    columns -= 1
+            self.item.setColumnCount(columns)
             for item, label in self._pending:
                 self.item.addItem(item, escape(label))
             self._shown = wanted
@@ -264,7 +275,7 @@ class _Plot(pg.PlotWidget):
                                colCount=3, horSpacing=24, verSpacing=-4)
         item.layout.addItem(legend, 4, 1)
         item.layout.setAlignment(legend, Qt.AlignmentFlag.AlignHCenter)
-        self.legend = _Legend(legend)
+        self.legend = _Legend(legend, self.column_width)
         self._texts: dict[str, str] = {}
         self._shown_labels: dict[str, str] = {}
         self.targets: list[_Target] = []
@@ -283,6 +294,22 @@ class _Plot(pg.PlotWidget):
         self.message.hide()
         self._font = QFont()
         self._font.setPointSize(9)
+
+    def label_room(self) -> float:
+        """Headroom for the ESL labels beyond the curves, as a fraction of the data span:
+        12 % on a tall plot, more on a short one so that a label under the lowest point
+        (and any labels stacked under it) stays inside the plot."""
+        # label() anchors: (0.5, -0.35 - 1.1 s) under a point, (0.5, 1.35 + 1.1 s) over it
+        stacks = [(-t.anchor.y() - 0.35 if t.anchor.y() < 0 else t.anchor.y() - 1.35) / 1.1
+                  for t in self.labels if t.isVisible()]
+        rows = 1 + max([0.0, *stacks])
+        height = self.getPlotItem().vb.height()
+        line = max([QFontMetrics(self._font).height() + 6.0,
+                    *(t.boundingRect().height() for t in self.labels)])
+        need = line * (0.35 + 1.1 * rows) + 4
+        if height <= 2 * need:
+            return 0.5 if height > 0 else 0.12
+        return max(0.12, need / (height - need))
 
     def label(self, index: int, text: str, x: float, y: float, color: str,
               anchor: tuple[float, float]) -> pg.TextItem:
@@ -306,6 +333,33 @@ class _Plot(pg.PlotWidget):
         if self._texts.get("title") != html:
             self._texts["title"] = html
             self.getPlotItem().setTitle(html, color="k", size="11pt")
+        self._fit_title()
+
+    def column_width(self) -> float:
+        """The width of the plot's middle column (title, plot area, legend): the widget's
+        less the value axis and the margins."""
+        left = self.getPlotItem().getAxis("left")
+        # the width fit_left_axis fixed, before Qt lays the axis out
+        axis = (getattr(left, "fixedWidth", None) or left.width()) if left.isVisible() else 0.0
+        return float(self.width()) - float(axis) - 16.0
+
+    def _fit_title(self) -> None:
+        """Wrap the title to the plot's width: pyqtgraph makes a one-line title the plot's
+        minimum width, and a long one ("One more year? Marginal cost of ...") pushed the
+        plot past the right edge of its pane on a laptop screen."""
+        plot_item = self.getPlotItem()
+        label = plot_item.titleLabel
+        item = label.item
+        item.setTextWidth(-1)
+        room = max(self.column_width() - 8.0, 120.0)
+        height = 30.0                      # pyqtgraph's fixed title row
+        if item.boundingRect().width() > room:
+            item.setTextWidth(room)
+            height = max(height, item.boundingRect().height())
+        label.setMaximumHeight(height)
+        plot_item.layout.setRowFixedHeight(0, height)
+        label.updateMin()
+        label.resizeEvent(None)
 
     def set_axis_label(self, axis: str, text: str) -> None:
         if self._texts.get(axis) != text:
@@ -342,6 +396,8 @@ class _Plot(pg.PlotWidget):
         if "_shown_labels" in self.__dict__:  # pyqtgraph calls this from its __init__ too
             for axis in ("left", "bottom"):
                 self._fit_axis_label(axis)
+            if "title" in self._texts:
+                self._fit_title()
 
     def fit_left_axis(self, *arrays: np.ndarray) -> None:
         """Fix the value axis width to its widest tick label (Qt lays it out late otherwise)."""
@@ -352,6 +408,8 @@ class _Plot(pg.PlotWidget):
         text_width = metrics.horizontalAdvance(money(-top * 1.25))
         if axis.fixedWidth != text_width + 36:  # setWidth throws the axis picture away
             axis.setWidth(text_width + 36)
+            if "title" in self._texts:
+                self._fit_title()          # the title's column is narrower (or wider) now
 
     def show_axes(self) -> None:
         """Show both axes (showing a shown axis would make pyqtgraph redraw its picture)."""
@@ -475,6 +533,9 @@ class ChartPanel(QWidget):
             plot = _Plot(self)
             plot.scene().sigMouseMoved.connect(
                 lambda pos, k=key: self._mouse_moved(k, pos))
+            if key in ("aw", "parts"):
+                plot.getPlotItem().vb.sigResized.connect(
+                    lambda _vb, k=key: self._view_resized(k))
             self.plots[key] = plot
             self.stack.addWidget(plot)
         self._build_items()
@@ -845,19 +906,8 @@ class ChartPanel(QWidget):
         plot.show_axes()
         values = [y for _x, y in self._series[key].values()]
         item = plot.getPlotItem()
-        y_range = x_range = None
-        if key in ("aw", "parts"):
-            # Room for the ESL labels: below the curves for EAC, above them for signed AW.
-            finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
-            finite = finite[np.isfinite(finite)]
-            if finite.size:
-                lo, hi = float(finite.min()), float(finite.max())
-                span = (hi - lo) or max(abs(hi), 1.0)
-                if self.signed():
-                    hi += 0.12 * span
-                else:
-                    lo -= 0.12 * span
-                y_range = (lo, hi)
+        x_range = None
+        y_range = self._labelled_range(key)
         if key == "marginal" and "Defender marginal cost" in self._series[key]:
             n = len(self._series[key]["Defender marginal cost"][0])
             x_range = (0.4, n + 0.6)
@@ -872,6 +922,27 @@ class ChartPanel(QWidget):
         if x_range is not None:
             item.setXRange(*x_range, padding=0.0)
         plot.fit_left_axis(*values)
+
+    def _labelled_range(self, key: str) -> tuple[float, float] | None:
+        """The y range of the "aw" and "parts" views with room for the ESL labels: below
+        the curves for EAC, above them for signed AW (None for the other views)."""
+        if key not in ("aw", "parts") or not self._series.get(key):
+            return None
+        values = [y for _x, y in self._series[key].values()]
+        finite = np.concatenate([np.asarray(v, dtype=float).ravel() for v in values])
+        finite = finite[np.isfinite(finite)]
+        if not finite.size:
+            return None
+        lo, hi = float(finite.min()), float(finite.max())
+        span = (hi - lo) or max(abs(hi), 1.0)
+        room = span * self.plots[key].label_room()
+        return (lo, hi + room) if self.signed() else (lo - room, hi)
+
+    def _view_resized(self, key: str) -> None:
+        # The labels keep their size in pixels: a shorter plot needs more room in data units.
+        y_range = self._labelled_range(key)
+        if y_range is not None:
+            self.plots[key].getPlotItem().setYRange(*y_range, padding=0.04)
 
     # Views ------------------------------------------------------------------
     def _draw_aw(self) -> None:
@@ -1037,18 +1108,18 @@ class ChartPanel(QWidget):
         x_line = np.array([0.4, len(mc) + 0.6])
         self._challenger_line.setData(x_line, np.array([level, level]))
         short = "AW" if self.signed() else "cost"
-        if (~above).any():
-            plot.legend.addItem(self._mc_keep, f"Marginal cost below {best.name}'s EAC (keep)"
-                                if not self.signed() else
-                                f"Marginal AW (-MC) better than {best.name}'s AW (keep)")
-        if above.any():
-            plot.legend.addItem(self._mc_over, f"Marginal cost above {best.name}'s EAC"
-                                if not self.signed() else
-                                f"Marginal AW (-MC) worse than {best.name}'s AW")
         plot.legend.addItem(self._challenger_line,
                             f"{best.name}: EAC at its ESL of {years_text(b_esl)}"
                             if not self.signed() else
                             f"{best.name}: AW at its ESL of {years_text(b_esl)}")
+        if (~above).any():
+            plot.legend.addItem(self._mc_keep, "Marginal cost below that EAC (keep)"
+                                if not self.signed() else
+                                "Marginal AW (-MC) better than that AW (keep)")
+        if above.any():
+            plot.legend.addItem(self._mc_over, "Marginal cost above that EAC"
+                                if not self.signed() else
+                                "Marginal AW (-MC) worse than that AW")
         plot.label(0, f"{best.name} {self._money(level)}", float(len(mc)) + 0.55, level,
                    PALETTE[2], (1.0, 1.1))
         plot.hide_labels(1)

@@ -877,6 +877,7 @@ class MainWindow(QMainWindow):
         dialog = getattr(self, "plan_dialog", None)
         if dialog is None:
             dialog = self.plan_dialog = PlanDialog(self)
+        dialog.set_currency(self.currency())
         dialog.set_document(self.doc)
         dialog.show()
         dialog.raise_()

@@ -28,6 +28,9 @@ ATTENTION = "#8A4B00"
 #: Line colours for alternatives: the defender first (blue, like keep), then the
 #: challengers (vermillion first, like replace), then the rest of Okabe-Ito.
 SERIES = (KEEP, REPLACE, "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+#: Sites in the capital plan's stacked bars: the rest of Okabe-Ito, never the keep blue or
+#: the replace vermillion (a site is neither).
+SITES = ("#009E73", "#CC79A7", "#999999", "#F0E442", "#56B4E9", "#E69F00")
 #: Inputs at their 10th / 90th percentile (tornado): greys, so that they never read as
 #: keep or replace.
 LOW = "#BBBBBB"

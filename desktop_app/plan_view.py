@@ -34,7 +34,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from desktop_app.charts import PALETTE, MoneyAxis, guard_signal_refcount_bug
+from core.text import money
+from desktop_app import palette
+from desktop_app.charts import MoneyAxis, guard_signal_refcount_bug
 
 guard_signal_refcount_bug()
 
@@ -42,8 +44,13 @@ COLUMNS = ("Asset", "Site", "Planned", "Best year", "Replace with", "Capital", "
            "Deferral cost", "Must", "Pinned")
 
 
-def _money(x: float | None) -> str:
-    return "-" if x is None else f"{x:,.0f}"
+def _money(x: float | None, currency: str = "") -> str:
+    """An amount as the rest of the window shows it (``core.text.money``: "-" for none).
+
+    >>> _money(334100.4, "\u00a3"), _money(-14343.0), _money(None, "\u00a3")
+    ('\u00a3334,100', '-14,343', '-')
+    """
+    return money(x, currency)
 
 
 class PlanSignals(QObject):
@@ -139,6 +146,7 @@ class PlanDialog(QDialog):
         self.items: list[tuple[str, str, Any, Any]] = []
         self.first_year = 0
         self.plan: Any = None
+        self.currency = ""
         self.override: float | None = None
         self.must: set[str] = set()
         self.pins: dict[str, int] = {}
@@ -205,7 +213,7 @@ class PlanDialog(QDialog):
         self.plot = pg.PlotWidget(axisItems={"left": MoneyAxis("left")})
         self.plot.setBackground("w")
         self.plot.showGrid(x=False, y=True, alpha=0.25)
-        self.plot.setLabel("left", "capital")
+        self.plot.setLabel("left", "capital")   # set_currency adds the unit
         self.plot.setLabel("bottom", "plan year")
         self.plot.setMouseEnabled(x=False, y=False)
         self.plot.hideButtons()
@@ -259,6 +267,13 @@ class PlanDialog(QDialog):
         self._selection_changed()
 
     # ------------------------------------------------------------------ input
+    def set_currency(self, symbol: str) -> None:
+        """The currency symbol of amounts and the capital axis (the window's one currency)."""
+        self.currency = symbol or ""
+        self.plot.setLabel("left", f"capital ({self.currency})" if self.currency else "capital")
+        if self.plan is not None:
+            self.show_plan(self.plan, self.override)
+
     def set_document(self, doc: Any) -> None:
         """Take the register's assets that have a study (key, site, study, cached result)."""
         items = []
@@ -373,26 +388,29 @@ class PlanDialog(QDialog):
         self.plan_ready.emit(plan)
 
     def _write_summary(self, plan: Any, cost: float | None) -> None:
+        cur = self.currency
         inside = sum(1 for a in plan.assets if a.year is not None)
         parts = [f"<b>{inside} of {len(plan.assets)} assets replaced</b> in "
                  f"{plan.first_year}–{plan.first_year + plan.horizon - 1} for "
-                 f"<b>{_money(sum(plan.capital_by_year))}</b> of capital "
-                 f"({_money(sum(plan.net_capital_by_year))} after sales)."]
+                 f"<b>{_money(sum(plan.capital_by_year), cur)}</b> of capital "
+                 f"({_money(sum(plan.net_capital_by_year), cur)} after sales)."]
         if plan.deferred:
             parts.append(f"The budget defers {len(plan.deferred)}; that costs "
-                         f"<b>{_money(plan.budget_cost)}</b> of value.")
+                         f"<b>{_money(plan.budget_cost, cur)}</b> of value.")
         elif any(b is not None for b in plan.budgets):
             parts.append("The budget defers nothing.")
         if plan.rule_objective is not None:
             parts.append(f"Funding by value per unit of capital would lose "
-                         f"{_money(plan.rule_gap)} against this plan.")
+                         f"{_money(plan.rule_gap, cur)} against this plan.")
         else:
             parts.append("Funding by value per unit of capital finds no plan in budget.")
         if cost is not None:
-            parts.append(f"<span style='color:#8a4b00'>Your pins cost <b>{_money(cost)}</b> "
+            parts.append(f"<span style='color:#8a4b00'>Your pins cost <b>{_money(cost, cur)}</b> "
                          f"against the best plan under the same budget.</span>")
         if plan.status != "optimal":
             parts.append(f"(Solver {plan.status}.)")
+        if plan.basis_note:
+            parts.append(f"<br><span style='color:#555555'>{plan.basis_note}</span>")
         self.summary.setText(" ".join(parts))
         self.progress.setFormat(plan.status if plan.status == "optimal" else "stopped")
 
@@ -403,7 +421,7 @@ class PlanDialog(QDialog):
         base = np.zeros(len(years))
         for n, site in enumerate(plan.capital_by_site):
             heights = np.array(site.capital, dtype=float)
-            colour = PALETTE[n % (len(PALETTE) - 1)]
+            colour = palette.SITES[n % len(palette.SITES)]
             bars = pg.BarGraphItem(x=years, height=heights, y0=base.copy(), width=0.6,
                                    brush=pg.mkBrush(colour), pen=pg.mkPen("w", width=0.5),
                                    name=site.site)
@@ -426,6 +444,8 @@ class PlanDialog(QDialog):
         self.table.setSortingEnabled(False)
         self.table.setRowCount(len(plan.assets))
 
+        cur = self.currency
+
         def when(y: int | None) -> str:
             return "after horizon" if y is None else str(plan.first_year + y)
 
@@ -439,8 +459,8 @@ class PlanDialog(QDialog):
                 (when(a.year), a.year if a.year is not None else 10**6),
                 (when(a.best_year), a.best_year if a.best_year is not None else 10**6),
                 (a.challenger or "-", a.challenger or ""),
-                (_money(a.capital) if a.year is not None else "-", a.capital),
-                (_money(a.value), a.value), (_money(a.deferral_cost), a.deferral_cost),
+                (_money(a.capital, cur) if a.year is not None else "-", a.capital),
+                (_money(a.value, cur), a.value), (_money(a.deferral_cost, cur), a.deferral_cost),
                 ("yes" if a.forced else "", int(a.forced)),
                 ("yes" if a.pinned else "", int(a.pinned))]
             for c, (text, sort) in enumerate(values):
@@ -450,7 +470,7 @@ class PlanDialog(QDialog):
                 if c >= 5 and c <= 7:
                     item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
                 if a.deferred and c == 7:
-                    item.setForeground(pg.mkColor("#b05000"))
+                    item.setForeground(pg.mkColor(palette.ATTENTION))
                 self.table.setItem(r, c, item)
         self.table.setSortingEnabled(True)
         self.table.sortItems(2, Qt.SortOrder.AscendingOrder)   # by planned year

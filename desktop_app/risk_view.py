@@ -124,11 +124,11 @@ def _plot(title: str, left: str, bottom: str) -> pg.PlotWidget:
     return plot
 
 
-def _value(x: float | None, address: str) -> str:
+def _value(x: float | None, address: str, currency: str = "") -> str:
     if x is None:
         return "no flip"
     rate = address == "marr" or address.endswith(("decline_rate", "growth"))
-    return f"{x:.2%}" if rate else money(x)
+    return f"{x:.2%}" if rate else money(x, currency)   # the inputs not rates are money
 
 
 class RiskView(QWidget):
@@ -257,7 +257,7 @@ class RiskView(QWidget):
     def set_currency(self, symbol: str) -> None:
         """The currency symbol of the money axis titles ('' for none)."""
         self._currency = symbol or ""
-        unit = f" ({self._currency}/yr)" if self._currency else ""
+        unit = f" ({self._currency}/year)" if self._currency else ""  # as the Results charts
         label = f"AW difference (best challenger - defender){unit}"
         self.tornado_plot.setLabel("bottom", label)
         self.histogram_plot.setLabel("bottom", label)
@@ -364,17 +364,26 @@ class RiskView(QWidget):
             return
         sim = risk.simulation
         s = risk.difference_summary()
+        basis = str(risk.basis).replace("-", " ")     # "after tax", as the Results charts say
+        self.tornado_plot.setTitle(f"Tornado: AW difference, 10th to 90th percentile, {basis}",
+                                   color="k", size="10pt")
+        self.histogram_plot.setTitle(f"AW difference across trials, {basis}", color="k",
+                                     size="10pt")
+        self.map_plot.setTitle(f"Where replacing wins, {basis}: REPLACE (orange) or KEEP "
+                               "(blue); × marks the estimates", color="k", size="9pt")
+        cur = self._currency
         se = sim.probability_standard_error
         self.summary.setText(
             f"<b>Replace wins in {risk.probability_replace:.1%} of {sim.trials:,} "
             f"trials</b> (standard error {se:.2%}; {risk.basis}; seed {sim.seed}). "
             f"AW difference (best challenger minus defender, positive favours replacing): "
-            f"p10 {money(s['p10'])}, median {money(s['p50'])}, p90 {money(s['p90'])}; "
-            f"mean {money(s['mean'])} (standard error {money(s['mean_standard_error'])})."
+            f"p10 {money(s['p10'], cur)}, median {money(s['p50'], cur)}, "
+            f"p90 {money(s['p90'], cur)}; mean {money(s['mean'], cur)} "
+            f"(standard error {money(s['mean_standard_error'], cur)})."
             + "".join(f"<br><span style='color:#8a4b00'>Note: {html.escape(n)}</span>"
                       for n in risk.notes))
         self.status.setText(f"Base case: {risk.base_action} "
-                            f"(AW difference {money(risk.base_difference)}).")
+                            f"(AW difference {money(risk.base_difference, cur)}).")
         self._draw_tornado(risk)
         self._draw_histogram()
         self._draw_breakevens(risk)
@@ -470,9 +479,10 @@ class RiskView(QWidget):
         table.setRowCount(len(risk.inputs))
         for row, item in enumerate(risk.inputs):
             lo, hi = risk.breakeven_ranges[item.address]
-            cells = [self._label(item.address), _value(item.estimate, item.address),
-                     _value(risk.breakeven[item.address], item.address),
-                     f"{_value(lo, item.address)} to {_value(hi, item.address)}"]
+            cur = self._currency
+            cells = [self._label(item.address), _value(item.estimate, item.address, cur),
+                     _value(risk.breakeven[item.address], item.address, cur),
+                     f"{_value(lo, item.address, cur)} to {_value(hi, item.address, cur)}"]
             for col, text in enumerate(cells):
                 cell = QTableWidgetItem(text)
                 if col:

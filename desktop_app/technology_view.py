@@ -33,7 +33,9 @@ from desktop_app import palette
 
 # Okabe & Ito colours, as the charts and the badge use them; the defender in grey.
 DEFENDER_COLOUR = "#9a9a9a"
-LANE_COLOURS = palette.SERIES[:6]
+#: Challenger k (from 0) in the colour the Results charts give it (the defender takes
+#: SERIES[0] there), so one machine has one colour in every view.
+LANE_COLOURS = palette.SERIES[1:7]
 KEEP_BADGE = (palette.KEEP, palette.ON_DECISION)
 REPLACE_BADGE = (palette.REPLACE, palette.ON_DECISION)
 
@@ -246,7 +248,7 @@ class TechnologyView(QWidget):
         what = (f"replace {html.escape(study.defender.name)} now with "
                 f"{html.escape(first_bar.challenger or '')}" if replace else
                 f"keep {html.escape(study.defender.name)} this year and wait for a better model")
-        tag = " after tax" if plan.basis == "after-tax" else ""
+        tag = " after tax" if plan.basis == "after-tax" else " before tax"
         margin = _money(abs(plan.waiting_gain), cur)
         compare = (f"replacing now beats the best plan that waits by <b>{margin}</b>"
                    if plan.waiting_gain < 0 else

@@ -285,3 +285,53 @@ def test_marginal_view_after_tax_falls_back_to_before_tax_on_both_sides(chart):
     level = taxed.before_tax.one_more_year.challenger_annual_cost
     np.testing.assert_allclose(s["Best challenger"][1], [level, level])
     assert level != pytest.approx(taxed.after_tax.one_more_year.challenger_annual_cost)
+
+
+@pytest.mark.parametrize("signed", [False, True])
+@pytest.mark.parametrize("height", [330, 600])
+def test_esl_labels_stay_inside_a_short_plot(qtbot, result, signed, height):
+    # At 1366x768 the chart gets about 550x330 pixels: a label under the lowest point
+    # (or over the highest, signed) once fell below the axis and was cut off.
+    w = ChartPanel()
+    qtbot.addWidget(w)
+    w.resize(550, height)
+    w.show()
+    QApplication.processEvents()
+    w.set_signed(signed)
+    w.set_result(result)
+    QApplication.processEvents()
+    plot = w.plot_widget()
+    box = plot.getPlotItem().vb.sceneBoundingRect()
+    shown = [t for t in plot.labels if t.isVisible()]
+    assert len(shown) == len(result.alternatives)
+    for t in shown:
+        r = t.sceneBoundingRect()
+        assert box.top() - 1 <= r.top() and r.bottom() <= box.bottom() + 1, (t.toPlainText(),
+                                                                            r, box)
+
+
+@pytest.mark.parametrize("view", ["aw", "parts", "marginal"])
+def test_long_titles_and_legends_fit_a_laptop_width_pane(qtbot, view):
+    # At 1366x768 the chart pane is about 550 pixels wide. A one-line title or legend row
+    # wider than that made pyqtgraph lay the plot out wider than its widget, so the axis
+    # and the right-hand bars were cut off; now the title wraps and the legend takes fewer
+    # columns ("common practice, no source": nothing drawn outside the widget).
+    study = make_study()
+    long_d = dataclasses.replace(study.defender, name="Reciprocating piston compressor 40 kW "
+                                                       "(2009)")
+    long_c = dataclasses.replace(study.challengers[0], name="Variable-speed rotary screw "
+                                                            "compressor 90 kW")
+    result = run_study(dataclasses.replace(study, defender=long_d,
+                                           challengers=(long_c, study.challengers[1])))
+    w = ChartPanel()
+    qtbot.addWidget(w)
+    w.resize(550, 360)
+    w.show()
+    QApplication.processEvents()
+    w.set_result(result)
+    w.set_view(view)
+    QApplication.processEvents()
+    plot = w.plot_widget()
+    needed = plot.getPlotItem().effectiveSizeHint(Qt.SizeHint.MinimumSize).width()
+    assert needed <= plot.width(), (needed, plot.width())
+    assert plot.getPlotItem().geometry().width() <= plot.width()

@@ -67,6 +67,13 @@ def test_view_draws_the_plan_segments(qtbot) -> None:
     assert [names[b.lane] for b in bars] == [s.name for s in segs]
     badge = "REPLACE NOW" if plan.first_action == "replace" else "WAIT: KEEP THIS YEAR"
     assert view.badge.text() == badge and view.badge.isVisibleTo(view)
+    # the basis is said whichever it is (this study has no tax)
+    assert plan.basis == "before-tax" and " before tax:" in view.headline.text()
+    # each challenger's lane has the colour the Results charts give that machine
+    from desktop_app.charts import PALETTE
+
+    lanes = view.timeline._lanes
+    assert [c for _n, c in lanes[1:]] == [PALETTE[i] for i in range(1, len(lanes))]
     view.resize(900, 600)
     view.set_currency("£")
     assert "£" in view.figures.text()

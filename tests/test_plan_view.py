@@ -116,3 +116,29 @@ def test_plan_window_refuses_bad_budget_and_reports_infeasible(qtbot, window) ->
     assert dialog.job is None
     assert dialog.plan is None
     dialog.shutdown()
+
+
+def test_plan_window_shows_the_workbook_currency_basis_and_sites_not_in_decision_colours(
+        qtbot, window) -> None:
+    from desktop_app import palette
+
+    window.plan_action.trigger()
+    dialog = window.plan_dialog
+    dialog.budget_edit.setText(BUDGET)
+    _solve(qtbot, dialog)
+    plan = dialog.plan
+    # the demo workbook's currency is the pound; amounts read like the results panel's
+    # (core.text.money: "£334,100"); hand calculation: the first "Capital" cell is the
+    # plan's capital for that asset with the sign, separators and symbol.
+    assert window.currency() == "\u00a3"
+    assert f"\u00a3{sum(plan.capital_by_year):,.0f}" in dialog.summary.text()
+    assert "capital (\u00a3)" in dialog.plot.getAxis("left").labelText
+    row = next(r for r in range(dialog.table.rowCount())
+               if dialog.table.item(r, 5).text() != "-")
+    assert dialog.table.item(row, 5).text().startswith("\u00a3")
+    # the basis the values rest on is said (core's note, not a second wording)
+    assert plan.basis_note and plan.basis_note in dialog.summary.text()
+    # a site is neither keep nor replace: its bars never take those two colours
+    brushes = {i.opts["brush"].color().name().lower() for i in dialog.plot.items()
+               if type(i).__name__ == "BarGraphItem"}
+    assert brushes and not brushes & {palette.KEEP.lower(), palette.REPLACE.lower()}

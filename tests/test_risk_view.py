@@ -80,7 +80,35 @@ def test_shows_a_study_period_without_a_difference(view):
 def test_currency_in_axis_titles(view):
     view.set_currency("£")
     assert view.currency() == "£"
-    assert "£/yr" in view.tornado_plot.getAxis("bottom").labelText
+    # the same unit words as the Results charts' axes ("EAC = -AW (£/year)")
+    assert "(£/year)" in view.tornado_plot.getAxis("bottom").labelText
+
+
+def test_charts_say_their_basis_and_amounts_carry_the_currency(view):
+    # An after-tax study: the summary already said "after-tax"; every chart title must
+    # say it too, and the summary's amounts read like the rest of the window ("£351").
+    import dataclasses
+
+    from core.estimates import Depreciation, Tax
+    from core.text import money
+
+    study = make(trials=300)
+
+    def taxed(alt):
+        return dataclasses.replace(alt, depreciation=Depreciation("macrs", macrs_class=7))
+
+    study = dataclasses.replace(study, defender=taxed(study.defender),
+                                challengers=tuple(taxed(c) for c in study.challengers),
+                                tax=Tax(0.25, 0.075))
+    result = run_study(study)
+    view.set_currency("£")
+    view.set_result(result)
+    risk = view._risk
+    assert risk is not None and risk.basis == "after-tax"
+    for plot in (view.tornado_plot, view.histogram_plot, view.map_plot):
+        assert "after tax" in plot.plotItem.titleLabel.text
+    assert money(risk.base_difference, "£") in view.status.text()
+    assert money(risk.difference_summary()["p50"], "£") in view.summary.text()
 
 
 def test_shows_the_risk_notes(view):
