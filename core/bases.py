@@ -90,7 +90,8 @@ def _option(o: Any) -> StudyOption:
 
 
 def _recommendation(r: Mapping[str, Any], basis: Basis) -> Recommendation:
-    return Recommendation(str(r.get("action")), r.get("challenger"), r.get("defender_years"),
+    action: Literal["keep", "replace"] = "replace" if r.get("action") == "replace" else "keep"
+    return Recommendation(action, r.get("challenger"), r.get("defender_years"),
                           r.get("replacement_value"), basis, str(r.get("reason") or ""),
                           str(r.get("best_challenger") or ""),
                           int(r.get("planned_defender_years") or 0),

@@ -177,7 +177,8 @@ def cmd_add(args: argparse.Namespace) -> int:
         if have is None:
             year = add_studied_asset(wb, asset, study, _year(args.year))
         else:  # an asset of the register (e.g. from an imported list) gets its study
-            year = wb.study_year if args.year is None else _year(args.year)
+            year = int(wb.study_year) if args.year is None else int(args.year)
+            _year(year)
             _check_same(have, args, asset)
             if year in wb.years(args.tag):
                 raise StudyError("--tag", f"asset {args.tag} already has a study for {year}")
@@ -277,7 +278,9 @@ def cmd_import_history(args: argparse.Namespace) -> int:
     guess.update(overrides)
     if guess.get("amount") is None:
         raise StudyError(args.history, "no amount column found (--map COLUMN=amount)")
-    mapping = ColumnMapping(amount=guess["amount"], tag=guess.get("tag"), date=guess.get("date"),
+    amount = guess["amount"]
+    assert amount is not None  # refused just above
+    mapping = ColumnMapping(amount=amount, tag=guess.get("tag"), date=guess.get("date"),
                             year=guess.get("year"), age=guess.get("age"),
                             kind=guess.get("kind"), default_kind=args.kind,
                             default_tag=args.asset, dayfirst=args.dayfirst,

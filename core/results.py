@@ -394,13 +394,15 @@ class TechnologyPlan:
     def segments(self) -> tuple[PlanSegment, ...]:
         """The machines of the plan in order, each with its years in service."""
         out: list[PlanSegment] = []
-        start, name, role, vintage = 0, self.defender, "defender", None
+        start, name, vintage = 0, self.defender, None
+        role: Literal["defender", "challenger"] = "defender"
         for step in self.policy:
             if step.action == "replace":
                 if step.year > start:
                     out.append(PlanSegment(name, role, vintage, start, step.year))
-                start, name, role, vintage = step.year, step.challenger, "challenger", step.vintage
-        out.append(PlanSegment(name, role, vintage, start, self.horizon))  # type: ignore[arg-type]
+                start, name, vintage = step.year, step.challenger or name, step.vintage
+                role = "challenger"
+        out.append(PlanSegment(name, role, vintage, start, self.horizon))
         return tuple(out)
 
 

@@ -202,7 +202,8 @@ def guess_columns(columns: Sequence[str], hints: Mapping[str, tuple[str, ...]],
         exact = [c for c, low in lowered if low in words]
         loose = [c for c, low in lowered
                  if any(h in low.replace("_", " ").split() or low.startswith(h) for h in words)]
-        pick = (exact or loose or [None])[0]
+        found = exact or loose
+        pick = found[0] if found else None
         if pick is not None:
             used.add(pick)
         out[field] = pick

@@ -163,7 +163,11 @@ def exercise_tenure(tenure: Sequence[str], work: Path, env: dict[str, str],
        "--passphrase-file", "pass.txt")
     ok("memo", "study.json", "-o", "memo.pdf", "--sign", "id.p12", "--passphrase-file", "pass.txt")
     assert (work / "memo.pdf").read_bytes()[:5] == b"%PDF-"
-    verified = ok("verify", "memo.pdf")
+    # an identity nobody has trusted proves nothing: intact, but exit 1 (docs/method.md §8)
+    untrusted = run([*tenure, "verify", "memo.pdf"], work, env, wrapper)
+    assert untrusted.returncode == 1 and "not trusted" in untrusted.stdout + untrusted.stderr
+    ok("identity", "show", "id.p12", "--passphrase-file", "pass.txt", "--cert-out", "cert.pem")
+    verified = ok("verify", "memo.pdf", "--trust", "cert.pem")
     assert "Site Engineer" in verified
     tampered = bytearray((work / "memo.pdf").read_bytes())
     middle = len(tampered) // 3

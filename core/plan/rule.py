@@ -41,7 +41,8 @@ def simple_rule(table: OptionTable, budgets: Sequence[float | None] | None, *,
     choice[best_year == AFTER] = best[best_year == AFTER]
     for y in range(h):
         waiting = np.flatnonzero((choice < 0) & (best_year <= y) & (best_year != AFTER))
-        room = budgets[y] if budgets[y] is not None else np.inf
+        budget = budgets[y]
+        room = float(budget) if budget is not None else float(np.inf)
         per_site: dict[str | None, int] = {}
         ranked = []
         for a in waiting.tolist():

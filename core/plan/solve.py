@@ -160,8 +160,8 @@ def solve(table: OptionTable, budgets: Sequence[float | None] | None = None, *,
     rows, cols = np.nonzero(allowed & ~dominated(table, allowed, net))
     constrained = any(b is not None for b in budgets) or per_site_limit is not None
     if not constrained or rows.size == 0:
-        value = float(table.value[np.arange(table.size), best].sum())
-        return Solution(best, value, "optimal", 0.0)
+        return Solution(best, float(table.value[np.arange(table.size), best].sum()), "optimal",
+                        0.0)
     m = rows.size
     value = table.value[rows, cols]
     year = table.year[rows, cols]
@@ -212,7 +212,7 @@ def solve(table: OptionTable, budgets: Sequence[float | None] | None = None, *,
                  bounds=(0.0, 1.0), method="highs") if ub_rows is not None else None
     candidates: list[tuple[float, np.ndarray]] = []
     bound = np.inf
-    if lp is not None and lp.status == 0:
+    if lp is not None and lp.status == 0 and ub_rows is not None:
         bound = -float(lp.fun) * scale
         reduced = c - ub_rows.T @ lp.ineqlin.marginals - blocks[0].A.T @ lp.eqlin.marginals
         core = _core(rows, reduced, lp.x, table.size, max(60, 40 * h))

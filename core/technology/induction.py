@@ -97,9 +97,10 @@ def solve(defender: FloatArray, challengers: Sequence[FloatArray], horizon: int)
             keep_c[c][y, ages] = keep >= buy_value[y]
             big[c][y, ages] = np.maximum(keep, buy_value[y])
         if y <= n_d:
-            keep = defender[y + 1] - defender[y] + v_d[y + 1] if y + 1 <= n_d else -np.inf
-            keep_d_value[y] = keep
-            keep_d[y] = keep >= buy_value[y]
+            keep_def = (float(defender[y + 1] - defender[y] + v_d[y + 1]) if y + 1 <= n_d
+                        else -np.inf)
+            keep_d_value[y] = keep_def
+            keep_d[y] = keep_def >= buy_value[y]
             v_d[y] = max(keep, buy_value[y])
     return Induction(defender_value=v_d, challenger_values=tuple(v[:, :-1] for v in big),
                      buy_value=buy_value, buy_choice=buy_choice, keep_defender=keep_d,

@@ -36,6 +36,7 @@ from core import inflation as infl
 from core.aftertax import after_tax_annual_worth
 from core.aftertax import rates as after_tax_rates
 from core.annual_worth import annual_worth_schedule
+from core.errors import StudyError
 from core.estimates import Alternative, Study
 from core.factors import FloatArray, fp, pf
 
@@ -50,6 +51,12 @@ class Rates:
     discount: float
     decision: float
     inflation: float
+
+
+def _tax_rate(study: Study) -> float:
+    if study.tax is None:
+        raise StudyError("tax", "an after-tax plan needs the study's tax block")
+    return float(study.tax.rate)
 
 
 def plan_rates(study: Study) -> Rates:
@@ -88,7 +95,7 @@ def defender_present_worth(study: Study, rates: Rates) -> FloatArray:
     else:
         sched = dep.alternative_schedule(alt)
         pw = after_tax_annual_worth(price, s, c + x, sched.allowance, sched.book_value_0,
-                                    float(study.tax.rate), rates.discount,
+                                    _tax_rate(study), rates.discount,
                                     disposal_fraction=sched.disposal_fraction,
                                     defender=True).present_worth
     return np.concatenate([[0.0], pw])
@@ -119,9 +126,12 @@ def challenger_present_worth(study: Study, alt: Alternative, horizon: int, rates
         pw = annual_worth_schedule(price_t, s_t, c_t, rates.discount).present_worth
     else:
         basis_t = dep.basis_of(alt) * (gp * grow)[:, 0]
+        if alt.depreciation is None:
+            raise StudyError(f"challengers.{alt.name}.depreciation",
+                             "an after-tax technology plan needs each challenger's depreciation")
         sched = dep.schedule(alt.depreciation, basis_t, alt.max_life)
         pw = after_tax_annual_worth(price_t, s_t, c_t, sched.allowance, sched.book_value_0,
-                                    float(study.tax.rate), rates.discount,
+                                    _tax_rate(study), rates.discount,
                                     disposal_fraction=sched.disposal_fraction).present_worth
     out = np.full((horizon, alt.max_life + 1), np.nan)
     out[:, 1:] = pw * pf(rates.discount, t)[:, None]

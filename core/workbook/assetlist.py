@@ -81,7 +81,8 @@ class AssetMapping:
                  "description")
         guess = guess_columns(list(columns), ASSET_HINTS, order)
         guess.update(overrides or {})
-        return cls(**{f: guess.get(f) for f in ASSET_FIELDS}, **options)
+        fields: dict[str, Any] = {f: guess.get(f) for f in ASSET_FIELDS}
+        return cls(**fields, **options)
 
     def columns(self) -> list[str]:
         return [c for c in (getattr(self, f) for f in ASSET_FIELDS) if c is not None]
