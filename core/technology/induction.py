@@ -101,7 +101,7 @@ def solve(defender: FloatArray, challengers: Sequence[FloatArray], horizon: int)
                         else -np.inf)
             keep_d_value[y] = keep_def
             keep_d[y] = keep_def >= buy_value[y]
-            v_d[y] = max(keep, buy_value[y])
+            v_d[y] = max(keep_def, buy_value[y])
     return Induction(defender_value=v_d, challenger_values=tuple(v[:, :-1] for v in big),
                      buy_value=buy_value, buy_choice=buy_choice, keep_defender=keep_d,
                      keep_challenger=tuple(keep_c), keep_defender_value=keep_d_value)
