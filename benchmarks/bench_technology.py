@@ -23,17 +23,16 @@ from __future__ import annotations
 
 import argparse
 import copy
-import gc
 import json
 import os
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
+
+from timing import best_of, cli_wall  # noqa: E402
 
 from core.studyfile import parse_study_document  # noqa: E402
 from core.technology import technology_plan  # noqa: E402
@@ -137,33 +136,6 @@ def naive_plan(study) -> tuple[float, float]:
     return solve(True), solve(False)
 
 
-# --------------------------------------------------------------------------- timing
-def best_of(fn, repeat: int) -> tuple[float, object]:
-    best, value = float("inf"), None
-    for _ in range(repeat):
-        gc.collect()
-        gc.disable()
-        try:
-            start = time.perf_counter()
-            value = fn()
-            best = min(best, time.perf_counter() - start)
-        finally:
-            gc.enable()
-    return best, value
-
-
-def cli_once(path: Path) -> float:
-    cmd = [sys.executable, "-m", "core.cli", "study", str(path), "--json"]
-    env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
-    start = time.perf_counter()
-    proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env,
-                          cwd=HERE.parent, check=False)
-    took = time.perf_counter() - start
-    if proc.returncode != 0:
-        raise SystemExit(f"tenure failed: {proc.stderr.decode()[-500:]}")
-    return took
-
-
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=7)
@@ -193,10 +165,10 @@ def main() -> int:
                 p.write_text(json.dumps(variant(taxed, tech)), encoding="utf-8")
                 paths[tech] = p
             walls = {False: float("inf"), True: float("inf")}
-            cli_once(paths[False])  # warm the file cache
+            cli_wall(["study", str(paths[False]), "--json"])  # warm the file cache
             for _ in range(args.repeat):
                 for tech in (False, True):
-                    walls[tech] = min(walls[tech], cli_once(paths[tech]))
+                    walls[tech] = min(walls[tech], cli_wall(["study", str(paths[tech]), "--json"]))
             ratio = walls[True] / walls[False]
             ok = ok and ratio <= 1.5
             print(f"tenure study --json, {'after' if taxed else 'before'} tax: without the block "
