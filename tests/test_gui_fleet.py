@@ -14,8 +14,6 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 import dataclasses  # noqa: E402
 import json  # noqa: E402
-import re  # noqa: E402
-import sqlite3  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import pytest  # noqa: E402
@@ -35,6 +33,7 @@ from desktop_app.fleet_actions import (  # noqa: E402
 from desktop_app.main_window import MainWindow  # noqa: E402
 from tests.conftest import BASE_STUDY, parse_one  # noqa: E402
 from tests.gui_support import new_window, open_window  # noqa: E402
+from tests.workbook_support import integrity, sql_dump  # noqa: E402
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = ROOT / "resources" / "examples"
@@ -44,20 +43,7 @@ pytestmark = pytest.mark.usefixtures("isolated")
 
 
 def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return [re.sub(r"'\d{4}-\d\d-\d\dT[0-9:.]+\+00:00'", "'T'", line)
-                for line in conn.iterdump()]
-    finally:
-        conn.close()
-
-
-def integrity(path: Path) -> str:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("PRAGMA integrity_check").fetchone()[0]
-    finally:
-        conn.close()
+    return sql_dump(path, mask_times=True)
 
 
 def study(title: str):
