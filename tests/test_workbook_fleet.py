@@ -62,7 +62,7 @@ def test_migration_from_v2_adds_depreciation_retirement_currency(tmp_path: Path)
         assert ro.schema_version == 2 and ro.asset("PU-1").depreciation is None
     assert sql_dump(p) == before
     with Workbook.open(p, write=True) as w:
-        assert w.schema_version == SCHEMA_VERSION == 3
+        assert w.schema_version == SCHEMA_VERSION == 4  # v2 -> v3 -> v4 in one open
         a = w.asset("PU-1")
         assert (a.depreciation, a.retired_on, a.retired_reason) == (None, None, "")
         assert w.meta()["first_year"] == "2024" and w.currency == ""  # earliest stored study
