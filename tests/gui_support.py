@@ -63,3 +63,17 @@ def open_window(qtbot: Any, path: str | Path = FALLBACK_DEMO, *,
     assert window.open_path(str(path), offer_recovery=offer_recovery)
     assert window.wait_for_jobs()
     return window
+
+
+def answer_questions(monkeypatch: pytest.MonkeyPatch, button: QMessageBox.StandardButton,
+                     asked: list[str] | None = None) -> list[str]:
+    """From now on QMessageBox.question answers ``button``; each question's text is appended
+    to ``asked`` (a new list unless given), which is returned."""
+    asked = [] if asked is None else asked
+
+    def question(*args: Any, **kwargs: Any) -> QMessageBox.StandardButton:
+        asked.append(args[2])
+        return button
+
+    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    return asked

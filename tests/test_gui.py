@@ -32,7 +32,7 @@ from desktop_app.main_window import MainWindow  # noqa: E402
 from desktop_app.prefs import Preferences  # noqa: E402
 from desktop_app.sources import demo_path  # noqa: E402
 from desktop_app.worker import FleetJob  # noqa: E402
-from tests.gui_support import FALLBACK_DEMO, open_window  # noqa: E402
+from tests.gui_support import FALLBACK_DEMO, answer_questions, open_window  # noqa: E402
 
 pytestmark = pytest.mark.usefixtures("isolated")
 
@@ -258,18 +258,10 @@ def test_closing_with_unsaved_changes_asks(qtbot, monkeypatch):
     window = open_window(qtbot)
     window.show()
     type_into(alt_editor(window).price_edit, "19,000")
-    asked = []
-
-    def answer(button):
-        def question(*args, **kwargs):
-            asked.append(args[2])
-            return button
-        return staticmethod(question)
-
-    monkeypatch.setattr(QMessageBox, "question", answer(QMessageBox.StandardButton.Cancel))
+    asked = answer_questions(monkeypatch, QMessageBox.StandardButton.Cancel)
     assert not window.close()
     assert window.isVisible() and asked
-    monkeypatch.setattr(QMessageBox, "question", answer(QMessageBox.StandardButton.Discard))
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Discard, asked)
     assert window.close()
     assert len(asked) == 2
 
@@ -279,8 +271,7 @@ def test_autosave_and_recovery_after_a_crash(qtbot, monkeypatch):
     type_into(alt_editor(window).price_edit, "12,345")
     written = window.autosave()
     assert written is not None and written.exists()
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.StandardButton.Yes))
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Yes)
     again = open_window(qtbot)
     assert again.isWindowModified()
     assert again.current_entry().study.defender.price == 12345.0
@@ -408,8 +399,7 @@ def test_untitled_work_is_offered_back_at_start(qtbot, monkeypatch):
     window.new_document()
     type_into(alt_editor(window).price_edit, "23,456")
     assert window.autosave() is not None
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.StandardButton.Yes))
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Yes)
     again = MainWindow(Preferences(), deferred=True)
     qtbot.addWidget(again, before_close_func=lambda w: w.discard_changes())
     again.finish_startup(str(FALLBACK_DEMO))
@@ -534,13 +524,7 @@ def test_ctrl_c_in_the_terminal_closes_the_window_asking_about_unsaved_work(qtbo
     window = open_window(qtbot)
     window.show()
     window._forced_dirty = True
-    asked = []
-
-    def question(*args, **kwargs):
-        asked.append(args[2])
-        return QMessageBox.StandardButton.Cancel
-
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    asked = answer_questions(monkeypatch, QMessageBox.StandardButton.Cancel)
     previous = signal.getsignal(signal.SIGINT)
     try:
         install_interrupt_handler(window)
@@ -548,8 +532,7 @@ def test_ctrl_c_in_the_terminal_closes_the_window_asking_about_unsaved_work(qtbo
         qtbot.waitUntil(lambda: bool(asked), timeout=3000)
         assert "unsaved changes" in asked[0]
         assert window.isVisible()  # Cancel keeps it open, as the close button does
-        monkeypatch.setattr(QMessageBox, "question",
-                            staticmethod(lambda *a, **k: QMessageBox.StandardButton.Discard))
+        answer_questions(monkeypatch, QMessageBox.StandardButton.Discard)
         os.kill(os.getpid(), signal.SIGINT)
         qtbot.waitUntil(lambda: not window.isVisible(), timeout=3000)
     finally:
@@ -571,13 +554,7 @@ def test_read_only_workbook_opens_read_only_and_offers_save_as(qtbot, monkeypatc
     assert "read-only: the file is read-only" in window.last_message
     assert "Save As" in window.last_message
     window._forced_dirty = True
-    offered = []
-
-    def question(*args, **kwargs):
-        offered.append(args[2])
-        return QMessageBox.StandardButton.No
-
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    offered = answer_questions(monkeypatch, QMessageBox.StandardButton.No)
     before = book.read_bytes()
     window.doc.entries[0].saved = None  # something to save
     assert not window._save_to(str(book))
