@@ -20,7 +20,6 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-import tempfile
 import time
 from pathlib import Path
 
@@ -29,7 +28,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
-from timing import cli_wall  # noqa: E402
+from timing import study_cli_walls  # noqa: E402
 
 from core import risk  # noqa: E402
 from core.jsonout import risk_json  # noqa: E402
@@ -118,16 +117,10 @@ def main() -> int:
           f"(standard error {sim.probability_standard_error:.4f})")
     print(f"memo-facing JSON size: {len(json.dumps(risk_json(full))):,} bytes")
 
-    with tempfile.TemporaryDirectory() as folder:
-        with_unc = Path(folder) / "with.json"
-        without = Path(folder) / "without.json"
-        with_unc.write_text(json.dumps(obj), encoding="utf-8")
-        plain = {k: v for k, v in obj.items() if k != "uncertainty"}
-        without.write_text(json.dumps(plain), encoding="utf-8")
-        t_without = cli_wall(["study", str(without), "--json"], args.repeats,
-                             env={"PYTHONHASHSEED": "0"})
-        t_with = cli_wall(["study", str(with_unc), "--json"], args.repeats,
-                             env={"PYTHONHASHSEED": "0"})
+    plain = {k: v for k, v in obj.items() if k != "uncertainty"}
+    walls = study_cli_walls({"without": plain, "with": obj}, args.repeats,
+                            env={"PYTHONHASHSEED": "0"})
+    t_without, t_with = walls["without"], walls["with"]
     ratio = t_with / t_without
     print(f"\n`tenure study --json` without uncertainty: {t_without:.3f} s; with "
           f"{args.trials:,} trials: {t_with:.3f} s; ratio {ratio:.2f}x "

@@ -4,9 +4,11 @@ command (the `tenure` CLI) in a fresh interpreter started from the repository ro
 from __future__ import annotations
 
 import gc
+import json
 import os
 import subprocess
 import sys
+import tempfile
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -15,6 +17,7 @@ from typing import TypeVar
 ROOT = Path(__file__).resolve().parents[1]
 
 T = TypeVar("T")
+K = TypeVar("K")
 
 
 def best_of(fn: Callable[[], T], repeat: int = 1) -> tuple[float, T]:
@@ -52,3 +55,21 @@ def wall(cmd: list[str], repeat: int = 1, env: dict[str, str] | None = None) -> 
 def cli_wall(args: list[str], repeat: int = 1, env: dict[str, str] | None = None) -> float:
     """Best wall time of ``python -m core.cli ARGS`` (what `tenure ARGS` runs)."""
     return wall([sys.executable, "-m", "core.cli", *args], repeat, env)
+
+
+def study_cli_walls(documents: dict[K, dict], repeat: int = 1,
+                    env: dict[str, str] | None = None) -> dict[K, float]:
+    """Best wall time of `tenure study FILE --json` for each study document, the files
+    written to a temporary folder, one warm-up run, then the cases timed in alternation round
+    by round (a slow spell of the machine lands on every case, not on one)."""
+    best = {name: float("inf") for name in documents}
+    with tempfile.TemporaryDirectory() as folder:
+        paths = {}
+        for i, (name, doc) in enumerate(documents.items()):
+            paths[name] = Path(folder) / f"study-{i}.json"
+            paths[name].write_text(json.dumps(doc), encoding="utf-8")
+        cli_wall(["study", str(next(iter(paths.values()))), "--json"], env=env)
+        for _ in range(max(repeat, 1)):
+            for name, path in paths.items():
+                best[name] = min(best[name], cli_wall(["study", str(path), "--json"], env=env))
+    return best
