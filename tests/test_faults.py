@@ -21,7 +21,6 @@ import pytest
 from core.cli import main
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
 from core.workbook import (
-    Asset,
     Workbook,
     WorkbookError,
     WorkbookReadOnly,
@@ -29,7 +28,7 @@ from core.workbook import (
     find_recovery,
     write_problem,
 )
-from tests.workbook_support import digest
+from tests.workbook_support import digest, pump_workbook
 
 ROOT = Path(__file__).resolve().parents[1]
 POSIX = pytest.mark.skipif(os.name != "posix", reason="setrlimit and setuid are POSIX")
@@ -45,11 +44,7 @@ def _study(price: float = 9000.0) -> Study:
 
 @pytest.fixture()
 def book(tmp_path: Path) -> Path:
-    p = tmp_path / "plant.tenure"
-    with Workbook.create(p, company="Harrowgate Fabrication Ltd.") as wb:
-        wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-        wb.save_study("P-7", 2025, _study())
-    return p
+    return pump_workbook(tmp_path / "plant.tenure", _study())
 
 
 def _child(code: str, *args: str) -> subprocess.CompletedProcess:
@@ -166,9 +161,7 @@ def test_read_only_workbook_is_refused_for_writing_with_the_reason(tmp_path: Pat
     try:
         os.chmod(folder, 0o755)
         book = folder / "plant.tenure"
-        with Workbook.create(book) as wb:
-            wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook"))
-            wb.save_study("P-7", 2025, _study())
+        pump_workbook(book, _study())
         os.chmod(book, 0o444)
         before = digest(book)
         if root:

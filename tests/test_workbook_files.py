@@ -38,7 +38,7 @@ from core.workbook import (
     restore_recovery,
 )
 from core.workbook import schema as schema_mod
-from tests.workbook_support import digest
+from tests.workbook_support import digest, pump_workbook
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -57,11 +57,7 @@ def siblings(path: Path) -> set[str]:
 
 @pytest.fixture()
 def book(tmp_path: Path) -> Path:
-    p = tmp_path / "plant.tenure"
-    with Workbook.create(p, company="Harrowgate Fabrication Ltd.") as wb:
-        wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-        wb.save_study("P-7", 2025, study())
-    return p
+    return pump_workbook(tmp_path / "plant.tenure", study())
 
 
 def run_child(code: str, *args: str, wait: bool = True) -> subprocess.Popen | subprocess.CompletedProcess:

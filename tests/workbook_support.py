@@ -1,5 +1,5 @@
-"""Shared checks on workbook files in the tests: a file's hash, its SQL dump and SQLite's own
-integrity check, read without changing the file."""
+"""Shared workbook pieces of the tests: a one-pump workbook, and checks on a workbook file (its
+hash, its SQL dump and SQLite's own integrity check) that read without changing it."""
 
 from __future__ import annotations
 
@@ -7,6 +7,9 @@ import hashlib
 import re
 import sqlite3
 from pathlib import Path
+
+from core.estimates import Study
+from core.workbook import Asset, Workbook
 
 SAVE_TIME = re.compile(r"'\d{4}-\d\d-\d\dT[0-9:.]+\+00:00'")
 
@@ -34,3 +37,11 @@ def integrity(path: Path) -> str:
         return conn.execute("PRAGMA integrity_check").fetchone()[0]
     finally:
         conn.close()
+
+
+def pump_workbook(path: Path, study: Study) -> Path:
+    """A new workbook at ``path`` holding pump P-7 (Millbrook) with ``study`` as its 2025 study."""
+    with Workbook.create(path, company="Harrowgate Fabrication Ltd.") as wb:
+        wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
+        wb.save_study("P-7", 2025, study)
+    return path
