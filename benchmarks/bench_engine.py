@@ -23,18 +23,17 @@ The machine's load is printed: other work on the CPUs moves every number.
 from __future__ import annotations
 
 import argparse
-import gc
 import json
 import os
 import random
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
+
+from timing import best_of, cli_wall, wall  # noqa: E402
 
 from core.batch import stack  # noqa: E402
 from core.study import _before_tax, run_studies  # noqa: E402
@@ -160,22 +159,6 @@ def naive_study(study) -> dict:
 
 
 # --------------------------------------------------------------------------- timing
-def best_of(fn, repeat: int) -> tuple[float, object]:
-    """Best wall time of ``repeat`` calls, with the cyclic GC paused as timeit does (a full
-    collection walks every object the benchmark holds and lands on whichever case runs)."""
-    best, value = float("inf"), None
-    for _ in range(repeat):
-        gc.collect()
-        gc.disable()
-        try:
-            start = time.perf_counter()
-            value = fn()
-            best = min(best, time.perf_counter() - start)
-        finally:
-            gc.enable()
-    return best, value
-
-
 def interleaved(fns: dict, rounds: int, inner: dict) -> tuple[dict, dict]:
     """Best wall time of each function, measured in alternation round by round (``inner[name]``
     calls per round), so a slow spell of the machine lands on every case, not on one."""
@@ -211,19 +194,6 @@ def check_agreement(results, naive) -> int:
               and keep_next == ref["keep_next"])
         bad += not ok
     return bad
-
-
-def wall(cmd: list[str], repeat: int) -> float:
-    env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
-    best = float("inf")
-    for _ in range(repeat):
-        start = time.perf_counter()
-        proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env,
-                              cwd=HERE.parent, check=False)
-        best = min(best, time.perf_counter() - start)
-        if proc.returncode != 0:
-            raise SystemExit(f"{cmd} failed: {proc.stderr.decode()[-500:]}")
-    return best
 
 
 def main() -> int:
@@ -275,10 +245,9 @@ def main() -> int:
         fleet_file.write_text(json.dumps(doc), encoding="utf-8")
         one_file.write_text(json.dumps({"format": "tenure-study", "version": 1,
                                         **doc["studies"][0]}), encoding="utf-8")
-        study = [sys.executable, "-m", "core.cli", "study"]
         t_numpy = wall([sys.executable, "-c", "import numpy"], args.repeat)
-        t_cli_one = wall(study + [str(one_file), "--json"], args.repeat)
-        t_cli_fleet = wall(study + [str(fleet_file), "--json"], args.repeat)
+        t_cli_one = cli_wall(["study", str(one_file), "--json"], args.repeat)
+        t_cli_fleet = cli_wall(["study", str(fleet_file), "--json"], args.repeat)
     fleet_ratio = t_cli_fleet / t_cli_one
     start_ratio = t_cli_one / t_numpy
     print(f"\n`python -c 'import numpy'`:          {t_numpy:7.3f} s (best of {args.repeat})")

@@ -22,16 +22,16 @@ from __future__ import annotations
 
 import argparse
 import os
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
+
+from timing import best_of, cli_wall  # noqa: E402
 
 from core.decision import keep_values  # noqa: E402
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study  # noqa: E402
@@ -97,23 +97,6 @@ def plan_first_tight(free, budget: float) -> str:
     return ", ".join(map(str, years)) or "no year"
 
 
-def timed(fn):
-    start = time.perf_counter()
-    value = fn()
-    return time.perf_counter() - start, value
-
-
-def cli(args: list[str]) -> float:
-    env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
-    start = time.perf_counter()
-    proc = subprocess.run([sys.executable, "-m", "core.cli", *args], stdout=subprocess.DEVNULL,
-                          stderr=subprocess.PIPE, env=env, cwd=HERE.parent, check=False)
-    wall = time.perf_counter() - start
-    if proc.returncode != 0:
-        raise SystemExit(f"tenure {args[0]} failed: {proc.stderr.decode()[-500:]}")
-    return wall
-
-
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", type=int, nargs="+", default=[500, 5000])
@@ -133,18 +116,18 @@ def main() -> int:
             if wb.exists():
                 wb.unlink()
             save_workbook(wb, assets, year)
-            t_res, results = timed(lambda studies=studies: run_fleet(studies))
-            t_in, inputs = timed(lambda results=results, assets=assets: [
+            t_res, results = best_of(lambda studies=studies: run_fleet(studies))
+            t_in, inputs = best_of(lambda results=results, assets=assets: [
                 plan_input(r, s, tag=t, site=site)
                 for r, (t, site, s) in zip(results, assets, strict=True)])
-            t_tab, table = timed(lambda inputs=inputs: option_table(inputs, args.horizon))
-            t_naive, naive = timed(lambda inputs=inputs: naive_values(inputs, args.horizon))
+            t_tab, table = best_of(lambda inputs=inputs: option_table(inputs, args.horizon))
+            t_naive, naive = best_of(lambda inputs=inputs: naive_values(inputs, args.horizon))
             same = all(np.allclose(v, table.value[k, :len(v)], rtol=0, atol=1e-9)
                        for k, v in enumerate(naive))
             free = make_plan(inputs, horizon=args.horizon, first_year=year)
             budget = round(1.3 * float(np.mean(free.capital_by_year)), -3)
             budgets = [budget] * args.horizon
-            t_solve, sol = timed(lambda table=table, budgets=budgets: solve(table, budgets))
+            t_solve, sol = best_of(lambda table=table, budgets=budgets: solve(table, budgets))
             plan = make_plan(inputs, horizon=args.horizon, budgets=budgets, first_year=year,
                              table=table, solution=sol)
             tight = [plan.first_year + y for y, (c, b) in
@@ -156,7 +139,7 @@ def main() -> int:
                   f"same values: {same})")
             print(f"  MILP {t_solve:7.3f} s: {sol.status}; {int(table.valid.sum()):,} options")
             loose = round(2.0 * float(np.mean(free.capital_by_year)), -3)
-            t_loose, sol2 = timed(lambda table=table, loose=loose: solve(table, [loose] * args.horizon))
+            t_loose, sol2 = best_of(lambda table=table, loose=loose: solve(table, [loose] * args.horizon))
             print(f"  MILP {t_loose:7.3f} s: {sol2.status} with a looser budget {loose:,.0f} a "
                   f"year (tight in {plan_first_tight(free, loose)})")
             print(f"  value: plan {plan.objective:,.0f}; without budget "
@@ -165,15 +148,15 @@ def main() -> int:
                   f" (gap {'-' if plan.rule_gap is None else f'{plan.rule_gap:,.0f}'}); "
                   f"{len(plan.deferred)} deferred")
             print(f"  capital by year: {', '.join(f'{v / 1e6:.2f}M' for v in plan.capital_by_year)}")
-            t_study = cli(["study", str(wb), "--json"])
-            t_plan = cli(["plan", str(wb), "--json", "--budget", str(budget)])
+            t_study = cli_wall(["study", str(wb), "--json"])
+            t_plan = cli_wall(["plan", str(wb), "--json", "--budget", str(budget)])
             ratio = t_plan / t_study
             print(f"  tenure study --json {t_study:6.2f} s | tenure plan --json {t_plan:6.2f} s | "
                   f"ratio {ratio:4.2f}x" + (f" -> target <= 5x {'met' if ratio <= 5 else 'NOT met'}"
                                           if n >= 5000 else ""))
             if args.out is not None and n == 500:
-                cli(["plan", str(wb), "--budget", str(budget), "-o",
-                     str(folder / "plan-500.pdf")])
+                cli_wall(["plan", str(wb), "--budget", str(budget), "-o",
+                          str(folder / "plan-500.pdf")])
                 print(f"  kept {wb} and {folder / 'plan-500.pdf'} (budget {budget:,.0f})")
     return 0
 

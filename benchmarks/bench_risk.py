@@ -19,10 +19,7 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
-import subprocess
 import sys
-import tempfile
 import time
 from pathlib import Path
 
@@ -30,6 +27,8 @@ import numpy as np
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
+
+from timing import study_cli_walls  # noqa: E402
 
 from core import risk  # noqa: E402
 from core.jsonout import risk_json  # noqa: E402
@@ -70,19 +69,6 @@ def naive(study, draws: dict[str, np.ndarray], count: int) -> tuple[float, np.nd
         case = risk.perturbed_study(study, {a: float(v[t]) for a, v in draws.items()})
         flags[t] = run_study(case).recommendation.action == "replace"
     return time.perf_counter() - start, flags
-
-
-def cli_seconds(path: Path, repeats: int) -> float:
-    """Best wall time of ``tenure study PATH --json`` in a fresh interpreter."""
-    cmd = [sys.executable, "-c", "import sys; from core.cli import main; sys.exit(main())",
-           "study", str(path), "--json"]
-    best = float("inf")
-    for _ in range(repeats):
-        start = time.perf_counter()
-        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL, cwd=HERE.parent,
-                       env={**os.environ, "PYTHONHASHSEED": "0"})
-        best = min(best, time.perf_counter() - start)
-    return best
 
 
 def main() -> int:
@@ -131,14 +117,10 @@ def main() -> int:
           f"(standard error {sim.probability_standard_error:.4f})")
     print(f"memo-facing JSON size: {len(json.dumps(risk_json(full))):,} bytes")
 
-    with tempfile.TemporaryDirectory() as folder:
-        with_unc = Path(folder) / "with.json"
-        without = Path(folder) / "without.json"
-        with_unc.write_text(json.dumps(obj), encoding="utf-8")
-        plain = {k: v for k, v in obj.items() if k != "uncertainty"}
-        without.write_text(json.dumps(plain), encoding="utf-8")
-        t_without = cli_seconds(without, args.repeats)
-        t_with = cli_seconds(with_unc, args.repeats)
+    plain = {k: v for k, v in obj.items() if k != "uncertainty"}
+    walls = study_cli_walls({"without": plain, "with": obj}, args.repeats,
+                            env={"PYTHONHASHSEED": "0"})
+    t_without, t_with = walls["without"], walls["with"]
     ratio = t_with / t_without
     print(f"\n`tenure study --json` without uncertainty: {t_without:.3f} s; with "
           f"{args.trials:,} trials: {t_with:.3f} s; ratio {ratio:.2f}x "

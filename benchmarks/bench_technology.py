@@ -23,17 +23,14 @@ from __future__ import annotations
 
 import argparse
 import copy
-import gc
-import json
 import os
-import subprocess
 import sys
-import tempfile
-import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
+
+from timing import best_of, study_cli_walls  # noqa: E402
 
 from core.studyfile import parse_study_document  # noqa: E402
 from core.technology import technology_plan  # noqa: E402
@@ -137,33 +134,6 @@ def naive_plan(study) -> tuple[float, float]:
     return solve(True), solve(False)
 
 
-# --------------------------------------------------------------------------- timing
-def best_of(fn, repeat: int) -> tuple[float, object]:
-    best, value = float("inf"), None
-    for _ in range(repeat):
-        gc.collect()
-        gc.disable()
-        try:
-            start = time.perf_counter()
-            value = fn()
-            best = min(best, time.perf_counter() - start)
-        finally:
-            gc.enable()
-    return best, value
-
-
-def cli_once(path: Path) -> float:
-    cmd = [sys.executable, "-m", "core.cli", "study", str(path), "--json"]
-    env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
-    start = time.perf_counter()
-    proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env,
-                          cwd=HERE.parent, check=False)
-    took = time.perf_counter() - start
-    if proc.returncode != 0:
-        raise SystemExit(f"tenure failed: {proc.stderr.decode()[-500:]}")
-    return took
-
-
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=7)
@@ -185,23 +155,14 @@ def main() -> int:
           f"({plan.present_worth:,.2f} vs {ref[0]:,.2f}); first action {plan.first_action}")
 
     ok = agree
-    with tempfile.TemporaryDirectory() as tmp:
-        for taxed in (False, True):
-            paths = {}
-            for tech in (False, True):
-                p = Path(tmp) / f"s-{taxed}-{tech}.json"
-                p.write_text(json.dumps(variant(taxed, tech)), encoding="utf-8")
-                paths[tech] = p
-            walls = {False: float("inf"), True: float("inf")}
-            cli_once(paths[False])  # warm the file cache
-            for _ in range(args.repeat):
-                for tech in (False, True):
-                    walls[tech] = min(walls[tech], cli_once(paths[tech]))
-            ratio = walls[True] / walls[False]
-            ok = ok and ratio <= 1.5
-            print(f"tenure study --json, {'after' if taxed else 'before'} tax: without the block "
-                  f"{walls[False] * 1e3:.0f} ms, with it {walls[True] * 1e3:.0f} ms, ratio "
-                  f"{ratio:.2f}x (target <= 1.5x): {'met' if ratio <= 1.5 else 'NOT met'}")
+    for taxed in (False, True):
+        walls = study_cli_walls({tech: variant(taxed, tech) for tech in (False, True)},
+                                args.repeat)
+        ratio = walls[True] / walls[False]
+        ok = ok and ratio <= 1.5
+        print(f"tenure study --json, {'after' if taxed else 'before'} tax: without the block "
+              f"{walls[False] * 1e3:.0f} ms, with it {walls[True] * 1e3:.0f} ms, ratio "
+              f"{ratio:.2f}x (target <= 1.5x): {'met' if ratio <= 1.5 else 'NOT met'}")
     return 0 if ok else 1
 
 

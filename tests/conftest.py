@@ -51,3 +51,13 @@ def write_json(tmp_path: Path):
         return path
 
     return write
+
+
+@pytest.fixture
+def isolated(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    """The window tests' sandbox (tests/gui_support.py): settings and recovery files in
+    tmp_path, and any unplanned dialog fails the test."""
+    from tests.gui_support import isolate
+
+    isolate(tmp_path, monkeypatch)
+    return tmp_path

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
-import sqlite3
 from pathlib import Path
 
 import openpyxl
@@ -27,6 +26,7 @@ from core.workbook.assetlist import (
     parse_depreciation_text,
     plan_asset_file,
 )
+from tests.workbook_support import sql_dump
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLE = ROOT / "resources" / "examples" / "equipment_list.csv"
@@ -43,14 +43,6 @@ PB-6;Press brake 60 t;Ouseburn Yard;press brake;2006-02-20;-5,00;DB 10 20%
 ;;;;;;
 PK-7;Wrapper;Ouseburn Yard;packaging machine;20.02.2018;39.000,00;none
 """
-
-
-def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return list(conn.iterdump())
-    finally:
-        conn.close()
 
 
 @pytest.fixture()
@@ -107,10 +99,10 @@ def test_existing_tag_reported_not_merged_unless_asked(book: Path, tmp_path: Pat
     src = tmp_path / "list.csv"
     src.write_text("Tag,Description,Site,Original cost\nPU-3,Cooling pump 30 kW,Ouseburn Yard,"
                    "13000\nPU-8,New pump,Millbrook,\n", encoding="utf-8")
-    before = dump(book)
+    before = sql_dump(book)
     with Workbook.open(book, write=True) as wb:
         plan = plan_asset_file(wb, src)
-        assert dump(book) == before  # the preview writes nothing
+        assert sql_dump(book) == before  # the preview writes nothing
         (change,) = plan.changed
         assert change.fields == ("description", "site", "original_cost")
         assert change.describe() == ("row 2: PU-3 exists; description 'Cooling pump' -> "

@@ -10,7 +10,6 @@ process so the test runner is unaffected.
 
 from __future__ import annotations
 
-import hashlib
 import os
 import subprocess
 import sys
@@ -22,7 +21,6 @@ import pytest
 from core.cli import main
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study
 from core.workbook import (
-    Asset,
     Workbook,
     WorkbookError,
     WorkbookReadOnly,
@@ -30,6 +28,7 @@ from core.workbook import (
     find_recovery,
     write_problem,
 )
+from tests.workbook_support import digest, pump_workbook
 
 ROOT = Path(__file__).resolve().parents[1]
 POSIX = pytest.mark.skipif(os.name != "posix", reason="setrlimit and setuid are POSIX")
@@ -45,15 +44,7 @@ def _study(price: float = 9000.0) -> Study:
 
 @pytest.fixture()
 def book(tmp_path: Path) -> Path:
-    p = tmp_path / "plant.tenure"
-    with Workbook.create(p, company="Harrowgate Fabrication Ltd.") as wb:
-        wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-        wb.save_study("P-7", 2025, _study())
-    return p
-
-
-def _digest(p: Path) -> str:
-    return hashlib.sha256(p.read_bytes()).hexdigest()
+    return pump_workbook(tmp_path / "plant.tenure", _study())
 
 
 def _child(code: str, *args: str) -> subprocess.CompletedProcess:
@@ -82,7 +73,7 @@ print("kept", len(rows), "history", len(wb.history("P-7")))
 
 @POSIX
 def test_disk_full_mid_save_says_so_and_keeps_the_previous_state(book: Path) -> None:
-    before = _digest(book)
+    before = digest(book)
     proc = _child(CHILD_FULL, str(book))
     assert proc.returncode == 0, proc.stderr
     first, second = proc.stdout.splitlines()
@@ -90,7 +81,7 @@ def test_disk_full_mid_save_says_so_and_keeps_the_previous_state(book: Path) -> 
     assert "cannot rollback" not in proc.stdout + proc.stderr
     assert second == "kept 30000 history 0"
     assert proc.stderr == ""
-    assert _digest(book) == before
+    assert digest(book) == before
     with Workbook.open(book, write=True) as wb:
         assert wb.integrity_check() == "ok" and wb.years("P-7") == [2025]
 
@@ -170,11 +161,9 @@ def test_read_only_workbook_is_refused_for_writing_with_the_reason(tmp_path: Pat
     try:
         os.chmod(folder, 0o755)
         book = folder / "plant.tenure"
-        with Workbook.create(book) as wb:
-            wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook"))
-            wb.save_study("P-7", 2025, _study())
+        pump_workbook(book, _study())
         os.chmod(book, 0o444)
-        before = _digest(book)
+        before = digest(book)
         if root:
             proc = _child(CHILD_READ_ONLY, str(book))
             assert proc.returncode == 0, proc.stderr
@@ -183,7 +172,7 @@ def test_read_only_workbook_is_refused_for_writing_with_the_reason(tmp_path: Pat
         else:
             with pytest.raises(WorkbookReadOnly, match="read-only: the file is read-only"):
                 Workbook.open(book, write=True)
-        assert _digest(book) == before and not (folder / "plant.tenure.lock").exists()
+        assert digest(book) == before and not (folder / "plant.tenure.lock").exists()
     finally:
         if root:
             shutil.rmtree(folder, ignore_errors=True)

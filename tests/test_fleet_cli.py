@@ -11,7 +11,6 @@ Sources: "hand calculation" (expected registers), "SQLite documentation, atomic 
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import signal
@@ -23,6 +22,7 @@ from pathlib import Path
 import pytest
 
 from tests.conftest import BASE_STUDY, document
+from tests.workbook_support import digest, integrity
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = ROOT / "resources" / "examples"
@@ -44,18 +44,6 @@ def cli(*args: str, check: int | None = 0) -> subprocess.CompletedProcess:
     if check is not None:
         assert proc.returncode == check, proc.stderr + proc.stdout
     return proc
-
-
-def sha(p: Path) -> str:
-    return hashlib.sha256(p.read_bytes()).hexdigest()
-
-
-def integrity(p: Path) -> str:
-    conn = sqlite3.connect(f"file:{p}?mode=ro", uri=True)
-    try:
-        return conn.execute("PRAGMA integrity_check").fetchone()[0]
-    finally:
-        conn.close()
 
 
 def listing(p: Path) -> dict:
@@ -88,10 +76,10 @@ def test_new_refuses_to_overwrite(book: Path, tmp_path: Path) -> None:
     assert (data["organisation"], data["currency"], data["study_year"]) == (
         "Harrowgate Fabrication Ltd.", "GBP", 2026)
     assert data["sites"] == data["assets"] == []
-    before = sha(book)
+    before = digest(book)
     proc = cli("new", str(book), check=2)
     assert proc.stderr == f"error: {book}: already exists; not overwritten\n"
-    assert sha(book) == before
+    assert digest(book) == before
     other = tmp_path / "notes.txt"
     other.write_text("keep me")
     cli("new", str(other), check=2)
@@ -150,9 +138,9 @@ def test_workbook_gives_the_figures_of_the_files(book: Path, files: dict[str, Pa
 
 def test_import_assets_history_restudy_list(book: Path, files: dict[str, Path]) -> None:
     lst = str(EXAMPLES / "equipment_list.csv")
-    before = sha(book)
+    before = digest(book)
     out = cli("import-assets", str(book), lst, "--dry-run").stdout
-    assert sha(book) == before and "dry run: nothing written" in out
+    assert digest(book) == before and "dry run: nothing written" in out
     assert "32 rows: 30 new assets, 0 existing with changes, 0 unchanged, 2 rejected" in out
     assert "equipment_list.csv: row 19: in-service date '2019-06-31' is not a date" in out
     assert "equipment_list.csv: row 33: tag 'PU-302' is already on row 9" in out
@@ -168,14 +156,14 @@ def test_import_assets_history_restudy_list(book: Path, files: dict[str, Path]) 
     changed = book.parent / "changed.csv"
     changed.write_text(Path(lst).read_text().replace("Rotary screw compressor 75 kW,Kestrel",
                                                      "Screw compressor 75 kW VSD,Kestrel", 1))
-    before = sha(book)
+    before = digest(book)
     out = cli("import-assets", str(book), str(changed)).stdout
     assert "AC-301 exists; description 'Rotary screw compressor 75 kW' -> " \
            "'Screw compressor 75 kW VSD'" in out and "use --update-existing" in out
     assert listing(book)["assets"][0]["description"] == "Rotary screw compressor 75 kW"
     cli("import-assets", str(book), str(changed), "--update-existing")
     assert listing(book)["assets"][0]["description"] == "Screw compressor 75 kW VSD"
-    assert before != sha(book) and integrity(book) == "ok"
+    assert before != digest(book) and integrity(book) == "ok"
     # studies for imported assets, cost history with fits, a restudy
     cli("add", str(book), str(EXAMPLES / "equipment_studies.json"), "--site", "Kestrel Road",
         "--tag", "AC-301", "--study", "AC-301")
@@ -241,14 +229,14 @@ def test_refusals_exit_2_and_leave_the_file_byte_identical(book: Path,
              "missing": str(book.parent / "missing.json"),
              "list": str(EXAMPLES / "equipment_list.csv"),
              "hist": str(EXAMPLES / "cost_history.csv")}
-    before = sha(book)
+    before = digest(book)
     for args, expected in REFUSALS:
         proc = cli(*[a.format(**names) for a in args], check=None)
         lines = proc.stderr.splitlines()
         assert proc.returncode == 2, (args, proc.stderr, proc.stdout)
         assert len(lines) == 1 and lines[0].startswith(expected.format(**names)), (args, lines)
         assert "Traceback" not in proc.stderr
-        assert sha(book) == before, args
+        assert digest(book) == before, args
     assert integrity(book) == "ok"
 
 

@@ -21,7 +21,6 @@ import numpy as np  # noqa: E402
 import pytest  # noqa: E402
 
 pytest.importorskip("pytestqt")
-from PySide6.QtCore import QSettings  # noqa: E402
 from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 
 from core.estimates import Alternative, MarketValues, OperatingCosts, Study  # noqa: E402
@@ -33,41 +32,9 @@ from desktop_app.main_window import MainWindow  # noqa: E402
 from desktop_app.prefs import Preferences  # noqa: E402
 from desktop_app.sources import demo_path  # noqa: E402
 from desktop_app.worker import FleetJob  # noqa: E402
+from tests.gui_support import FALLBACK_DEMO, answer_questions, open_window  # noqa: E402
 
-FALLBACK_DEMO = Path(__file__).resolve().parents[1] / "desktop_app" / "demo_fallback.json"
-
-
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    """Settings, recovery files and logs in tmp; any unplanned dialog fails the test."""
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    monkeypatch.setattr(QMessageBox, "exec", lambda self: refuse(self, self.text()))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    from PySide6.QtWidgets import QInputDialog
-
-    monkeypatch.setattr(QInputDialog, "getText", staticmethod(refuse))
-    yield tmp_path
-
-
-def make_window(qtbot, path: str | Path | None = None) -> MainWindow:
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(path or FALLBACK_DEMO))
-    assert window.wait_for_jobs()
-    return window
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 def chart_data(window: MainWindow):
@@ -99,7 +66,7 @@ def press_brake_study(period: int | None = None) -> Study:
 
 # --------------------------------------------------------------------------- opening
 def test_opens_demo_with_register_and_results(qtbot):
-    window = make_window(qtbot, demo_path())
+    window = open_window(qtbot, demo_path())
     assert window.doc.entries, "the demo has assets"
     assert window.current_result is not None
     keys = window.register.visible_keys()
@@ -111,7 +78,7 @@ def test_opens_demo_with_register_and_results(qtbot):
 
 
 def test_register_filter_sort_and_states(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.register.filter_edit.setText("Millbrook")
     keys = window.register.visible_keys()
     assert keys and all(window.doc.entry(k).site == "Millbrook" for k in keys)
@@ -137,7 +104,7 @@ def test_recommendation_states_read_the_result():
 
 # --------------------------------------------------------------------------- editing
 def test_edit_recomputes_results_and_chart_then_undo_restores(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     before_study = window.current_entry().study
     before_chart = chart_data(window)
     before_rv = window.current_result.recommendation.replacement_value
@@ -160,7 +127,7 @@ def test_edit_recomputes_results_and_chart_then_undo_restores(qtbot):
 
 
 def test_invalid_entry_is_refused_with_its_message_and_old_value_kept(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     before = window.current_entry().study
     life = alt_editor(window).life_edit
     type_into(life, "2.5")
@@ -178,7 +145,7 @@ def test_invalid_entry_is_refused_with_its_message_and_old_value_kept(qtbot):
 
 
 def test_core_refusal_is_named_and_nothing_changes(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     before = window.current_entry().study
     name = alt_editor(window, 1).name_edit
     type_into(name, before.defender.name)
@@ -188,7 +155,7 @@ def test_core_refusal_is_named_and_nothing_changes(qtbot):
 
 
 def test_table_cell_edits_merge_into_one_undo_step(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     ed = alt_editor(window)
     model = ed.model
     before = window.current_entry().study
@@ -212,7 +179,7 @@ def test_table_cell_edits_merge_into_one_undo_step(qtbot):
 
 
 def test_generators_fill_the_table(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     ed = alt_editor(window)
     type_into(ed.decline_edit, "50")
     s = window.current_entry().study.defender
@@ -224,7 +191,7 @@ def test_generators_fill_the_table(qtbot):
 
 
 def test_add_rename_remove_challenger(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     n = len(window.current_entry().study.challengers)
     window.editor.add_challenger()
     study = window.current_entry().study
@@ -242,7 +209,7 @@ def test_add_rename_remove_challenger(qtbot):
 def test_study_period_selector_changes_the_recommendation(qtbot, tmp_path):
     path = tmp_path / "brake.json"
     path.write_text(dump_study_document([press_brake_study()]), encoding="utf-8")
-    window = make_window(qtbot, path)
+    window = open_window(qtbot, path)
     assert window.current_result.recommendation.action == "replace"
     settings = window.editor.settings
     settings.period_mode.setCurrentIndex(1)
@@ -256,7 +223,7 @@ def test_study_period_selector_changes_the_recommendation(qtbot, tmp_path):
 
 
 def test_tax_and_inflation_settings_go_through_core(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     settings = window.editor.settings
     settings.tax_mode.setCurrentIndex(1)
     study = window.current_entry().study
@@ -272,7 +239,7 @@ def test_tax_and_inflation_settings_go_through_core(qtbot):
 
 # --------------------------------------------------------------------------- files
 def test_save_and_reopen_round_trips(qtbot, tmp_path, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     type_into(alt_editor(window).price_edit, "21,500")
     target = tmp_path / "saved.json"
     monkeypatch.setattr(QFileDialog, "getSaveFileName",
@@ -282,45 +249,36 @@ def test_save_and_reopen_round_trips(qtbot, tmp_path, monkeypatch):
     assert str(target) in window.windowTitle() or "saved.json" in window.windowTitle()
     saved = load_study_file(target)
     assert saved == window.doc.studies()
-    other = make_window(qtbot, target)
+    other = open_window(qtbot, target)
     assert other.doc.studies() == window.doc.studies()
     assert Preferences().recent()[0] == str(target)
 
 
 def test_closing_with_unsaved_changes_asks(qtbot, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.show()
     type_into(alt_editor(window).price_edit, "19,000")
-    asked = []
-
-    def answer(button):
-        def question(*args, **kwargs):
-            asked.append(args[2])
-            return button
-        return staticmethod(question)
-
-    monkeypatch.setattr(QMessageBox, "question", answer(QMessageBox.StandardButton.Cancel))
+    asked = answer_questions(monkeypatch, QMessageBox.StandardButton.Cancel)
     assert not window.close()
     assert window.isVisible() and asked
-    monkeypatch.setattr(QMessageBox, "question", answer(QMessageBox.StandardButton.Discard))
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Discard, asked)
     assert window.close()
     assert len(asked) == 2
 
 
 def test_autosave_and_recovery_after_a_crash(qtbot, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     type_into(alt_editor(window).price_edit, "12,345")
     written = window.autosave()
     assert written is not None and written.exists()
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.StandardButton.Yes))
-    again = make_window(qtbot)
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Yes)
+    again = open_window(qtbot)
     assert again.isWindowModified()
     assert again.current_entry().study.defender.price == 12345.0
 
 
 def test_unexpected_error_is_logged_saved_and_reported(qtbot, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     type_into(alt_editor(window).price_edit, "17,000")
     shown = []
     monkeypatch.setattr(QMessageBox, "exec", lambda self: shown.append(self.informativeText()))
@@ -341,7 +299,7 @@ def test_unexpected_error_is_logged_saved_and_reported(qtbot, monkeypatch):
 def test_preferences_currency_shows_in_headers(qtbot):
     prefs = Preferences()
     prefs.currency = "$"
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     ed = alt_editor(window)
     from PySide6.QtCore import Qt
 
@@ -366,7 +324,7 @@ def test_fleet_job_reports_and_cancels(qtbot):
 
 
 def test_new_document_and_not_yet_studied_asset(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.new_document()
     assert len(window.doc.entries) == 1 and window.doc.path is None
     entry = window.current_entry()
@@ -410,7 +368,7 @@ def test_demo_fallback_is_a_valid_study_file():
 
 
 def test_export_tables_to_csv_and_xlsx(qtbot, tmp_path, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     for name in ("tables.csv", "tables.xlsx"):
         target = tmp_path / name
         monkeypatch.setattr(QFileDialog, "getSaveFileName",
@@ -426,23 +384,22 @@ def test_workbook_edit_save_reopen(qtbot, tmp_path):
     demo = pytest.importorskip("core.demo")
     book = tmp_path / "fleet.tenure"
     demo.build_demo(book)
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     assert window.doc.kind == "workbook" and len(window.doc.sites()) >= 2
     key = window.current_key
     type_into(alt_editor(window).price_edit, "4,321")
     assert window.save()
-    again = make_window(qtbot, book)
+    again = open_window(qtbot, book)
     assert again.doc.entry(key).study.defender.price == 4321.0
     assert again.doc.entry(key).study == window.doc.entry(key).study
 
 
 def test_untitled_work_is_offered_back_at_start(qtbot, monkeypatch):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.new_document()
     type_into(alt_editor(window).price_edit, "23,456")
     assert window.autosave() is not None
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.StandardButton.Yes))
+    answer_questions(monkeypatch, QMessageBox.StandardButton.Yes)
     again = MainWindow(Preferences(), deferred=True)
     qtbot.addWidget(again, before_close_func=lambda w: w.discard_changes())
     again.finish_startup(str(FALLBACK_DEMO))
@@ -462,7 +419,7 @@ def test_preferences_dialog_keeps_values_in_qsettings(qtbot):
     dialog.apply()
     again = Preferences()
     assert again.default_marr == 0.125 and again.currency == "£" and again.page_size == "Letter"
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.new_document()
     assert window.current_entry().study.marr == 0.125
     assert alt_editor(window).price_label.text() == "Market value today (£)"
@@ -471,7 +428,7 @@ def test_preferences_dialog_keeps_values_in_qsettings(qtbot):
 def test_register_sorts_by_recommendation(qtbot):
     from PySide6.QtCore import Qt
 
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.register.view.sortByColumn(1, Qt.SortOrder.AscendingOrder)
     states = [window.doc.state(k).sort_key for k in window.register.visible_keys()]
     by_site: dict[str, list] = {}
@@ -482,7 +439,7 @@ def test_register_sorts_by_recommendation(qtbot):
 
 def test_memo_action_and_risk_tab_are_wired(qtbot, monkeypatch):
     memo = pytest.importorskip("desktop_app.memo_dialog")
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     opened = []
     monkeypatch.setattr(memo.IssueMemoDialog, "exec",
                         lambda self: opened.append(self.result.study.title) or 0)
@@ -502,7 +459,7 @@ def test_study_with_risk_trials_recomputes_off_the_gui_thread(qtbot, tmp_path):
                                       Distribution("triangular", (80000.0, 96000.0, 120000.0))),)))
     path = tmp_path / "risky.json"
     path.write_text(dump_study_document([study]), encoding="utf-8")
-    window = make_window(qtbot, path)
+    window = open_window(qtbot, path)
     assert window.current_result is not None and window.current_result.risk is not None
     type_into(alt_editor(window).price_edit, "25,000")
     qtbot.waitUntil(lambda: window.current_result is not None
@@ -513,7 +470,7 @@ def test_study_with_risk_trials_recomputes_off_the_gui_thread(qtbot, tmp_path):
 def test_add_and_remove_asset_with_undo(qtbot, monkeypatch):
     from PySide6.QtWidgets import QInputDialog
 
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     n = len(window.doc.entries)
     monkeypatch.setattr(QInputDialog, "getText",
                         staticmethod(lambda *a, **k: ("Millbrook — Spare compressor", True)))
@@ -546,7 +503,7 @@ def test_a_last_file_gone_bad_falls_back_to_the_demo(qtbot, tmp_path, monkeypatc
 
 
 def test_fitted_estimates_apply_to_the_defender_with_undo(qtbot):
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     key = window.current_key
     before = window.current_entry().study
     assert window.apply_fitted_estimates(key, OperatingCosts(first=20000.0, gradient=4000.0),
@@ -564,16 +521,10 @@ def test_ctrl_c_in_the_terminal_closes_the_window_asking_about_unsaved_work(qtbo
 
     from desktop_app.app import install_interrupt_handler
 
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     window.show()
     window._forced_dirty = True
-    asked = []
-
-    def question(*args, **kwargs):
-        asked.append(args[2])
-        return QMessageBox.StandardButton.Cancel
-
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    asked = answer_questions(monkeypatch, QMessageBox.StandardButton.Cancel)
     previous = signal.getsignal(signal.SIGINT)
     try:
         install_interrupt_handler(window)
@@ -581,8 +532,7 @@ def test_ctrl_c_in_the_terminal_closes_the_window_asking_about_unsaved_work(qtbo
         qtbot.waitUntil(lambda: bool(asked), timeout=3000)
         assert "unsaved changes" in asked[0]
         assert window.isVisible()  # Cancel keeps it open, as the close button does
-        monkeypatch.setattr(QMessageBox, "question",
-                            staticmethod(lambda *a, **k: QMessageBox.StandardButton.Discard))
+        answer_questions(monkeypatch, QMessageBox.StandardButton.Discard)
         os.kill(os.getpid(), signal.SIGINT)
         qtbot.waitUntil(lambda: not window.isVisible(), timeout=3000)
     finally:
@@ -600,17 +550,11 @@ def test_read_only_workbook_opens_read_only_and_offers_save_as(qtbot, monkeypatc
     build_demo(book)
     monkeypatch.setattr(wbmod, "write_problem", lambda p: "the file is read-only")
     monkeypatch.setattr(model, "write_problem", lambda p: "the file is read-only")
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     assert "read-only: the file is read-only" in window.last_message
     assert "Save As" in window.last_message
     window._forced_dirty = True
-    offered = []
-
-    def question(*args, **kwargs):
-        offered.append(args[2])
-        return QMessageBox.StandardButton.No
-
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    offered = answer_questions(monkeypatch, QMessageBox.StandardButton.No)
     before = book.read_bytes()
     window.doc.entries[0].saved = None  # something to save
     assert not window._save_to(str(book))
@@ -641,7 +585,7 @@ def test_trust_a_colleagues_certificate_shows_its_fingerprint(qtbot, monkeypatch
             return result
         return exec_
 
-    window = make_window(qtbot)
+    window = open_window(qtbot)
     monkeypatch.setattr(QFileDialog, "getOpenFileName", staticmethod(lambda *a, **k: (str(cert), "")))
     monkeypatch.setattr(trust_dialog.TrustCertificateDialog, "exec",
                         answer(QDialog.DialogCode.Rejected))

@@ -14,15 +14,12 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 import dataclasses  # noqa: E402
 import json  # noqa: E402
-import re  # noqa: E402
-import sqlite3  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import pytest  # noqa: E402
 
 pytest.importorskip("pytestqt")
-from PySide6.QtCore import QSettings  # noqa: E402
-from PySide6.QtWidgets import QDialog, QFileDialog, QInputDialog, QMessageBox  # noqa: E402
+from PySide6.QtWidgets import QDialog, QFileDialog, QMessageBox  # noqa: E402
 
 from core.workbook import Asset, Workbook  # noqa: E402
 from core.workbook.fleetedit import add_studied_asset  # noqa: E402
@@ -34,51 +31,19 @@ from desktop_app.fleet_actions import (  # noqa: E402
     RetireDialog,
 )
 from desktop_app.main_window import MainWindow  # noqa: E402
-from desktop_app.prefs import Preferences  # noqa: E402
 from tests.conftest import BASE_STUDY, parse_one  # noqa: E402
+from tests.gui_support import new_window, open_window  # noqa: E402
+from tests.workbook_support import integrity, sql_dump  # noqa: E402
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = ROOT / "resources" / "examples"
 
 
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    for name in ("getText", "getItem"):
-        monkeypatch.setattr(QInputDialog, name, staticmethod(refuse))
-    monkeypatch.setattr(QDialog, "exec", lambda self: refuse(self, self.windowTitle()))
-    yield tmp_path
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return [re.sub(r"'\d{4}-\d\d-\d\dT[0-9:.]+\+00:00'", "'T'", line)
-                for line in conn.iterdump()]
-    finally:
-        conn.close()
-
-
-def integrity(path: Path) -> str:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("PRAGMA integrity_check").fetchone()[0]
-    finally:
-        conn.close()
+    return sql_dump(path, mask_times=True)
 
 
 def study(title: str):
@@ -94,14 +59,6 @@ def book(tmp_path: Path) -> Path:
             add_studied_asset(wb, Asset(tag, "press", site, "press brake"),
                               study(f"{site} — {tag} press"))
     return p
-
-
-def make_window(qtbot, path: Path) -> MainWindow:
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    assert window.open_path(str(path))
-    assert window.wait_for_jobs()
-    return window
 
 
 def accept(monkeypatch, cls, setup):
@@ -124,8 +81,7 @@ def undo_restores(window: MainWindow, book: Path, before: list[str]) -> None:
 
 # --------------------------------------------------------------------------- new workbook
 def test_new_workbook_dialog_keeps_input_on_refusal(qtbot, tmp_path, monkeypatch) -> None:
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
+    window = new_window(qtbot)
     target = tmp_path / "plant.tenure"
     target.write_text("not mine")
 
@@ -152,7 +108,7 @@ def test_new_workbook_dialog_keeps_input_on_refusal(qtbot, tmp_path, monkeypatch
 
 # --------------------------------------------------------------------------- sites
 def test_sites_add_rename_remove_with_undo(qtbot, book, monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     before = dump(book)
     assert window.fleet.add_site("Kestrel Road")
     model = window.register.model
@@ -176,7 +132,7 @@ def test_sites_add_rename_remove_with_undo(qtbot, book, monkeypatch) -> None:
 
 # --------------------------------------------------------------------------- assets
 def test_add_asset_blank_study_edit_move_retire_with_undo(qtbot, book, monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     before = dump(book)
 
     def fill(d: AssetDialog) -> None:
@@ -244,7 +200,7 @@ def test_add_asset_blank_study_edit_move_retire_with_undo(qtbot, book, monkeypat
 
 
 def test_remove_asset_refused_when_it_holds_studies(qtbot, book, monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     warnings = []
     monkeypatch.setattr(QMessageBox, "warning", staticmethod(
         lambda *a, **k: warnings.append(a[2])))
@@ -257,7 +213,7 @@ def test_remove_asset_refused_when_it_holds_studies(qtbot, book, monkeypatch) ->
 
 # --------------------------------------------------------------------------- catalogue
 def test_catalogue_preview_then_apply_with_undo(qtbot, book, monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     monkeypatch.setattr(QDialog, "exec", lambda self: 0)
     dialog = CatalogueDialog(window.fleet, window)
     assert dialog.listing.count() == 1 and dialog.name.text() == "New press"
@@ -281,7 +237,7 @@ def test_catalogue_preview_then_apply_with_undo(qtbot, book, monkeypatch) -> Non
 
 # --------------------------------------------------------------------------- asset list
 def test_asset_list_import_preview_rejected_rows_and_undo(qtbot, book, monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     dialog = AssetListDialog(window.fleet, window)
     assert dialog.load_file(EXAMPLES / "equipment_list.csv")
     assert dialog.combos["depreciation"].currentText() == "Tax depreciation"
@@ -304,7 +260,7 @@ def test_save_as_turns_a_study_file_into_a_workbook(qtbot, tmp_path, monkeypatch
     src = tmp_path / "one.json"
     src.write_text(json.dumps({"format": "tenure-study", "version": 1, **BASE_STUDY,
                                "title": "Kestrel Road — PB-5 press line"}))
-    window = make_window(qtbot, src)
+    window = open_window(qtbot, src)
     out = tmp_path / "one.tenure"
     monkeypatch.setattr(QFileDialog, "getSaveFileName",
                         staticmethod(lambda *a, **k: (str(out), "Workbooks (*.tenure)")))
@@ -320,7 +276,7 @@ def test_save_as_turns_a_study_file_into_a_workbook(qtbot, tmp_path, monkeypatch
 
 def test_add_asset_from_a_study_file_then_remove_with_undo(qtbot, book, tmp_path,
                                                            monkeypatch) -> None:
-    window = make_window(qtbot, book)
+    window = open_window(qtbot, book)
     src = tmp_path / "two.json"
     src.write_text(json.dumps({"format": "tenure-study", "version": 1, "studies": [
         {**BASE_STUDY, "title": "first"}, {**BASE_STUDY, "title": "Kestrel Road — second"}]}))

@@ -17,6 +17,7 @@ from core.demo import build_demo  # noqa: E402
 from core.estimates import MarketValues, OperatingCosts  # noqa: E402
 from core.workbook import Workbook, WorkbookInUse  # noqa: E402
 from desktop_app.history_dialog import CostHistoryDialog, guess_columns  # noqa: E402
+from tests.gui_support import answer_questions  # noqa: E402
 
 TAG = "PU-04"  # demo pump, in service 2020-08-17 (resources/demo/fleet.json)
 FIRST, GRADIENT, PRICE, DECLINE = 5000.0, 800.0, 30000.0, 0.15
@@ -261,9 +262,7 @@ def test_second_import_of_the_same_file_asks(qtbot, workbook, tmp_path, warnings
     assert first.save()
     with Workbook.open(workbook) as wb:
         count = len(wb.history(TAG))
-    asked = []
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(
-        lambda *a, **k: asked.append(a[2]) or QMessageBox.StandardButton.Yes))
+    asked = answer_questions(monkeypatch, QMessageBox.StandardButton.Yes)
     again = make_dialog(qtbot, workbook, tmp_path)
     again.check()
     assert again.save()

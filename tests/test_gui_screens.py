@@ -16,41 +16,22 @@ import os
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 import pytest  # noqa: E402
-from PySide6.QtCore import QPoint, QRect, QSettings, QSize  # noqa: E402
+from PySide6.QtCore import QPoint, QRect, QSize  # noqa: E402
 from PySide6.QtWidgets import (  # noqa: E402
     QAbstractButton,
-    QFileDialog,
     QLabel,
-    QMessageBox,
     QWidget,
 )
 
 from core.demo import build_demo  # noqa: E402
 from desktop_app import screen  # noqa: E402
 from desktop_app.main_window import MainWindow  # noqa: E402
-from desktop_app.prefs import Preferences  # noqa: E402
+from tests.gui_support import open_window  # noqa: E402
 
 SIZES = [(1366, 768), (1920, 1080)]
 
 
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    yield tmp_path
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 @pytest.fixture(scope="module")
@@ -64,10 +45,8 @@ def settle(qtbot, window: MainWindow) -> None:
     qtbot.wait(20)
 
 
-def open_window(qtbot, demo, size: tuple[int, int] | None = None) -> MainWindow:
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(demo), offer_recovery=False)
+def laid_out_window(qtbot, demo, size: tuple[int, int] | None = None) -> MainWindow:
+    window = open_window(qtbot, demo, offer_recovery=False)
     if size is not None:
         window.resize(*size)
     window.show()
@@ -110,7 +89,7 @@ def form_labels(widget: QWidget) -> list[QLabel]:
 
 
 def test_minimum_and_first_size_fit_small_screens(qtbot, demo):
-    window = open_window(qtbot, demo)
+    window = laid_out_window(qtbot, demo)
     hint = window.minimumSizeHint().expandedTo(window.minimumSize())
     assert hint.width() <= 1280 and hint.height() <= 720, hint
     # The first size fits the available area of the screen it opens on (hand calculation:
@@ -125,7 +104,7 @@ def test_minimum_and_first_size_fit_small_screens(qtbot, demo):
 
 @pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
 def test_no_text_clipped(qtbot, demo, tmp_path, size):
-    window = open_window(qtbot, demo, size)
+    window = laid_out_window(qtbot, demo, size)
     assert window.size() == QSize(*size)
     shot = tmp_path / f"window-{size[0]}.png"
     assert window.grab().save(str(shot))
@@ -200,7 +179,7 @@ def test_no_text_clipped(qtbot, demo, tmp_path, size):
 
 
 def test_panes_collapse_and_layout_is_remembered(qtbot, demo):
-    window = open_window(qtbot, demo, (1366, 768))
+    window = laid_out_window(qtbot, demo, (1366, 768))
     assert window.splitter.childrenCollapsible() and window.right_split.childrenCollapsible()
     total = sum(window.splitter.sizes())
     window.splitter.setSizes([0, total // 2, total - total // 2])  # the register hidden
@@ -209,7 +188,7 @@ def test_panes_collapse_and_layout_is_remembered(qtbot, demo):
     sizes = window.splitter.sizes()
     window.discard_changes()
     window.close()
-    again = open_window(qtbot, demo)
+    again = laid_out_window(qtbot, demo)
     # The offscreen screen is smaller than 1366 pixels, so the restored window is cut to it;
     # the register stays hidden and the other two panes keep their shares.
     restored = again.splitter.sizes()

@@ -13,6 +13,9 @@ import pytest  # noqa: E402
 from core.demo import build_demo  # noqa: E402
 from core.workbook import Workbook  # noqa: E402
 from desktop_app.study_years import COLUMNS, StudyYearsDialog, differences  # noqa: E402
+from tests.gui_support import open_window  # noqa: E402
+
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 @pytest.fixture(scope="module")
@@ -86,16 +89,11 @@ def test_differences_words_challengers():
 
 def test_window_menu_action(qtbot, demo, monkeypatch, tmp_path):
     from desktop_app import study_years
-    from desktop_app.main_window import MainWindow
-    from desktop_app.prefs import Preferences
 
     path, tag, years, _ = demo
     copy = tmp_path / "w.tenure"
     copy.write_bytes(path.read_bytes())
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(copy))
-    assert window.wait_for_jobs()
+    window = open_window(qtbot, copy)
     window.select_asset(tag)
     assert window.study_years_action.isEnabled()
     opened = []

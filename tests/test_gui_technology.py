@@ -10,42 +10,18 @@ import os
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 import dataclasses  # noqa: E402
-from pathlib import Path  # noqa: E402
 
 import pytest  # noqa: E402
 
 pytest.importorskip("pytestqt")
-from PySide6.QtCore import QSettings  # noqa: E402
-from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 
 from core.estimates import Technology  # noqa: E402
 from core.study import run_study  # noqa: E402
 from core.studyfile import dump_study_document, load_study_file  # noqa: E402
 from desktop_app.technology_view import TechnologyView  # noqa: E402
+from tests.gui_support import FALLBACK_DEMO, open_window  # noqa: E402
 
-FALLBACK_DEMO = Path(__file__).resolve().parents[1] / "desktop_app" / "demo_fallback.json"
-
-
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    """Settings and recovery files in tmp; any unplanned dialog fails the test."""
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    monkeypatch.setattr(QMessageBox, "exec", lambda self: refuse(self, self.text()))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    yield tmp_path
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 def _planned_study(horizon: int = 9):
@@ -93,15 +69,9 @@ def test_view_without_a_plan_says_how_to_get_one(qtbot) -> None:
 
 
 def test_window_has_the_tab_and_shows_the_plan(qtbot, tmp_path) -> None:
-    from desktop_app.main_window import MainWindow
-    from desktop_app.prefs import Preferences
-
     path = tmp_path / "planned.json"
     path.write_text(dump_study_document([_planned_study(7)]), encoding="utf-8")
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(path))
-    assert window.wait_for_jobs()
+    window = open_window(qtbot, path)
     tabs = [window.right_tabs.tabText(i) for i in range(window.right_tabs.count())]
     assert "Technology plan" in tabs
     plan = window.current_result.technology

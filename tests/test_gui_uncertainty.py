@@ -11,8 +11,6 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 import json  # noqa: E402
 
 import pytest  # noqa: E402
-from PySide6.QtCore import QSettings  # noqa: E402
-from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 
 from core.estimates import (  # noqa: E402
     Alternative,
@@ -24,31 +22,14 @@ from core.estimates import (  # noqa: E402
 from core.risk.labels import input_label, uncertain_inputs  # noqa: E402
 from core.studyfile import dump_study_document, load_study_file  # noqa: E402
 from desktop_app.main_window import MainWindow  # noqa: E402
-from desktop_app.prefs import Preferences  # noqa: E402
 from desktop_app.uncertainty_editor import KINDS, default_distribution  # noqa: E402
+from tests.gui_support import open_window  # noqa: E402
 
 GRADIENT = "PB-2.operating_costs.gradient"
 PRICE = "Servo brake.first_cost"
 
 
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    yield tmp_path
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 def press_brake_study() -> Study:
@@ -59,11 +40,8 @@ def press_brake_study() -> Study:
     return Study("Kestrel Road — Press brake PB-2", 0.09, d, (c,))
 
 
-def open_window(qtbot, path) -> MainWindow:
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    assert window.open_path(str(path), offer_recovery=False)
-    assert window.wait_for_jobs()
+def open_uncertainty(qtbot, path) -> MainWindow:
+    window = open_window(qtbot, path, offer_recovery=False)
     window.editor.pages.setCurrentWidget(window.editor.uncertainty)
     return window
 
@@ -91,7 +69,7 @@ def type_param(window: MainWindow, address: str, k: int, text: str) -> None:
 
 
 def test_inputs_named_in_words_and_listed_from_core(qtbot, study_file):
-    window = open_window(qtbot, study_file)
+    window = open_uncertainty(qtbot, study_file)
     ed = window.editor.uncertainty
     # The defender has a gradient, the challenger a growth rate: core decides which apply.
     assert ed.addresses == uncertain_inputs(press_brake_study()) == (
@@ -106,7 +84,7 @@ def test_inputs_named_in_words_and_listed_from_core(qtbot, study_file):
 
 
 def test_choose_type_undo_and_round_trip(qtbot, study_file, tmp_path):
-    window = open_window(qtbot, study_file)
+    window = open_uncertainty(qtbot, study_file)
     choose(window, GRADIENT, "triangular")
     unc = study_of(window).uncertainty
     # hand calculation: 3500 - 10 % = 3150, + 20 % = 4200
@@ -149,7 +127,7 @@ def test_choose_type_undo_and_round_trip(qtbot, study_file, tmp_path):
                    "marr": {"normal": [0.09, 0.015]}}}
     assert load_study_file(out)[0] == study_of(window)
     # study JSON -> editor: a new window shows the same distributions in the same words
-    again = open_window(qtbot, out)
+    again = open_uncertainty(qtbot, out)
     ed2 = again.editor.uncertainty
     row = ed2.row(GRADIENT)
     assert row.kind.currentText() == "Triangular"
@@ -179,7 +157,7 @@ def test_choose_type_undo_and_round_trip(qtbot, study_file, tmp_path):
     ("marr", "pert", 0, "-120", "MARR, low: must be > -100 %"),
 ])
 def test_refusals_name_the_field(qtbot, study_file, address, kind, k, text, words):
-    window = open_window(qtbot, study_file)
+    window = open_uncertainty(qtbot, study_file)
     choose(window, address, kind)
     before = study_of(window)
     type_param(window, address, k, text)
@@ -190,7 +168,7 @@ def test_refusals_name_the_field(qtbot, study_file, address, kind, k, text, word
 
 
 def test_switching_a_generator_drops_an_input_it_no_longer_has(qtbot, study_file):
-    window = open_window(qtbot, study_file)
+    window = open_uncertainty(qtbot, study_file)
     choose(window, GRADIENT, "uniform")
     assert study_of(window).uncertainty is not None
     window.editor.pages.setCurrentIndex(0)

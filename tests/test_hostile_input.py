@@ -11,7 +11,6 @@ error", never a warning line. The bounds themselves are our own rule
 from __future__ import annotations
 
 import copy
-import hashlib
 import json
 import subprocess
 import sys
@@ -26,6 +25,7 @@ from core.cli import main
 from core.errors import StudyError, error_line, escape_text
 from core.studyfile import MAX_AMOUNT, load_study_file, loads_json
 from tests.conftest import document
+from tests.workbook_support import digest
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -176,13 +176,13 @@ def test_a_flipped_bit_in_a_workbook_text_column_names_table_and_row(capsys, tmp
     i = data.find(b"Cooling water")
     data[i + 3] ^= 0x80  # one flipped bit: 'l' (0x6c) -> 0xec, a broken UTF-8 sequence
     book.write_bytes(bytes(data))
-    before = hashlib.sha256(book.read_bytes()).hexdigest()
+    before = digest(book)
     for argv in (["study", str(book)], ["study", str(book), "--json"]):
         assert main(argv) == 2
         err = capsys.readouterr().err
         _one_line(err)
         assert "table assets, row 2 (tag P-7), column description is not valid UTF-8" in err
-    assert hashlib.sha256(book.read_bytes()).hexdigest() == before
+    assert digest(book) == before
 
 
 def test_escape_text_is_one_line_for_every_character():

@@ -12,29 +12,14 @@ from pathlib import Path  # noqa: E402
 import pytest  # noqa: E402
 
 pytest.importorskip("pytestqt")
-from PySide6.QtCore import QSettings  # noqa: E402
-from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 
 from desktop_app.main_window import MainWindow  # noqa: E402
-from desktop_app.prefs import Preferences  # noqa: E402
+from tests.gui_support import open_window  # noqa: E402
 
 BUDGET = "200000,200000,120000,200000,200000,200000,200000,200000,200000,200000"
 
 
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise AssertionError(f"unexpected dialog: {args[1:3]}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
-    yield tmp_path
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 @pytest.fixture()
@@ -42,11 +27,7 @@ def window(qtbot, tmp_path: Path) -> MainWindow:
     from core.demo import build_demo
 
     path = build_demo(tmp_path / "demo.tenure")
-    win = MainWindow(Preferences())
-    qtbot.addWidget(win, before_close_func=lambda w: w.discard_changes())
-    win.open_path(str(path))
-    assert win.wait_for_jobs()
-    return win
+    return open_window(qtbot, path)
 
 
 def _solve(qtbot, dialog) -> None:

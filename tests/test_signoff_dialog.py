@@ -12,33 +12,16 @@ import os
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
 import pytest  # noqa: E402
-from PySide6.QtCore import QSettings  # noqa: E402
-from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 
 from core.cli import main  # noqa: E402
 from core.memo.identity import load_identity, new_identity  # noqa: E402
 from core.memo.verify import verify_memo  # noqa: E402
+from tests.gui_support import Unexpected, open_window  # noqa: E402
 
 PASS = "owl-bridge-2026"
 
 
-class Unexpected(AssertionError):
-    pass
-
-
-@pytest.fixture(autouse=True)
-def isolated(tmp_path, monkeypatch):
-    monkeypatch.setenv("TENURE_STATE_DIR", str(tmp_path / "state"))
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope,
-                      str(tmp_path / "settings"))
-
-    def refuse(*args, **kwargs):
-        raise Unexpected(f"unexpected dialog: {args[1:3] if len(args) > 2 else args}")
-
-    for name in ("question", "warning", "critical", "information", "about"):
-        monkeypatch.setattr(QMessageBox, name, staticmethod(refuse))
-    for name in ("getOpenFileName", "getSaveFileName"):
-        monkeypatch.setattr(QFileDialog, name, staticmethod(refuse))
+pytestmark = pytest.mark.usefixtures("isolated")
 
 
 @pytest.fixture(scope="module")
@@ -113,15 +96,10 @@ def test_sign_dialog_shows_the_boxes_and_asks_before_a_mismatched_signer(qtbot, 
 def test_sign_dialog_records_the_signature_in_the_open_workbook(qtbot, setup, tmp_path):
     # the window holds the workbook open for writing; the row goes through that connection
     from core.workbook import Workbook
-    from desktop_app.main_window import MainWindow
-    from desktop_app.prefs import Preferences
     from desktop_app.signoff_dialog import SignMemoDialog
 
     memo, book = _fresh(setup, tmp_path)
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(book), offer_recovery=False)
-    assert window.wait_for_jobs()
+    window = open_window(qtbot, book, offer_recovery=False)
     dlg = SignMemoDialog(window, workbook_path=window.doc.path)
     qtbot.addWidget(dlg)
     dlg.ask_confirm = lambda findings: (_ for _ in ()).throw(Unexpected("no check expected"))
@@ -195,8 +173,6 @@ def test_verify_dialog_names_a_file_that_is_not_a_memo(qtbot, tmp_path):
 
 def test_window_menu_opens_sign_and_verify(qtbot, setup, tmp_path, monkeypatch):
     from desktop_app import signoff_dialog
-    from desktop_app.main_window import MainWindow
-    from desktop_app.prefs import Preferences
 
     _, book = _fresh(setup, tmp_path)
     opened = []
@@ -204,10 +180,7 @@ def test_window_menu_opens_sign_and_verify(qtbot, setup, tmp_path, monkeypatch):
                         lambda self: opened.append(("sign", self.workbook_path)) or 0)
     monkeypatch.setattr(signoff_dialog.VerifyMemoDialog, "exec",
                         lambda self: opened.append(("verify", None)) or 0)
-    window = MainWindow(Preferences())
-    qtbot.addWidget(window, before_close_func=lambda w: w.discard_changes())
-    window.open_path(str(book), offer_recovery=False)
-    assert window.wait_for_jobs()
+    window = open_window(qtbot, book, offer_recovery=False)
     texts = {a.text(): a for a in window.menuBar().actions()[0].menu().actions()}
     texts["&Sign a memo…"].trigger()
     texts["&Verify a memo…"].trigger()

@@ -7,7 +7,6 @@ pid and host, atomic replace), "hand calculation" for the expected states.
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import signal
@@ -39,6 +38,7 @@ from core.workbook import (
     restore_recovery,
 )
 from core.workbook import schema as schema_mod
+from tests.workbook_support import digest, pump_workbook
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -51,21 +51,13 @@ def study(price: float = 9000.0, title: str = "Millbrook — P-7 pump") -> Study
     return Study(title, 0.1, d, (c,))
 
 
-def digest(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
-
-
 def siblings(path: Path) -> set[str]:
     return {p.name for p in path.parent.iterdir()}
 
 
 @pytest.fixture()
 def book(tmp_path: Path) -> Path:
-    p = tmp_path / "plant.tenure"
-    with Workbook.create(p, company="Harrowgate Fabrication Ltd.") as wb:
-        wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-        wb.save_study("P-7", 2025, study())
-    return p
+    return pump_workbook(tmp_path / "plant.tenure", study())
 
 
 def run_child(code: str, *args: str, wait: bool = True) -> subprocess.Popen | subprocess.CompletedProcess:
@@ -74,6 +66,18 @@ def run_child(code: str, *args: str, wait: bool = True) -> subprocess.Popen | su
     if wait:
         return subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=120)
     return subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+
+
+def old_workbook(path: Path, schema: int) -> tuple[Workbook, str]:
+    """A workbook written at an older ``schema``, still open: site Millbrook, pump P-7 with its
+    2025 study and one signed-memo row; returns it and the study's fingerprint."""
+    wb = Workbook.create(path, company="Harrowgate", schema=schema)
+    assert wb.schema_version == schema
+    wb.add_site(Site("Millbrook"))
+    wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
+    fp = wb.save_study("P-7", 2025, study())
+    wb.record_memo("P-7", 2025, fp, "A. Signer", "memo.pdf", "2025-04-01T10:00:00+00:00")
+    return wb, fp
 
 
 # --------------------------------------------------------------------------- schema
@@ -90,12 +94,7 @@ def test_new_workbook_carries_version_and_application_id(book: Path) -> None:
 
 def test_migration_from_v1_keeps_data_and_adds_v2(tmp_path: Path) -> None:
     p = tmp_path / "old.tenure"
-    wb = Workbook.create(p, company="Harrowgate", schema=1)
-    assert wb.schema_version == 1
-    wb.add_site(Site("Millbrook"))
-    wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-    fp = wb.save_study("P-7", 2025, study())
-    wb.record_memo("P-7", 2025, fp, "A. Signer", "memo.pdf", "2025-04-01T10:00:00+00:00")
+    wb, _ = old_workbook(p, schema=1)
     wb.add_history([HistoryRow("P-7", 1, 6100.0)])
     wb.close()
     assert sqlite3.connect(p).execute("PRAGMA user_version").fetchone()[0] == 1
@@ -119,12 +118,7 @@ def test_migration_from_v1_keeps_data_and_adds_v2(tmp_path: Path) -> None:
 def test_migration_from_v3_adds_the_role_and_certificate_of_each_memo_row(tmp_path: Path) -> None:
     # schema 4 (docs/method.md §8): a later signature is its own register row with its role
     p = tmp_path / "v3.tenure"
-    wb = Workbook.create(p, company="Harrowgate", schema=3)
-    assert wb.schema_version == 3
-    wb.add_site(Site("Millbrook"))
-    wb.add_asset(Asset("P-7", "Cooling water pump", "Millbrook", "pump"))
-    fp = wb.save_study("P-7", 2025, study())
-    wb.record_memo("P-7", 2025, fp, "A. Signer", "memo.pdf", "2025-04-01T10:00:00+00:00")
+    wb, fp = old_workbook(p, schema=3)
     assert (wb.memos()[0].role, wb.memos()[0].certificate_sha256) == ("", "")
     wb.close()
     before = digest(p)

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
-import sqlite3
 from pathlib import Path
 
 import pytest
@@ -28,6 +27,7 @@ from core.workbook.fleetedit import (
     restudy,
 )
 from core.workbook.model import depreciation_to_dict, parse_depreciation
+from tests.workbook_support import sql_dump
 
 NEW_PUMP = Alternative("IE4 pump 30 kW", "challenger", 17800.0, 12,
                        MarketValues(decline_rate=0.15), OperatingCosts(first=4000.0, gradient=150.0))
@@ -37,14 +37,6 @@ def pump_study(title: str, price: float = 9000.0, challenger: Alternative = NEW_
     d = Alternative("Old pump", "defender", price, 4, MarketValues(decline_rate=0.2),
                     OperatingCosts(first=6000.0, gradient=400.0))
     return Study(title, 0.1, d, (challenger,))
-
-
-def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return list(conn.iterdump())
-    finally:
-        conn.close()
 
 
 @pytest.fixture()
@@ -65,12 +57,12 @@ def test_migration_from_v2_adds_depreciation_retirement_currency(tmp_path: Path)
     w.add_asset(Asset("PU-1", "pump", "Millbrook", "pump", dt.date(2015, 5, 1), 12600.0))
     w.save_study("PU-1", 2024, pump_study("Millbrook — PU-1 pump"))
     w.close()
-    before = dump(p)
+    before = sql_dump(p)
     with Workbook.open(p) as ro:  # read-only: v2 readable, nothing written
         assert ro.schema_version == 2 and ro.asset("PU-1").depreciation is None
-    assert dump(p) == before
+    assert sql_dump(p) == before
     with Workbook.open(p, write=True) as w:
-        assert w.schema_version == SCHEMA_VERSION == 4
+        assert w.schema_version == SCHEMA_VERSION == 4  # v2 -> v3 -> v4 in one open
         a = w.asset("PU-1")
         assert (a.depreciation, a.retired_on, a.retired_reason) == (None, None, "")
         assert w.meta()["first_year"] == "2024" and w.currency == ""  # earliest stored study
@@ -186,11 +178,11 @@ def test_candidate_catalogue_preview_then_apply(wb: Workbook) -> None:
     wb.retire_asset("PU-3", dt.date(2026, 1, 1), "sold")
     dearer = dataclasses.replace(NEW_PUMP, price=19500.0)
     before = {t: wb.record(t) for t in ("PU-1", "PU-2", "PU-3")}
-    snapshot = dump(wb.path)
+    snapshot = sql_dump(wb.path)
     changes = candidate_changes(wb, "IE4 pump 30 kW", dearer)
     assert [(c.tag, c.year) for c in changes] == [("PU-1", 2025), ("PU-2", 2025)]  # not retired
     assert changes[0].describe() == "PU-1 2025: price 17,800 -> 19,500"
-    assert dump(wb.path) == snapshot  # the preview writes nothing
+    assert sql_dump(wb.path) == snapshot  # the preview writes nothing
     assert candidate_changes(wb, "IE4 pump 30 kW", NEW_PUMP) == []  # same model: no change
     applied = apply_candidate(wb, dearer, "pump")
     assert applied == changes
@@ -211,7 +203,7 @@ def test_candidate_catalogue_preview_then_apply(wb: Workbook) -> None:
 
 
 def test_apply_candidate_is_one_transaction(wb: Workbook, monkeypatch: pytest.MonkeyPatch) -> None:
-    snapshot = dump(wb.path)
+    snapshot = sql_dump(wb.path)
     calls = []
     real = wb.save_study
 
@@ -224,7 +216,7 @@ def test_apply_candidate_is_one_transaction(wb: Workbook, monkeypatch: pytest.Mo
     monkeypatch.setattr(wb, "save_study", failing)
     with pytest.raises(RuntimeError):
         apply_candidate(wb, dataclasses.replace(NEW_PUMP, price=1.0), "pump")
-    assert calls == ["PU-1", "PU-2"] and dump(wb.path) == snapshot
+    assert calls == ["PU-1", "PU-2"] and sql_dump(wb.path) == snapshot
 
 
 # --------------------------------------------------------------------------- years
