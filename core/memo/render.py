@@ -168,8 +168,8 @@ def technology_note(result: Any, currency: str, page: int | None = None) -> str:
                  f"{plan.horizon} years, with the model change rates estimated, waiting is "
                  f"worth {gain} more in present worth than the best plan that replaces now")
     return (f"The technology plan{where} {other}. The recommendation above compares "
-            "today's models only; the technology plan rests on forecasts of how future "
-            "models will cost and run, so weigh both before signing.")
+            "today's models only; the plan rests on forecasts of future models, so weigh "
+            "both before signing.")
 
 
 def yrs(n: int | None) -> str:
@@ -386,11 +386,11 @@ class _Builder:
         bits.append(f"Amounts in {self.cur}; AW is signed (costs negative); EAC = -AW")
         self.add(_p(" | ".join(bits), s["sub"]), Spacer(1, 6))
         facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"))
-        flows = page_one_flowables(facts, self.w, s, r.recommendation.basis)
         note = technology_note(r, self.sym, self.marks.get("technology"))
-        if note:  # before the closing pointer to the cautions
-            flows.insert(len(flows) - 1, _p(note, s["body"]))
-        self.add(*flows)
+        if note:  # in the recommendation box, beside what it qualifies
+            facts = dataclasses.replace(facts, comparison=" ".join(
+                t for t in (facts.comparison, note) if t))
+        self.add(*page_one_flowables(facts, self.w, s, r.recommendation.basis))
 
     def key_figures(self):
         r, s, cur = self.r, self.s, self.cur
@@ -455,8 +455,8 @@ class _Builder:
             facts.append(["Risk: share of simulated trials that say replace",
                           f"{percent(r.risk.probability_replace)} (see Risk)"])
         facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
-        self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
-                                      header=False))
+        self.add(Spacer(1, 4), KeepTogether([_table(facts, [0.32 * self.w, 0.68 * self.w],
+                                                    numeric_from=None, header=False)]))
 
     def chart(self):
         views = basis_views(self.r)
