@@ -138,7 +138,11 @@ def test_study_period_options_are_listed():
     best = max(feasible, key=lambda o: round(o.annual_worth, 2))
     sentence = page_one_facts(res, "£").sentence
     assert f"£{money(-best.annual_worth)}" in sentence and "-" not in sentence.split("£")[1][:1]
-    assert _norm(sentence) in text
+    assert _norm(sentence).removesuffix("(Study-period options).") in text  # + its page
+    # hand calculation: page one points to the page the options table starts on
+    pages = [_norm(pg.extract_text() or "") for pg in PdfReader(io.BytesIO(render_memo(res))).pages]
+    where = next(n for n, t in enumerate(pages, 1) if "Study-period options (5 years)" in t)
+    assert f"(Study-period options, page {where})" in pages[0]
 
 
 def test_after_tax_and_risk_sections_read_the_typed_result():

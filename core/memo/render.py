@@ -385,7 +385,8 @@ class _Builder:
             bits.insert(0, o.organisation)
         bits.append(f"Amounts in {self.cur}; AW is signed (costs negative); EAC = -AW")
         self.add(_p(" | ".join(bits), s["sub"]), Spacer(1, 6))
-        facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"))
+        facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"),
+                               self.marks.get("options"))
         note = technology_note(r, self.sym, self.marks.get("technology"))
         if note:  # in the recommendation box, beside what it qualifies
             facts = dataclasses.replace(facts, comparison=" ".join(
@@ -507,6 +508,7 @@ class _Builder:
         views = [v for v in basis_views(r) if v.options]
         if not views:
             return
+        self.add(PageMarker(self.marks, "options"))
         self.h(f"Study-period options ({yrs(r.study.study_period)})")
         self.add(_p("Keep the defender j years, then the challenger for the remaining years. "
                     f"AW over the whole study period, {cur} per year; the best feasible option "
