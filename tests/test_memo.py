@@ -138,7 +138,11 @@ def test_study_period_options_are_listed():
     best = max(feasible, key=lambda o: round(o.annual_worth, 2))
     sentence = page_one_facts(res, "£").sentence
     assert f"£{money(-best.annual_worth)}" in sentence and "-" not in sentence.split("£")[1][:1]
-    assert _norm(sentence) in text
+    assert _norm(sentence).removesuffix("(Study-period options).") in text  # + its page
+    # hand calculation: page one points to the page the options table starts on
+    pages = [_norm(pg.extract_text() or "") for pg in PdfReader(io.BytesIO(render_memo(res))).pages]
+    where = next(n for n, t in enumerate(pages, 1) if "Study-period options (5 years)" in t)
+    assert f"(Study-period options, page {where})" in pages[0]
 
 
 def test_after_tax_and_risk_sections_read_the_typed_result():
@@ -522,3 +526,58 @@ def test_risk_memo_prints_the_simulation_results():
         assert money(d["annual_worth_difference"][q]) in text
     # inputs are named in words where a person reads them; the paths stay in the JSON
     assert f"{ch}: first cost" in _norm(text) and "first_cost" not in text
+
+
+def test_chart_legend_keeps_every_esl_and_stays_inside_its_column():
+    # common practice, no source: a legend label that runs into its neighbour, or
+    # whose ESL is cut off, misreads the chart; long names go one per row instead.
+    from reportlab.pdfbase.pdfmetrics import stringWidth
+
+    from core.memo.chart import LEGEND_FONT_SIZE, LEGEND_KEY_W, legend_labels
+    from core.memo.fonts import FR
+
+    short = [("Pump A", [-1.0], 1), ("Pump B", [-1.0, -2.0], 2)]
+    cols, labels = legend_labels(short, 400.0)
+    assert cols == 2 and labels == ["Pump A (ESL 1 yr)", "Pump B (ESL 2 yrs)"]
+
+    long = [("Reciprocating compressor 22 kW (2008)", [-1.0], 1),
+            ("Electric counterbalance forklift 2.5 t", [-1.0] * 10, 10)]
+    cols, labels = legend_labels(long, 300.0)
+    assert cols == 1
+    assert labels[1] == "Electric counterbalance forklift 2.5 t (ESL 10 yrs)"
+    huge = [("A very long machine name " * 6, [-1.0] * 3, 3)]
+    cols, labels = legend_labels(huge, 300.0)
+    assert labels[0].endswith("... (ESL 3 yrs)")
+    assert stringWidth(labels[0], FR(), LEGEND_FONT_SIZE) <= 300.0 - LEGEND_KEY_W
+
+
+def test_page_one_names_a_technology_plan_that_disagrees():
+    # hand calculation from the demo's FL-07 study: today's models say replace now, but
+    # the technology plan's best chain waits one year; the gain of waiting is the best
+    # waiting plan's PW less the best replace-now plan's PW, printed as a positive amount.
+    from core.demo import demo_studies
+    from core.memo.render import technology_note
+
+    st = next(s for s in demo_studies() if "FL-07" in s.title)
+    r = run_study(dataclasses.replace(st, uncertainty=None))
+    plan = r.technology
+    assert r.recommendation.action == "replace" and plan.first_action == "keep"
+    note = technology_note(r, "£", 4)
+    gain = plan.best_wait_present_worth - plan.best_replace_now_present_worth
+    assert gain > 0
+    assert f"waiting is worth £{gain:,.0f} more" in note and "(page 4)" in note
+    assert "-£" not in note
+    agree = dataclasses.replace(st, uncertainty=None, technology=None)
+    assert technology_note(run_study(agree), "£") == ""
+
+
+def test_histogram_share_ticks_keep_their_fraction():
+    # hand calculation: shares up to 7% get ticks 0, 2.5, 5, 7.5 % (nice_ticks); printing
+    # them rounded to whole percent would label 2.5% as "2%".
+    from reportlab.graphics.shapes import String
+
+    from core.memo.chart import histogram_chart
+
+    d = histogram_chart([float(e) for e in range(-7, 9)], [1] * 15, 400.0)  # 1/15 = 6.7% each
+    labels = {x.text for x in d.contents if isinstance(x, String)}
+    assert {"0%", "2.5%", "5%", "7.5%"} <= labels and "2%" not in labels

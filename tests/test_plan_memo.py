@@ -104,3 +104,20 @@ def test_cli_memo_and_xlsx(setup: dict) -> None:
     rows = {r[0].value: [c.value for c in r[1:]] for r in book["by year"].iter_rows(min_row=2)}
     assert rows["capital"] == pytest.approx(list(plan.capital_by_year))
     assert rows["budget"] == pytest.approx(BUDGETS)
+
+
+def test_plan_memo_shows_currency_as_the_study_memos_do(setup: dict) -> None:
+    # common practice, no source: one memo set, one way of writing money. The study
+    # memos write "£334,100" in sentences and "(£)" in column heads; the plan memo,
+    # asked for GBP, must too, and page one must point to the cautions.
+    from pypdf import PdfReader
+
+    out = setup["folder"] / "plan-currency.pdf"
+    issue_plan_memo(setup["plan"], setup["source"], out, PlanMemoOptions(currency="GBP"))
+    text = " ".join((pg.extract_text() or "") for pg in PdfReader(str(out)).pages)
+    total = sum(setup["plan"].capital_by_year)
+    assert "GBP" not in text
+    assert f"£{total:,.0f} of capital" in " ".join(text.split())
+    assert "(£)" in text
+    first = PdfReader(str(out)).pages[0].extract_text() or ""
+    assert "read the cautions" in " ".join(first.split())

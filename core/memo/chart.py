@@ -13,10 +13,15 @@ from collections.abc import Sequence
 
 from reportlab.graphics.shapes import Circle, Drawing, Line, Polygon, PolyLine, Rect, String
 from reportlab.lib import colors
+from reportlab.pdfbase.pdfmetrics import stringWidth
 
 from core.memo.fonts import FB, FR
 
-__all__ = ["nice_ticks", "aw_chart", "histogram_chart", "SERIES_STYLES", "short_money"]
+__all__ = ["nice_ticks", "aw_chart", "histogram_chart", "SERIES_STYLES", "short_money",
+           "legend_labels"]
+
+LEGEND_FONT_SIZE = 7.5
+LEGEND_KEY_W = 28.0  # the line-and-marker sample before each legend label
 
 SERIES_STYLES = (
     (colors.HexColor("#1f4e79"), None, "circle"),
@@ -76,6 +81,31 @@ def _marker(kind: str, x: float, y: float, r: float, color, filled: bool):
     return Circle(x, y, r, fillColor=fill, strokeColor=color, strokeWidth=0.8)
 
 
+def _fit(name: str, suffix: str, room: float) -> str:
+    """``name + suffix`` shortened (the name only, never the ESL suffix) to fit ``room`` points."""
+    text = f"{name}{suffix}"
+    if stringWidth(text, FR(), LEGEND_FONT_SIZE) <= room:
+        return text
+    while name and stringWidth(f"{name}...{suffix}", FR(), LEGEND_FONT_SIZE) > room:
+        name = name[:-1]
+    return f"{name.rstrip()}...{suffix}"
+
+
+def legend_labels(series: Sequence[tuple[str, Sequence[float], int]],
+                  plot_width: float) -> tuple[int, list[str]]:
+    """Legend columns (2, or 1 when a name is too long for half the width) and labels.
+
+    Each label is the alternative's name and its ESL; a name too long even for
+    the full width is shortened, but the ESL always shows.
+    """
+    suffixes = [f" (ESL {esl} yr{'s' if esl != 1 else ''})" for _, _, esl in series]
+    texts = [f"{name}{sfx}" for (name, _, _), sfx in zip(series, suffixes, strict=True)]
+    half = plot_width / 2 - LEGEND_KEY_W - 6
+    cols = 2 if all(stringWidth(t, FR(), LEGEND_FONT_SIZE) <= half for t in texts) else 1
+    room = (plot_width / cols) - LEGEND_KEY_W - 6
+    return cols, [_fit(name, sfx, room) for (name, _, _), sfx in zip(series, suffixes, strict=True)]
+
+
 def aw_chart(
     series: Sequence[tuple[str, Sequence[float], int]],
     width: float,
@@ -85,8 +115,10 @@ def aw_chart(
 ) -> Drawing:
     """Draw AW_k against retention k for each (name, AW_1..AW_n, ESL) series."""
     d = Drawing(width, height)
-    legend_h = 14 * math.ceil(len(series) / 2) + 6
-    left, right, bottom, top = 62.0, 12.0, 30.0 + legend_h, 18.0 if title else 8.0
+    left, right = 62.0, 12.0
+    legend_cols, legend = legend_labels(series, width - left - right)
+    legend_h = 14 * math.ceil(len(series) / legend_cols) + 6
+    bottom, top = 30.0 + legend_h, 18.0 if title else 8.0
     pw, ph = width - left - right, height - bottom - top
     values = [v for _, aw, _ in series for v in aw if math.isfinite(v)]
     n_max = max((len(aw) for _, aw, _ in series), default=1)
@@ -153,20 +185,17 @@ def aw_chart(
             label_spots.append((lx, ly))
             d.add(String(lx, ly, f"ESL {esl}", fontName=FB(), fontSize=7,
                          fillColor=color, textAnchor=anchor))
-    # legend, two columns under the axis title
-    col_w = pw / 2
-    for idx, (name, _aw, esl) in enumerate(series):
+    # legend under the axis title, in two columns when the names fit
+    col_w = pw / legend_cols
+    for idx, label in enumerate(legend):
         color, dash, mk = SERIES_STYLES[idx % len(SERIES_STYLES)]
-        row, col = divmod(idx, 2)
+        row, col = divmod(idx, legend_cols)
         lx = left + col * col_w
         ly = bottom - 34 - row * 14
         d.add(Line(lx, ly + 3, lx + 22, ly + 3, strokeColor=color, strokeWidth=1.3,
                    strokeDashArray=dash))
         d.add(_marker(mk, lx + 11, ly + 3, 3.0, color, True))
-        label = f"{name} (ESL {esl} yr{'s' if esl != 1 else ''})"
-        if len(label) > 48:
-            label = label[:45] + "..."
-        d.add(String(lx + 28, ly, label, fontName=FR(), fontSize=7.5))
+        d.add(String(lx + LEGEND_KEY_W, ly, label, fontName=FR(), fontSize=LEGEND_FONT_SIZE))
     return d
 
 
@@ -204,7 +233,7 @@ def histogram_chart(edges: Sequence[float], counts: Sequence[int], width: float,
             continue
         d.add(Line(left, Y(t), left + pw, Y(t), strokeColor=colors.HexColor("#dddddd"),
                    strokeWidth=0.4))
-        d.add(String(left - 4, Y(t) - 3, f"{t * 100:.0f}%", fontName=FR(), fontSize=7,
+        d.add(String(left - 4, Y(t) - 3, f"{round(t * 100, 1):g}%", fontName=FR(), fontSize=7,
                      textAnchor="end"))
     for i, share in enumerate(shares):
         a, b = float(edges[i]), float(edges[i + 1])

@@ -105,8 +105,8 @@ def _plan(view: BasisView) -> tuple[str | None, int]:
 
 
 def page_one_facts(result: StudyResult, currency: str = "",
-                   asset: AssetFacts | None = None, cautions_page: int | None = None
-                   ) -> PageOne:
+                   asset: AssetFacts | None = None, cautions_page: int | None = None,
+                   options_page: int | None = None) -> PageOne:
     """The text of page one (see the module docstring).
 
     >>> from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
@@ -193,7 +193,7 @@ def page_one_facts(result: StudyResult, currency: str = "",
                     f"remaining {_yrs(period - wait)}")
         sentence = (f"Over the {period}-year study period, {plan}: an equivalent annual cost"
                     f"{tag} of {eac}, the least of the {len(feasible)} feasible options "
-                    "(Study-period options).")
+                    f"(Study-period options{f', page {options_page}' if options_page else ''}).")
     comparison = ""
     if len(views) > 1:
         other = views[1].recommendation

@@ -136,6 +136,42 @@ def pct(x: float | None) -> str:
     return f"{s}%"
 
 
+def method_words(method: str | None) -> str:
+    """A depreciation method as the memo names it.
+
+    >>> method_words("macrs"), method_words("straight_line"), method_words(None)
+    ('MACRS', 'straight line', '-')
+    """
+    if not method:
+        return "-"
+    return "MACRS" if method.lower() == "macrs" else method.replace("_", " ")
+
+
+def technology_note(result: Any, currency: str, page: int | None = None) -> str:
+    """Page one's sentence when the technology plan's first action differs from the
+    recommendation (docs/method.md §11); empty when they agree or there is no plan.
+
+    Amounts in words are positive: the gain of the better first action, in present worth.
+    """
+    plan = getattr(result, "technology", None)
+    if plan is None or not plan.policy or plan.first_action == result.recommendation.action:
+        return ""
+    where = f" (page {page})" if page else ""
+    now, wait = plan.best_replace_now_present_worth, plan.best_wait_present_worth
+    gain = format_money(abs(wait - now), currency)
+    if plan.first_action == "replace":
+        other = (f"says to replace now rather than wait: over {plan.horizon} years, with the "
+                 f"model change rates estimated, replacing now is worth {gain} more in "
+                 "present worth than the best plan that waits")
+    else:
+        other = (f"says to keep the defender one more year and buy a later, better model: over "
+                 f"{plan.horizon} years, with the model change rates estimated, waiting is "
+                 f"worth {gain} more in present worth than the best plan that replaces now")
+    return (f"The technology plan{where} {other}. The recommendation above compares "
+            "today's models only; the plan rests on forecasts of future models, so weigh "
+            "both before signing.")
+
+
 def yrs(n: int | None) -> str:
     if n is None:
         return ""
@@ -349,7 +385,12 @@ class _Builder:
             bits.insert(0, o.organisation)
         bits.append(f"Amounts in {self.cur}; AW is signed (costs negative); EAC = -AW")
         self.add(_p(" | ".join(bits), s["sub"]), Spacer(1, 6))
-        facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"))
+        facts = page_one_facts(r, self.sym, o.asset, self.marks.get("cautions"),
+                               self.marks.get("options"))
+        note = technology_note(r, self.sym, self.marks.get("technology"))
+        if note:  # in the recommendation box, beside what it qualifies
+            facts = dataclasses.replace(facts, comparison=" ".join(
+                t for t in (facts.comparison, note) if t))
         self.add(*page_one_flowables(facts, self.w, s, r.recommendation.basis))
 
     def key_figures(self):
@@ -415,8 +456,8 @@ class _Builder:
             facts.append(["Risk: share of simulated trials that say replace",
                           f"{percent(r.risk.probability_replace)} (see Risk)"])
         facts = [[_p(a, s["cell"]), _p(b, s["cell"])] for a, b in facts]
-        self.add(Spacer(1, 4), _table(facts, [0.32 * self.w, 0.68 * self.w], numeric_from=None,
-                                      header=False))
+        self.add(Spacer(1, 4), KeepTogether([_table(facts, [0.32 * self.w, 0.68 * self.w],
+                                                    numeric_from=None, header=False)]))
 
     def chart(self):
         views = basis_views(self.r)
@@ -467,6 +508,7 @@ class _Builder:
         views = [v for v in basis_views(r) if v.options]
         if not views:
             return
+        self.add(PageMarker(self.marks, "options"))
         self.h(f"Study-period options ({yrs(r.study.study_period)})")
         self.add(_p("Keep the defender j years, then the challenger for the remaining years. "
                     f"AW over the whole study period, {cur} per year; the best feasible option "
@@ -525,11 +567,11 @@ class _Builder:
             assert tax is not None
             at_esl = a.annual_worth_at_economic_life
             rows.append([Paragraph(escape(a.name), s["cell"]),
-                         (tax.method or "-").replace("_", " "), money(tax.tax_basis),
+                         method_words(tax.method), money(tax.tax_basis),
                          money(tax.book_value_0), money(tax.initial), yrs(a.economic_life),
                          money(at_esl), money(-at_esl)])
         w = self.w
-        self.add(_table(rows, [0.22 * w, 0.12 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w,
+        self.add(_table(rows, [0.2 * w, 0.14 * w, 0.1 * w, 0.11 * w, 0.1 * w, 0.1 * w,
                                0.125 * w, 0.125 * w], numeric_from=2))
         for a in after.alternatives:
             tax = a.tax
@@ -642,6 +684,7 @@ class _Builder:
         plan = r.technology
         if plan is None or not plan.policy:
             return
+        self.add(PageMarker(self.marks, "technology"))
         self.h("Technology plan: replace now or wait for a better model?")
         horizon, first = plan.horizon, plan.first_action
         pw, flat = plan.present_worth, plan.no_change_present_worth
@@ -666,6 +709,10 @@ class _Builder:
         gain = plan.waiting_gain
         rates = "; ".join(f"{name}: first cost {gp:+.1%}, operating cost {gc:+.1%} a year"
                           for name, gp, gc in plan.change_rates)
+        if first != r.recommendation.action:
+            self.add(_p("This differs from the recommendation on page one, which compares "
+                        "today's models only; see page one for how to read the two together.",
+                        s["small"]))
         fig = [["Figure", f"{cur}"],
                ["First action", "replace now" if first == "replace" else "keep (wait)"],
                ["PW of the best plan", money(pw)],
@@ -675,7 +722,7 @@ class _Builder:
                ["Waiting against replacing now (PW)", money(gain)],
                ["Best plan if every future model were today's, PW", money(flat)],
                ["Value of waiting for better models (PW)", money(value)]]
-        self.add(_table(fig, [0.6 * w, 0.4 * w], numeric_from=1))
+        self.add(KeepTogether([_table(fig, [0.6 * w, 0.4 * w], numeric_from=1)]))
         self.add(_p("Change rates: " + (rates or "none") + ". A model bought in plan year t "
                     "costs P(1+gP)^t, resells for S_k(1+gP)^t and runs for C_j(1+gC)^t; extra "
                     "costs as estimated. Solved by backward induction over plan year, machine, "
@@ -709,7 +756,8 @@ class _Builder:
             u = st.uncertainty
             from core.risk.labels import input_label
 
-            ins = "; ".join(f"{input_label(a, st)}: {dist.kind} {', '.join(money(p, 4 if abs(p) < 10 else 0) for p in dist.params)}"
+            ins = "; ".join(f"{input_label(a, st)}: {dist.kind} "
+                            f"({', '.join(_num_for(a, p) for p in dist.params)})"
                             for a, dist in u.inputs)
             rows.append(["Uncertainty", f"{u.trials:,} trials"
                          + (f", seed {u.seed}" if u.seed is not None else "") + f"; {ins}"])
@@ -756,7 +804,7 @@ class _Builder:
                          f"{money(x.amount)}" + (f" ({x.label})" if x.label else "")])
         dep = alt.depreciation
         if dep is not None:
-            bits = [dep.method.replace("_", " ")]
+            bits = [method_words(dep.method)]
             if dep.macrs_class:
                 bits.append(f"{dep.macrs_class}-year class")
             if dep.years:

@@ -29,6 +29,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
+from core.currency import currency_symbol, format_money
 from core.memo.cautions import caution_texts
 from core.memo.fonts import FR
 from core.memo.render import (
@@ -109,11 +110,15 @@ class _PlanBuilder:
     def __init__(self, plan: CapitalPlan, opts: PlanMemoOptions, width: float):
         self.plan, self.o, self.w = plan, opts, width
         self.s = _styles()
-        self.cur = opts.currency
+        self.cur = currency_symbol(opts.currency)  # shown as the study memos show it: £, not GBP
         self.story: list = []
 
     def add(self, *flow: Any) -> None:
         self.story.extend(flow)
+
+    def _m(self, x: float | None) -> str:
+        """An amount in a sentence, with the currency symbol ("£334,100")."""
+        return format_money(x, self.cur)
 
     def h(self, text: str) -> None:
         self.add(CondPageBreak(110), _p(text, self.s["h"]))
@@ -133,12 +138,12 @@ class _PlanBuilder:
         budget = (f"under the budget ({'net of sales' if p.net else 'gross capital'})"
                   if any(b is not None for b in p.budgets) else "with no budget limit")
         text = (f"Replace {len(inside)} of {len(p.assets)} assets in the {p.horizon} plan years "
-                f"{budget}, for {money(total)} of capital ({money(net_total)} after selling "
+                f"{budget}, for {self._m(total)} of capital ({self._m(net_total)} after selling "
                 f"the replaced machines).")
         deferred = p.deferred
         if deferred:
             text += (f" The budget defers {len(deferred)} replacement"
-                     f"{'s' if len(deferred) != 1 else ''}; that costs {money(p.budget_cost)} "
+                     f"{'s' if len(deferred) != 1 else ''}; that costs {self._m(p.budget_cost)} "
                      f"of value against the plan without a budget.")
         else:
             text += " No replacement has to wait for the budget."
@@ -155,6 +160,10 @@ class _PlanBuilder:
             ("LEFTPADDING", (0, 0), (-1, -1), 7), ("RIGHTPADDING", (0, 0), (-1, -1), 7),
             ("TOPPADDING", (0, 0), (-1, 0), 5), ("BOTTOMPADDING", (0, -1), (-1, -1), 7)]))
         self.add(box, Spacer(1, 4))
+        self.add(Paragraph("<i>" + escape(
+            "Before signing, read the cautions at the end, before the sign-off: the plan "
+            "rests on each study's estimates of future costs and resale values, and on "
+            "today's budgets.") + "</i>", s["body"]))
 
     def by_year(self) -> None:
         p, cur = self.plan, self.cur
@@ -239,23 +248,29 @@ class _PlanBuilder:
 
     def deferred(self) -> None:
         p, s, cur = self.plan, self.s, self.cur
-        self.h("Deferred replacements and what each deferral costs")
+        title = "Deferred replacements and what each deferral costs"
         deferred = sorted(p.deferred, key=lambda a: -a.deferral_cost)
         if not deferred:
+            self.h(title)
             self.add(_p("None: every asset is replaced in its own best year.", s["body"]))
             return
+        note = _p("The cost of a deferral is the value of replacing the asset in its best "
+                  "year less the value in the planned year: the extra running, upkeep and "
+                  "lost resale of keeping the old machine longer, in today's money.",
+                  s["small"])
         rows: list[list[Any]] = [["Asset", "Site", "Best year", "Planned", f"Cost ({cur})"]]
         for a in deferred:
             rows.append([_p(self._name(a), s["cell"]), _p(a.site or "-", s["cell"]),
                          _when(p, a.best_year), _when(p, a.year), money(a.deferral_cost)])
         rows.append(["Total", "", "", "", money(sum(a.deferral_cost for a in deferred))])
         w = self.w
-        self.add(_table(rows, [0.4 * w, 0.18 * w, 0.13 * w, 0.15 * w, 0.14 * w], numeric_from=4,
-                        extra=[("LINEABOVE", (0, -1), (-1, -1), 0.6, colors.black)]))
-        self.add(_p("The cost of a deferral is the value of replacing the asset in its best "
-                    "year less the value in the planned year: the extra running, upkeep and "
-                    "lost resale of keeping the old machine longer, in today's money.",
-                    s["small"]))
+        table = _table(rows, [0.4 * w, 0.18 * w, 0.13 * w, 0.15 * w, 0.14 * w], numeric_from=4,
+                       extra=[("LINEABOVE", (0, -1), (-1, -1), 0.6, colors.black)])
+        if len(rows) <= 25:  # heading, basis and a short table (with its Total) on one page
+            self.add(CondPageBreak(110), KeepTogether([_p(title, s["h"]), note, table]))
+        else:
+            self.h(title)
+            self.add(note, table)
 
     def must(self) -> None:
         p, s = self.plan, self.s
@@ -269,7 +284,7 @@ class _PlanBuilder:
             why = a.forced_reason or "marked must-replace"
             self.add(Paragraph(escape(f"{self._name(a)} ({a.site or 'no site'}): {why}; "
                                       f"replaced in {_when(p, a.year)} with {a.challenger}, "
-                                      f"{money(a.capital)} {self.cur}."),
+                                      f"{self._m(a.capital)}."),
                                s["bullet"], bulletText="\u2022"))
 
     def comparison(self) -> None:
@@ -281,11 +296,11 @@ class _PlanBuilder:
                     "unfunded. This plan keeps every budget.")
         elif (p.rule_gap or 0.0) < 0.5:
             text = (f"Funding each year's due replacements in order of value per unit of "
-                    f"capital gives the same total value here ({money(p.rule_objective)}).")
+                    f"capital gives the same total value here ({self._m(p.rule_objective)}).")
         else:
             text = (f"Funding each year's due replacements in order of value per unit of "
-                    f"capital gives a total value of {money(p.rule_objective)}; this plan "
-                    f"gives {money(p.objective)}, {money(p.rule_gap or 0.0)} more.")
+                    f"capital gives a total value of {self._m(p.rule_objective)}; this plan "
+                    f"gives {self._m(p.objective)}, {self._m(p.rule_gap or 0.0)} more.")
         self.add(_p(text, s["body"]))
 
     def method(self) -> None:
@@ -295,7 +310,7 @@ class _PlanBuilder:
         if not budgets:
             btxt = "No budget was set: every asset is at its best year."
         elif len(set(budgets)) == 1 and len(budgets) == p.horizon:
-            btxt = f"The budget is {money(budgets[0])} {self.cur} in every plan year."
+            btxt = f"The budget is {self._m(budgets[0])} in every plan year."
         else:
             btxt = "The budget varies by year (table above)."
         btxt += (" Budgets apply to capital net of the defender's sale proceeds." if p.net else
