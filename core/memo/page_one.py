@@ -143,8 +143,8 @@ def page_one_facts(result: StudyResult, currency: str = "",
     period = rec.study_period
     if period is None:
         c = alts[rec.best_challenger] if rec.best_challenger in alts else None
-        d_eac, c_eac = -d.annual_worth_at_economic_life, (
-            -c.annual_worth_at_economic_life if c else None)
+        d_eac = -d.annual_worth_at_economic_life
+        c_eac = -c.annual_worth_at_economic_life if c is not None else 0.0  # read only with c
         if rec.action == "replace" and c is not None:
             headline = "REPLACE NOW"
             sentence = (f"Replace {d.name} now with {c.name}. Over its economic life of "

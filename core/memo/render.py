@@ -517,7 +517,7 @@ class _Builder:
         for view in views:
             opts = list(view.options)
             feasible = [o for o in opts if o.feasible and o.annual_worth is not None]
-            best = max(feasible, key=lambda o: round(o.annual_worth, 2)) if feasible else None
+            best = max(feasible, key=lambda o: round(o.annual_worth or 0.0, 2)) if feasible else None
             rows = [["Keep defender", "Then challenger", "For", f"AW ({cur}/yr)",
                      f"EAC ({cur}/yr)", "Feasible / note"]]
             best_row = None

@@ -432,7 +432,8 @@ def issue_plan_memo(plan: CapitalPlan, source: Any, out: str | os.PathLike,
         step(5, "Opening the identity")
         info = load_identity(identity, passphrase)
         if not opts.names().get(role):
-            opts = dataclasses.replace(opts, **{f"{role}_by": info.common_name})
+            named: dict[str, Any] = {f"{role}_by": info.common_name}
+            opts = dataclasses.replace(opts, **named)
     step(15, "Laying out the plan memo")
     document = plan_document(plan, source.inputs, source.studies, pins, time_limit)
     pdf, pages = render_plan_memo(plan, document, opts)
