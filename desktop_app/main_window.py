@@ -64,6 +64,7 @@ from desktop_app.prefs import Preferences, PreferencesDialog
 from desktop_app.register import RegisterPane
 from desktop_app.sources import FILE_FILTER, open_document, save_document
 from desktop_app.validation import friendly
+from desktop_app.widget_parts import vertical_split
 from desktop_app.worker import FleetJob
 
 APP_NAME = "Tenure"
@@ -167,13 +168,8 @@ class MainWindow(QMainWindow):
         self.chart_panel = make_chart_panel()
         self.results_panel = make_results_panel()
         self.risk_view = make_risk_view()
-        right_split = QSplitter(Qt.Orientation.Vertical)
-        right_split.addWidget(self.chart_panel)
-        right_split.addWidget(self.results_panel)
-        right_split.setStretchFactor(0, 1)
-        right_split.setStretchFactor(1, 1)
-        right_split.setSizes([470, 430])
-        right_split.setChildrenCollapsible(True)
+        right_split = vertical_split(self.chart_panel, self.results_panel, stretch=(1, 1),
+                                     sizes=[470, 430], collapsible=True)
         right_split.setObjectName("right_split")
         self.right_split = right_split
         state = self.prefs.layout("right_split")

@@ -13,21 +13,17 @@ import re
 from pathlib import Path
 from typing import Any
 
-from PySide6.QtCore import QObject, QRunnable, QThreadPool, QUrl, Signal, Slot
+from PySide6.QtCore import QObject, QRunnable, QUrl, Signal, Slot
 from PySide6.QtGui import QDesktopServices
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
-    QDialog,
     QDialogButtonBox,
     QFileDialog,
     QFormLayout,
     QGroupBox,
-    QHBoxLayout,
     QLabel,
     QLineEdit,
-    QProgressBar,
-    QPushButton,
     QVBoxLayout,
     QWidget,
 )
@@ -37,6 +33,8 @@ from core.memo.page_one import asset_facts, page_one_facts
 from core.memo.register import record_in_workbook
 from core.memo.render import MemoOptions
 from core.memo.sign import ROLES
+from desktop_app.widget_parts import SigningDialog, browse_row
+from desktop_app.widget_parts import html_text as _html
 
 __all__ = ["IssueMemoDialog", "MemoJob", "record_in_workbook"]
 
@@ -108,7 +106,7 @@ def _headline(result: Any) -> str:
         return str(result.recommendation.reason)
 
 
-class IssueMemoDialog(QDialog):
+class IssueMemoDialog(SigningDialog):
     """Identity, passphrase, sign-off names, page size; issue on a worker; open the PDF."""
 
     memoIssued = Signal(object)  # noqa: N815 - Qt naming
@@ -134,7 +132,7 @@ class IssueMemoDialog(QDialog):
 
         form = QFormLayout()
         self.out_edit = QLineEdit(str(Path.home() / f"{_safe_name(result.study.title)} memo.pdf"))
-        form.addRow("Save memo as", self._with_browse(self.out_edit, self._browse_out))
+        form.addRow("Save memo as", browse_row(self.out_edit, self._browse_out))
         self.page_size = QComboBox()
         self.page_size.addItems(["A4", "Letter"])
         prefs = _preferences()
@@ -156,16 +154,7 @@ class IssueMemoDialog(QDialog):
         sign_box.setCheckable(True)
         sign_box.setChecked(False)
         self.sign_box = sign_box
-        sform = QFormLayout(sign_box)
-        self.identity_edit = QLineEdit()
-        self.identity_edit.setPlaceholderText("your identity file (.p12)")
-        sform.addRow("Identity", self._with_browse(self.identity_edit, self._browse_identity))
-        self.passphrase = QLineEdit()
-        self.passphrase.setEchoMode(QLineEdit.EchoMode.Password)
-        sform.addRow("Passphrase", self.passphrase)
-        self.role = QComboBox()
-        self.role.addItems(list(ROLES))
-        sform.addRow("Sign as", self.role)
+        self._add_signing_rows(QFormLayout(sign_box), ROLES)
         root.addWidget(sign_box)
 
         cautions = QLabel("<b>Cautions (printed in the memo):</b><ul>"
@@ -176,13 +165,7 @@ class IssueMemoDialog(QDialog):
         self.open_after = QCheckBox("Open the memo when it is written")
         self.open_after.setChecked(True)
         root.addWidget(self.open_after)
-        self.progress = QProgressBar()
-        self.progress.setRange(0, 100)
-        self.progress.setVisible(False)
-        root.addWidget(self.progress)
-        self.status = QLabel("")
-        self.status.setWordWrap(True)
-        root.addWidget(self.status)
+        self._add_progress(root)
 
         self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Cancel)
         self.issue_button = self.buttons.addButton("Issue memo",
@@ -192,27 +175,11 @@ class IssueMemoDialog(QDialog):
         root.addWidget(self.buttons)
 
     # -- widgets
-    def _with_browse(self, edit: QLineEdit, slot) -> QWidget:
-        w = QWidget()
-        lay = QHBoxLayout(w)
-        lay.setContentsMargins(0, 0, 0, 0)
-        lay.addWidget(edit, 1)
-        b = QPushButton("Browse...")
-        b.clicked.connect(slot)
-        lay.addWidget(b)
-        return w
-
     def _browse_out(self) -> None:
         path, _ = QFileDialog.getSaveFileName(self, "Save memo as", self.out_edit.text(),
                                               "PDF (*.pdf)")
         if path:
             self.out_edit.setText(path if path.lower().endswith(".pdf") else path + ".pdf")
-
-    def _browse_identity(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Identity", str(Path.home()),
-                                              "PKCS#12 identity (*.p12 *.pfx)")
-        if path:
-            self.identity_edit.setText(path)
 
     # -- work
     def options(self) -> MemoOptions:
@@ -224,12 +191,6 @@ class IssueMemoDialog(QDialog):
                            organisation=self.organisation.text().strip() or None,
                            asset=(asset_facts(self.workbook_path, self.result.study)
                                   if self.workbook_path else None))
-
-    def _fail(self, message: str) -> None:
-        self.error = message
-        self.status.setText(f"<span style='color:#b00020'>{_html(message)}</span>")
-        self.progress.setVisible(False)
-        self._set_busy(False)
 
     def _set_busy(self, busy: bool) -> None:
         self.issue_button.setEnabled(not busy)
@@ -249,13 +210,11 @@ class IssueMemoDialog(QDialog):
         identity = passphrase = None
         role = self.role.currentText()
         if self.sign_box.isChecked():
+            problem = self._signing_problem()
+            if problem:
+                self._fail(problem)
+                return
             identity = self.identity_edit.text().strip()
-            if not identity:
-                self._fail("Identity: choose your identity file (.p12)")
-                return
-            if not self.passphrase.text():
-                self._fail("Passphrase: enter the passphrase of your identity")
-                return
             passphrase = self.passphrase.text().encode("utf-8")
         self._set_busy(True)
         self.progress.setValue(0)
@@ -271,19 +230,11 @@ class IssueMemoDialog(QDialog):
         job.signals.done.connect(self._on_done)
         job.signals.failed.connect(self._fail)
         job.signals.confirm.connect(self._on_confirm)
-        self._job = job
-        QThreadPool.globalInstance().start(job)
+        self._launch(job)
 
     def ask_confirm(self, findings: tuple) -> bool:
         """Ask the signer to confirm despite the signer checks (a dialog; tests patch it)."""
-        from PySide6.QtWidgets import QMessageBox
-
-        text = "\n\n".join(f.message for f in findings)
-        answer = QMessageBox.warning(
-            self, "Check who signs", f"{text}\n\nSign as {self.role.currentText()} anyway?",
-            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No,
-            QMessageBox.StandardButton.No)
-        return answer == QMessageBox.StandardButton.Yes
+        return self._sign_anyway("\n\n".join(f.message for f in findings))
 
     @Slot(object)
     def _on_confirm(self, findings: tuple) -> None:
@@ -294,11 +245,6 @@ class IssueMemoDialog(QDialog):
         if job is not None:
             job.passphrase = None
         self._fail("Not issued: " + "; ".join(f.message for f in findings))
-
-    @Slot(int, str)
-    def _on_progress(self, percent: int, text: str) -> None:
-        self.progress.setValue(percent)
-        self.status.setText(text)
 
     @Slot(object)
     def _on_done(self, issued: Any) -> None:
@@ -317,11 +263,3 @@ class IssueMemoDialog(QDialog):
         self.memoIssued.emit(issued)
         if self.open_after.isChecked():
             QDesktopServices.openUrl(QUrl.fromLocalFile(issued.path))
-
-    def wait_for_job(self, msecs: int = 30000) -> bool:
-        """Block until the worker is done (tests, scripted use)."""
-        return QThreadPool.globalInstance().waitForDone(msecs)
-
-
-def _html(text: str) -> str:
-    return (str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;"))

@@ -50,7 +50,6 @@ from PySide6.QtWidgets import (
     QPushButton,
     QScrollArea,
     QSpinBox,
-    QSplitter,
     QTableWidget,
     QTableWidgetItem,
     QTabWidget,
@@ -61,6 +60,7 @@ from PySide6.QtWidgets import (
 from core.results import StudyResult
 from core.text import money
 from desktop_app import palette
+from desktop_app.widget_parts import vertical_split
 
 # Keep and replace as everywhere in the window (desktop_app/palette.py); the tornado's
 # percentile bars in greys, so they never read as keep or replace.
@@ -240,13 +240,8 @@ class RiskView(QWidget):
         self.head_scroll.setWidgetResizable(True)
         self.head_scroll.setFrameShape(QFrame.Shape.NoFrame)
         self.head_scroll.setWidget(head)
-        split = QSplitter(Qt.Orientation.Vertical)
-        split.addWidget(self.head_scroll)
-        split.addWidget(self.charts)
-        split.setStretchFactor(0, 0)
-        split.setStretchFactor(1, 1)
-        split.setSizes([120, 560])
-        split.setChildrenCollapsible(False)
+        split = vertical_split(self.head_scroll, self.charts, stretch=(0, 1), sizes=[120, 560],
+                              collapsible=False)
         self.split = split
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)

@@ -15,21 +15,16 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from PySide6.QtCore import QObject, QRunnable, Qt, QThreadPool, Signal, Slot
+from PySide6.QtCore import QObject, QRunnable, Qt, Signal, Slot
 from PySide6.QtWidgets import (
     QAbstractItemView,
-    QComboBox,
-    QDialog,
     QDialogButtonBox,
     QFileDialog,
     QFormLayout,
-    QHBoxLayout,
     QHeaderView,
     QLabel,
     QLineEdit,
-    QMessageBox,
     QProgressBar,
-    QPushButton,
     QTableWidget,
     QTableWidgetItem,
     QVBoxLayout,
@@ -38,6 +33,8 @@ from PySide6.QtWidgets import (
 
 from core.errors import escape_text
 from core.memo.signers import SignerFinding
+from desktop_app.widget_parts import JobDialog, SigningDialog, browse_row
+from desktop_app.widget_parts import html_text as _html
 
 __all__ = ["LATER_ROLES", "SignMemoDialog", "VerifyMemoDialog"]
 
@@ -78,22 +75,15 @@ def _message(exc: BaseException) -> str:
     return f"{type(exc).__name__}: {exc}"
 
 
-def _html(text: str) -> str:
-    return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+def _pick_memo(parent: QWidget, edit: QLineEdit, title: str) -> bool:
+    """Ask for a memo (PDF) into ``edit``; False when the user cancels."""
+    path, _ = QFileDialog.getOpenFileName(parent, title, edit.text(), MEMO_FILTER)
+    if path:
+        edit.setText(path)
+    return bool(path)
 
 
-def _file_row(edit: QLineEdit, slot) -> QWidget:
-    w = QWidget()
-    lay = QHBoxLayout(w)
-    lay.setContentsMargins(0, 0, 0, 0)
-    lay.addWidget(edit, 1)
-    b = QPushButton("Browse...")
-    b.clicked.connect(slot)
-    lay.addWidget(b)
-    return w
-
-
-class SignMemoDialog(QDialog):
+class SignMemoDialog(SigningDialog):
     """Memo, identity, passphrase and role; checks who signs, confirms, signs on a worker."""
 
     signed = Signal(object)  # core.memo.countersign.LaterSignature
@@ -120,28 +110,14 @@ class SignMemoDialog(QDialog):
         self.memo_edit = QLineEdit(memo_path or "")
         self.memo_edit.setPlaceholderText("the memo (PDF) to sign")
         self.memo_edit.editingFinished.connect(self.refresh_boxes)
-        form.addRow("Memo", _file_row(self.memo_edit, self._browse_memo))
+        form.addRow("Memo", browse_row(self.memo_edit, self._browse_memo))
         self.boxes = QLabel("")
         self.boxes.setWordWrap(True)
         self.boxes.setTextFormat(Qt.TextFormat.PlainText)
         form.addRow("Sign-off boxes", self.boxes)
-        self.identity_edit = QLineEdit()
-        self.identity_edit.setPlaceholderText("your identity file (.p12)")
-        form.addRow("Identity", _file_row(self.identity_edit, self._browse_identity))
-        self.passphrase = QLineEdit()
-        self.passphrase.setEchoMode(QLineEdit.EchoMode.Password)
-        form.addRow("Passphrase", self.passphrase)
-        self.role = QComboBox()
-        self.role.addItems(list(LATER_ROLES))
-        form.addRow("Sign as", self.role)
+        self._add_signing_rows(form, LATER_ROLES)
         root.addLayout(form)
-        self.progress = QProgressBar()
-        self.progress.setRange(0, 100)
-        self.progress.setVisible(False)
-        root.addWidget(self.progress)
-        self.status = QLabel("")
-        self.status.setWordWrap(True)
-        root.addWidget(self.status)
+        self._add_progress(root)
         self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Cancel)
         self.sign_button = self.buttons.addButton("Sign", QDialogButtonBox.ButtonRole.AcceptRole)
         self.buttons.accepted.connect(self.start)
@@ -151,17 +127,8 @@ class SignMemoDialog(QDialog):
 
     # -- widgets
     def _browse_memo(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Memo to sign", self.memo_edit.text(),
-                                              MEMO_FILTER)
-        if path:
-            self.memo_edit.setText(path)
+        if _pick_memo(self, self.memo_edit, "Memo to sign"):
             self.refresh_boxes()
-
-    def _browse_identity(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Identity", str(Path.home()),
-                                              "PKCS#12 identity (*.p12 *.pfx)")
-        if path:
-            self.identity_edit.setText(path)
 
     @Slot()
     def refresh_boxes(self) -> None:
@@ -194,21 +161,12 @@ class SignMemoDialog(QDialog):
 
     def ask_confirm(self, findings: tuple[SignerFinding, ...]) -> bool:
         """Ask the signer to confirm despite the findings (a dialog; tests patch it)."""
-        text = "\n\n".join(escape_text(f.message) for f in findings)
-        answer = QMessageBox.warning(
-            self, "Check who signs",
-            f"{text}\n\nSign as {self.role.currentText()} anyway?",
-            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No,
-            QMessageBox.StandardButton.No)
-        return answer == QMessageBox.StandardButton.Yes
+        return self._sign_anyway("\n\n".join(escape_text(f.message) for f in findings))
 
     # -- work
     def _fail(self, message: str) -> None:
-        self.error = message
         self._passphrase = None
-        self.status.setText(f"<span style='color:#b00020'>{_html(message)}</span>")
-        self.progress.setVisible(False)
-        self._set_busy(False)
+        super()._fail(message)
 
     def _set_busy(self, busy: bool) -> None:
         for w in (self.sign_button, self.memo_edit, self.identity_edit, self.role):
@@ -220,11 +178,9 @@ class SignMemoDialog(QDialog):
         if not self.memo_edit.text().strip():
             self._fail("Memo: choose the memo to sign")
             return
-        if not self.identity_edit.text().strip():
-            self._fail("Identity: choose your identity file (.p12)")
-            return
-        if not self.passphrase.text():
-            self._fail("Passphrase: enter the passphrase of your identity")
+        problem = self._signing_problem()
+        if problem:
+            self._fail(problem)
             return
         self._passphrase = self.passphrase.text().encode("utf-8")
         self.passphrase.clear()
@@ -244,13 +200,7 @@ class SignMemoDialog(QDialog):
         job.signals.progress.connect(self._on_progress)
         job.signals.done.connect(self._on_done)
         job.signals.failed.connect(self._on_failed)
-        self._job = job
-        QThreadPool.globalInstance().start(job)
-
-    @Slot(int, str)
-    def _on_progress(self, percent: int, text: str) -> None:
-        self.progress.setValue(percent)
-        self.status.setText(text)
+        self._launch(job)
 
     @Slot(object)
     def _on_failed(self, exc: BaseException) -> None:
@@ -287,17 +237,13 @@ class SignMemoDialog(QDialog):
         self.refresh_boxes()
         self.signed.emit(res)
 
-    def wait_for_job(self, msecs: int = 30000) -> bool:
-        """Block until the worker is done (tests, scripted use)."""
-        return QThreadPool.globalInstance().waitForDone(msecs)
-
 
 #: The verify table's columns.
 COLUMNS = ("Role", "Printed name", "Certificate name", "Names match", "Integrity", "Trust",
            "Certificate SHA-256")
 
 
-class VerifyMemoDialog(QDialog):
+class VerifyMemoDialog(JobDialog):
     """Verify a memo on a worker; a row per signature and the result in words."""
 
     verified = Signal(object)  # core.memo.verify.VerifyReport
@@ -313,7 +259,7 @@ class VerifyMemoDialog(QDialog):
         form = QFormLayout()
         self.memo_edit = QLineEdit(memo_path or "")
         self.memo_edit.setPlaceholderText("the memo (PDF) to verify")
-        form.addRow("Memo", _file_row(self.memo_edit, self._browse_memo))
+        form.addRow("Memo", browse_row(self.memo_edit, self._browse_memo))
         root.addLayout(form)
         self.summary = QLabel("")
         self.summary.setWordWrap(True)
@@ -354,10 +300,7 @@ class VerifyMemoDialog(QDialog):
         root.addWidget(self.buttons)
 
     def _browse_memo(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Memo to verify", self.memo_edit.text(),
-                                              MEMO_FILTER)
-        if path:
-            self.memo_edit.setText(path)
+        if _pick_memo(self, self.memo_edit, "Memo to verify"):
             self.start()
 
     @Slot()
@@ -375,8 +318,7 @@ class VerifyMemoDialog(QDialog):
         job = _Job(lambda _progress: verify_memo(memo))
         job.signals.done.connect(self.show_report)
         job.signals.failed.connect(self._on_failed)
-        self._job = job
-        QThreadPool.globalInstance().start(job)
+        self._launch(job)
 
     @Slot(object)
     def _on_failed(self, exc: BaseException) -> None:
@@ -437,7 +379,3 @@ class VerifyMemoDialog(QDialog):
         self.result_label.setStyleSheet(
             "font-weight: bold; color: %s;" % ("#1a7f37" if ok else "#b00020"))
         self.verified.emit(rep)
-
-    def wait_for_job(self, msecs: int = 30000) -> bool:
-        """Block until the worker is done (tests, scripted use)."""
-        return QThreadPool.globalInstance().waitForDone(msecs)
