@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import datetime as _dt
 from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
 from typing import Any, BinaryIO
 from xml.sax.saxutils import escape
 
@@ -40,6 +41,25 @@ from core.memo.roles import ROLES
 
 PAGE_SIZES = {"A4": A4, "Letter": LETTER}
 MARGIN = 18 * mm
+
+
+@dataclass(frozen=True)
+class CommonMemoOptions:
+    """The options every memo has: page size, currency, who signs it off, the
+    organisation, the issue date and whether the empty signature fields are made."""
+
+    page_size: str = "A4"
+    currency: str = "GBP"
+    prepared_by: str | None = None
+    reviewed_by: str | None = None
+    approved_by: str | None = None
+    organisation: str | None = None
+    issued: _dt.date | None = None
+    signature_fields: bool = True
+
+    def names(self) -> dict[str, str | None]:
+        return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
+                "approved": self.approved_by}
 
 
 # --------------------------------------------------------------------------- styles

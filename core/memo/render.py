@@ -47,6 +47,7 @@ from core.bases import basis_views
 from core.currency import currency_symbol, format_money
 from core.memo.blocks import (
     PAGE_SIZES,
+    CommonMemoOptions,
     _p,
     _styles,
     _table,
@@ -176,23 +177,12 @@ def yrs(n: int | None) -> str:
 
 
 @dataclass(frozen=True)
-class MemoOptions:
+class MemoOptions(CommonMemoOptions):
     """How the memo is laid out and who signs it off."""
 
-    page_size: str = "A4"
     currency: str = "£"  # a symbol, or a code (GBP is shown as £; core.currency)
-    prepared_by: str | None = None
-    reviewed_by: str | None = None
-    approved_by: str | None = None
-    organisation: str | None = None
-    issued: _dt.date | None = None
-    signature_fields: bool = True
     extra_notes: tuple[str, ...] = field(default=())
     asset: AssetFacts | None = None
-
-    def names(self) -> dict[str, str | None]:
-        return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
-                "approved": self.approved_by}
 
     def with_signer(self, role: str, name: str) -> MemoOptions:
         """These options with ``name`` in the sign-off box of ``role``."""

@@ -63,21 +63,8 @@ METHOD = (
 
 
 @dataclass(frozen=True)
-class PlanMemoOptions:
+class PlanMemoOptions(blocks.CommonMemoOptions):
     """How the plan memo is laid out and who signs it off."""
-
-    page_size: str = "A4"
-    currency: str = "GBP"
-    prepared_by: str | None = None
-    reviewed_by: str | None = None
-    approved_by: str | None = None
-    organisation: str | None = None
-    issued: _dt.date | None = None
-    signature_fields: bool = True
-
-    def names(self) -> dict[str, str | None]:
-        return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
-                "approved": self.approved_by}
 
 
 @dataclass(frozen=True)
