@@ -1,7 +1,7 @@
 """The plan memo: one signed PDF for the capital plan (docs/method.md §8, §10).
 
 Laid out with the decision memo's page template, fonts, cautions and sign-off
-block (core.memo.render) and finished, signed and verified by the same
+block (core.memo.blocks) and finished, signed and verified by the same
 machinery (core.memo.sign, core.memo.verify): the plan's inputs ride inside as
 ``plan.tenure.json`` with their own SHA-256 fingerprint in the footer and the
 ``/TenureFingerprint`` Info key.
@@ -23,25 +23,15 @@ from reportlab.platypus import (
     CondPageBreak,
     KeepTogether,
     Paragraph,
-    SimpleDocTemplate,
     Spacer,
     Table,
     TableStyle,
 )
 
 from core.currency import currency_symbol, format_money
-from core.memo.cautions import caution_texts
-from core.memo.fonts import FR
-from core.memo.render import (
-    MARGIN,
-    PAGE_SIZES,
-    SignOffBlock,
-    _fit,
-    _p,
-    _styles,
-    _table,
-    money,
-)
+from core.memo import blocks
+from core.memo.blocks import PAGE_SIZES, _p, _styles, _table
+from core.memo.render import money
 from core.memo.sign import PLAN_ATTACHMENT_NAME, _atomic_write, finish_pdf, sign_pdf_bytes
 from core.plan.chart import capital_chart
 from core.plan.document import canonical, plan_document, plan_fingerprint, plan_title
@@ -73,21 +63,8 @@ METHOD = (
 
 
 @dataclass(frozen=True)
-class PlanMemoOptions:
+class PlanMemoOptions(blocks.CommonMemoOptions):
     """How the plan memo is laid out and who signs it off."""
-
-    page_size: str = "A4"
-    currency: str = "GBP"
-    prepared_by: str | None = None
-    reviewed_by: str | None = None
-    approved_by: str | None = None
-    organisation: str | None = None
-    issued: _dt.date | None = None
-    signature_fields: bool = True
-
-    def names(self) -> dict[str, str | None]:
-        return {"prepared": self.prepared_by, "reviewed": self.reviewed_by,
-                "approved": self.approved_by}
 
 
 @dataclass(frozen=True)
@@ -322,54 +299,22 @@ class _PlanBuilder:
 
     def cautions(self) -> None:
         self.h("Cautions")
-        for c in caution_texts():
-            self.add(Paragraph(escape(c), self.s["bullet"], bulletText="\u2022"))
+        self.add(*blocks.caution_bullets(self.s))
 
     def signoff(self, sink: dict) -> None:
-        s = self.s
-        issued = (self.o.issued or _dt.date.today()).isoformat()
-        names = self.o.names()
-        dates = {"prepared": issued} if names.get("prepared") else {}
-        block = SignOffBlock(self.w, names, dates, sink)
-        self.add(CondPageBreak(block.height + 60), KeepTogether([
-            _p("Sign-off", s["h"]),
-            _p("Each signatory signs digitally in their own box (tenure sign). A digital "
-               "signature seals the plan: any later change shows on verification (tenure "
-               "verify). Printed copies may be signed by hand in the same boxes.", s["small"]),
-            Spacer(1, 3), block]))
-
-
-def _footer(fingerprint: str, title: str, total: list[int], size: tuple[float, float]
-            ) -> Callable[[Any, Any], None]:
-    def draw(canvas: Any, doc: Any) -> None:
-        canvas.saveState()
-        w, _h = size
-        canvas.setStrokeColor(colors.HexColor("#999999"))
-        canvas.setLineWidth(0.4)
-        canvas.line(MARGIN, MARGIN - 6, w - MARGIN, MARGIN - 6)
-        canvas.setFont(FR(), 6.5)
-        canvas.setFillColor(colors.HexColor("#444444"))
-        canvas.drawString(MARGIN, MARGIN - 15, f"Plan fingerprint (SHA-256): {fingerprint}")
-        canvas.drawRightString(w - MARGIN, MARGIN - 15,
-                               f"page {doc.page} of {total[0] if total[0] else doc.page}")
-        canvas.drawString(MARGIN, MARGIN - 23, _fit(f"Tenure capital plan memo: {title}",
-                                                    w - 2 * MARGIN - 40, canvas, 6.5))
-        canvas.restoreState()
-    return draw
+        self.add(*blocks.signoff_section(self.w, self.s, self.o.names(), self.o.issued, sink,
+                                         "plan", "tenure sign"))
 
 
 def _build(plan: CapitalPlan, opts: PlanMemoOptions, fp: str, total: list[int],
            sink: dict) -> tuple[bytes, int]:
-    size = PAGE_SIZES[opts.page_size]
     buf = io.BytesIO()
     title = plan_title(plan)
-    doc = SimpleDocTemplate(
-        buf, pagesize=size, leftMargin=MARGIN, rightMargin=MARGIN, topMargin=MARGIN,
-        bottomMargin=MARGIN + 10, title=f"Plan memo: {title}",
+    doc = blocks.memo_template(
+        buf, opts.page_size, title=f"Plan memo: {title}",
         author=opts.prepared_by or opts.organisation or "Tenure",
         subject="Capital plan: replacements and capital by year under a budget",
-        creator="Tenure", keywords=f"tenure capital plan; plan fingerprint {fp}",
-        producer="Tenure (reportlab)")
+        keywords=f"tenure capital plan; plan fingerprint {fp}")
     b = _PlanBuilder(plan, opts, doc.width)
     b.header()
     b.by_year()
@@ -380,7 +325,9 @@ def _build(plan: CapitalPlan, opts: PlanMemoOptions, fp: str, total: list[int],
     b.method()
     b.cautions()
     b.signoff(sink)
-    foot = _footer(fp, title, total, size)
+    foot = blocks.page_footer(f"Plan fingerprint (SHA-256): {fp}",
+                              f"Tenure capital plan memo: {title}", total,
+                              PAGE_SIZES[opts.page_size])
     doc.build(b.story, onFirstPage=foot, onLaterPages=foot)
     return buf.getvalue(), doc.page
 
