@@ -25,6 +25,7 @@ import numpy as np
 
 from core.decision import keep_values
 from core.factors import pa
+from core.inflation import to_then_current
 from core.plan.inputs import AssetInput
 
 AFTER = -1  #: the year code of "after the horizon"
@@ -105,7 +106,7 @@ def option_table(assets: Sequence[AssetInput], horizon: int) -> OptionTable:
         inside = years[None, :] <= life[:, None]
         price = np.array([assets[k].price(assets[k].challenger) for k in plain])
         growth = np.array([assets[k].growth for k in plain])
-        cap = price[:, None] * np.power(growth[:, None], years[None, :])
+        cap = to_then_current(price[:, None], growth - 1.0, years)   # P (1+f)^y
         value[idx, :cols] = np.where(inside, v[:, :cols], 0.0)
         year[idx, :cols] = np.where(inside, years[None, :], AFTER)
         capital[idx, :cols] = np.where(inside, cap, 0.0)
@@ -155,7 +156,7 @@ def _period_options(a: AssetInput, h: int, k: int, value: np.ndarray, year: np.n
                 value[k, after_slot] = worth
             continue
         j = o.defender_years
-        cap = a.price(o.challenger) * a.growth ** j
+        cap = float(to_then_current([a.price(o.challenger)], a.growth - 1.0, [j])[0])
         value[k, slot], year[k, slot], capital[k, slot] = worth, j, cap
         net[k, slot] = cap - float(a.market_values[j])
         valid[k, slot] = True
