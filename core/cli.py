@@ -13,13 +13,13 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from core import demo, fleet_cli
 from core.errors import StudyError, error_line, escape_text
 from core.estimates import Study
 from core.loading import load_studies
-from core.memo import cli as memo_cli
-from core.memo import trust
-from core.plan import cli as plan_cli
+
+#: The commands this module defines; every other command is registered by its own module,
+#: imported only when the command line names none of these (a one-study run starts faster).
+OWN_COMMANDS = ("study", "export")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -35,6 +35,8 @@ def _select(studies: list[Study], title: str | None, file: str | None = None,
         return studies
     chosen = [s for s in studies if s.title == title]
     if not chosen and file is not None:  # a workbook's asset tag
+        from core import fleet_cli
+
         chosen = fleet_cli.tagged_studies(file, title, year)
     if not chosen:
         titles = "; ".join(s.title for s in studies)
@@ -127,7 +129,9 @@ def cmd_window(args: argparse.Namespace) -> int:
     return int(app.main(args.file) or 0)
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The ``tenure`` parser; with ``command`` one of ``OWN_COMMANDS`` only this module's
+    commands are registered (the other modules' are not imported)."""
     parser = _Parser(
         prog="tenure",
         description="Tenure: keep-or-replace decisions for production equipment. Without a "
@@ -168,15 +172,33 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--year", type=int, default=None, metavar="YEAR",
                         help="for a workbook: the studies of this year")
     export.set_defaults(func=cmd_export)
+    if command in OWN_COMMANDS:
+        return parser
+    from core import demo, fleet_cli
+    from core.memo import cli as memo_cli
+    from core.memo import trust
+    from core.plan import cli as plan_cli
+
     for module in (memo_cli, trust, demo, plan_cli, fleet_cli):
         module.register(sub)
     return parser
 
 
+def _command(argv: Sequence[str]) -> str | None:
+    """The command word of ``argv`` (its first argument that is not an option)."""
+    for arg in argv:
+        if arg == "--open":
+            return None
+        if not arg.startswith("-"):
+            return arg
+    return None
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     try:
-        parser = build_parser()
-        args = parser.parse_args(list(sys.argv[1:] if argv is None else argv))
+        words = list(sys.argv[1:] if argv is None else argv)
+        parser = build_parser(_command(words))
+        args = parser.parse_args(words)
         if getattr(args, "func", None) is None:
             return cmd_window(args)
         return int(args.func(args) or 0)
