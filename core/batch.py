@@ -104,41 +104,52 @@ def stack(studies: Sequence[Study]) -> Batch:
     dec_r, dec_d = array("q"), array("d")
     grad_r, grad_f, grad_g = array("q"), array("d"), array("d")
     grow_r, grow_f, grow_g = array("q"), array("d"), array("d")
+    # Bound appends: the loop runs once per alternative of the fleet, so each lookup counts.
+    counts_a, marr_a, infl_a, tc_a = counts_b.append, marr_b.append, infl_b.append, tc_b.append
+    life_a, price_a = life_b.append, price_b.append
+    sv_ra, sv_ve, ov_ra, ov_ve = sv_r.append, sv_v.extend, ov_r.append, ov_v.extend
+    dec_ra, dec_da = dec_r.append, dec_d.append
+    grad_ra, grad_fa, grad_ga = grad_r.append, grad_f.append, grad_g.append
+    grow_ra, grow_fa, grow_ga = grow_r.append, grow_f.append, grow_g.append
     r = 0
     for study in studies:
         challengers = study.challengers
-        counts_b.append(1 + len(challengers))
-        marr_b.append(study.marr)
+        counts_a(1 + len(challengers))
+        marr_a(study.marr)
         inflation = study.inflation
-        infl_b.append(inflation.rate if inflation is not None else 0.0)
-        tc_b.append(1 if inflation is not None and inflation.estimates == "then-current" else 0)
+        if inflation is None:
+            infl_a(0.0)
+            tc_a(0)
+        else:
+            infl_a(inflation.rate)
+            tc_a(1 if inflation.estimates == "then-current" else 0)
         for a in (study.defender, *challengers):
             k = a.max_life
-            life_b.append(k)
-            price_b.append(a.price)
+            life_a(k)
+            price_a(a.price)
             mv = a.market_values
             values = mv.values
             if values is not None:
-                sv_r.append(r)
-                sv_v.extend(values if len(values) == k else values[:k])
+                sv_ra(r)
+                sv_ve(values if len(values) == k else values[:k])
             else:
-                dec_r.append(r)
-                dec_d.append(mv.decline_rate or 0.0)
+                dec_ra(r)
+                dec_da(mv.decline_rate or 0.0)
             oc = a.operating_costs
             values = oc.values
             if values is not None:
-                ov_r.append(r)
-                ov_v.extend(values if len(values) == k else values[:k])
+                ov_ra(r)
+                ov_ve(values if len(values) == k else values[:k])
             else:
                 growth = oc.growth
                 if growth is not None:
-                    grow_r.append(r)
-                    grow_f.append(oc.first or 0.0)
-                    grow_g.append(growth)
+                    grow_ra(r)
+                    grow_fa(oc.first or 0.0)
+                    grow_ga(growth)
                 else:
-                    grad_r.append(r)
-                    grad_f.append(oc.first or 0.0)
-                    grad_g.append(oc.gradient or 0.0)
+                    grad_ra(r)
+                    grad_fa(oc.first or 0.0)
+                    grad_ga(oc.gradient or 0.0)
             extras = a.extra_costs
             if extras:
                 for extra in extras:

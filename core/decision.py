@@ -362,15 +362,19 @@ def decide_batch(annual_worth: FloatArray, valid: NDArray[np.bool_], first: IntA
     n_studies = first.shape[0]
     esl_idx = first_best(annual_worth, valid)
     at_esl = annual_worth[np.arange(m), esl_idx]
-    rounded = cents(at_esl)
-    study_of_row = np.repeat(np.arange(n_studies), counts)
-    order = np.lexsort((np.arange(m), -rounded, study_of_row))
+    # Each study's alternatives as a padded (S, K) grid of rows (K the most per study).
+    k_max = int(counts.max())
+    in_study = np.arange(k_max)[None, :] < counts[:, None]
+    grid = np.where(in_study, first[:, None] + np.arange(k_max)[None, :], first[:, None])
+    scores = np.where(in_study, cents(at_esl)[grid], -np.inf)
+    # Rank: 1 + the alternatives of the study ahead of this one (a larger AW at the cent,
+    # or an equal one listed earlier).
+    ahead = (scores[:, :, None] > scores[:, None, :]) | (
+        (scores[:, :, None] == scores[:, None, :])
+        & (np.arange(k_max)[:, None] < np.arange(k_max)[None, :]))
     rank = np.empty(m, dtype=np.intp)
-    rank[order] = np.arange(m) - first[study_of_row[order]] + 1
-    k_max = int(counts.max()) - 1
-    ch_valid = np.arange(k_max)[None, :] < (counts - 1)[:, None]
-    ch_rows = np.where(ch_valid, first[:, None] + 1 + np.arange(k_max)[None, :], first[:, None])
-    best = ch_rows[np.arange(n_studies), first_best(at_esl[ch_rows], ch_valid)]
+    rank[grid[in_study]] = (1 + np.sum(ahead & in_study[:, :, None], axis=1))[in_study]
+    best = grid[np.arange(n_studies), 1 + first_best(scores[:, 1:], in_study[:, 1:])]
     target = at_esl[best]
     d_aw = annual_worth[first]
     d_valid = valid[first]

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -255,6 +256,51 @@ def _risk(study: Study, best_challenger: str) -> RiskResult:
     return run_risk(study, best_challenger=best_challenger)
 
 
+@dataclass(frozen=True)
+class _Shared:
+    """What every study of one batch reads its before-tax figures from."""
+
+    batch: Batch
+    before: _BeforeTax
+    lists: dict[str, list]
+
+
+class _BatchStudyResult(StudyResult):
+    """A ``StudyResult`` whose before-tax basis and warnings are built from the batch arrays
+    when first read, then kept.
+
+    Only studies whose remaining work cannot fail take this form (no study period, tax,
+    uncertainty or technology block: building their objects is reading and formatting
+    figures already computed), so a fleet pays for the objects a caller reads, not for
+    every study's.  Everything else about it is a ``StudyResult``: equal, typed and frozen.
+    """
+
+    def __init__(self, study: Study, shared: _Shared, index: int) -> None:
+        # Not the dataclass __init__: before_tax and warnings come from the properties below.
+        object.__setattr__(self, "__dict__", {
+            "study": study, "after_tax": None, "risk": None, "technology": None,
+            "_shared": shared, "_index": index})
+
+    @cached_property
+    def before_tax(self) -> BasisResult:  # type: ignore[override]
+        shared: _Shared = self.__dict__["_shared"]
+        return _before_tax_basis(self.study, self.__dict__["_index"], shared.batch,
+                                 shared.before, shared.lists)
+
+    @cached_property
+    def warnings(self) -> tuple[str, ...]:  # type: ignore[override]
+        shared: _Shared = self.__dict__["_shared"]
+        bt = shared.before
+        return _warnings(self.study, bt.S, shared.batch.rows(self.__dict__["_index"]),
+                         bt.negative_s, bt.negative_c)
+
+
+def _batch_ready(study: Study) -> bool:
+    """True when the study's result is the batch pass alone (see ``_BatchStudyResult``)."""
+    return (study.study_period is None and study.tax is None and study.uncertainty is None
+            and not has_technology(study))
+
+
 def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     """Every AW, ESL, the recommendation, study-period options and the replacement value of
     each study, in order (the module docstring gives the steps).
@@ -286,8 +332,12 @@ def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
         "mc": dec.marginal_cost_next.tolist(), "keep": dec.keep_next_year.tolist(),
         "rv": dec.replacement_value.tolist(), "marr": batch.marr.tolist(),
         "price": batch.price.tolist()}
-    out = []
+    shared = _Shared(batch, bt, lists)
+    out: list[StudyResult] = []
     for s, study in enumerate(studies):
+        if _batch_ready(study):
+            out.append(_BatchStudyResult(study, shared, s))
+            continue
         before = _before_tax_basis(study, s, batch, bt, lists)
         after = _after_tax_basis(study) if study.tax is not None else None
         decision = after if after is not None else before
