@@ -19,8 +19,12 @@ def has_technology(study: Study) -> bool:
     ...     Study("s", 0.1, a, (a,), technology=Technology(3)))
     (False, True)
     """
-    return study.technology is not None or any(c.technology is not None
-                                               for c in study.challengers)
+    if study.technology is not None:
+        return True
+    for c in study.challengers:  # a loop, not any(...): it runs for every study of a fleet
+        if c.technology is not None:
+            return True
+    return False
 
 
 def horizon(study: Study) -> int:
