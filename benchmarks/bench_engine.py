@@ -33,7 +33,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
-from timing import best_of, cli_wall, wall  # noqa: E402
+from timing import alternating_walls, best_of  # noqa: E402
 
 from core.batch import stack  # noqa: E402
 from core.study import _before_tax, run_studies  # noqa: E402
@@ -245,9 +245,11 @@ def main() -> int:
         fleet_file.write_text(json.dumps(doc), encoding="utf-8")
         one_file.write_text(json.dumps({"format": "tenure-study", "version": 1,
                                         **doc["studies"][0]}), encoding="utf-8")
-        t_numpy = wall([sys.executable, "-c", "import numpy"], args.repeat)
-        t_cli_one = cli_wall(["study", str(one_file), "--json"], args.repeat)
-        t_cli_fleet = cli_wall(["study", str(fleet_file), "--json"], args.repeat)
+        cli = [sys.executable, "-m", "core.cli", "study"]
+        walls = alternating_walls({"numpy": [sys.executable, "-c", "import numpy"],
+                                   "one": [*cli, str(one_file), "--json"],
+                                   "fleet": [*cli, str(fleet_file), "--json"]}, args.repeat)
+        t_numpy, t_cli_one, t_cli_fleet = walls["numpy"], walls["one"], walls["fleet"]
     fleet_ratio = t_cli_fleet / t_cli_one
     start_ratio = t_cli_one / t_numpy
     print(f"\n`python -c 'import numpy'`:          {t_numpy:7.3f} s (best of {args.repeat})")

@@ -37,24 +37,57 @@ def best_of(fn: Callable[[], T], repeat: int = 1) -> tuple[float, T]:
     return best, value
 
 
-def wall(cmd: list[str], repeat: int = 1, env: dict[str, str] | None = None) -> float:
-    """Best wall time of ``repeat`` runs of ``cmd`` (offscreen, cwd = the repository root,
-    ``env`` added to the environment); a failing run stops the benchmark with its stderr."""
-    full_env = {**os.environ, "QT_QPA_PLATFORM": "offscreen", **(env or {})}
-    best = float("inf")
-    for _ in range(max(repeat, 1)):
-        start = time.perf_counter()
-        proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                              env=full_env, cwd=ROOT, check=False)
-        best = min(best, time.perf_counter() - start)
-        if proc.returncode != 0:
-            raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.decode()[-500:]}")
-    return best
+#: Compiled bytecode for the timed commands, kept out of the working tree.  An installed
+#: copy runs from bytecode (pip compiles it at install time); a shell that sets
+#: PYTHONDONTWRITEBYTECODE would otherwise make every run recompile the project from source.
+PYCACHE = Path(tempfile.gettempdir()) / "tenure-bench-pycache"
 
 
-def cli_wall(args: list[str], repeat: int = 1, env: dict[str, str] | None = None) -> float:
+def _environment(env: dict[str, str] | None) -> dict[str, str]:
+    full = {**os.environ, "QT_QPA_PLATFORM": "offscreen", "PYTHONPYCACHEPREFIX": str(PYCACHE),
+            **(env or {})}
+    full.pop("PYTHONDONTWRITEBYTECODE", None)
+    return full
+
+
+def _run(cmd: list[str], env: dict[str, str]) -> float:
+    start = time.perf_counter()
+    proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env,
+                          cwd=ROOT, check=False)
+    elapsed = time.perf_counter() - start
+    if proc.returncode != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.decode()[-500:]}")
+    return elapsed
+
+
+def wall(cmd: list[str], repeat: int = 1, env: dict[str, str] | None = None,
+         warm: bool = True) -> float:
+    """Best wall time of ``repeat`` runs of ``cmd``, after one untimed run that compiles the
+    bytecode when ``warm`` (offscreen, cwd = the repository root, ``env`` added to the
+    environment); a failing run stops the benchmark with its stderr."""
+    full_env = _environment(env)
+    if warm:
+        _run(cmd, full_env)
+    return min(_run(cmd, full_env) for _ in range(max(repeat, 1)))
+
+
+def cli_wall(args: list[str], repeat: int = 1, env: dict[str, str] | None = None,
+             warm: bool = True) -> float:
     """Best wall time of ``python -m core.cli ARGS`` (what `tenure ARGS` runs)."""
-    return wall([sys.executable, "-m", "core.cli", *args], repeat, env)
+    return wall([sys.executable, "-m", "core.cli", *args], repeat, env, warm)
+
+
+def alternating_walls(commands: dict[K, list[str]], repeat: int = 1) -> dict[K, float]:
+    """Best wall time of each command, one untimed run of each first, then timed in
+    alternation round by round (a slow spell of the machine lands on every case)."""
+    env = _environment(None)
+    for cmd in commands.values():
+        _run(cmd, env)
+    best = {name: float("inf") for name in commands}
+    for _ in range(max(repeat, 1)):
+        for name, cmd in commands.items():
+            best[name] = min(best[name], _run(cmd, env))
+    return best
 
 
 def study_cli_walls(documents: dict[K, dict], repeat: int = 1,
@@ -71,5 +104,6 @@ def study_cli_walls(documents: dict[K, dict], repeat: int = 1,
         cli_wall(["study", str(next(iter(paths.values()))), "--json"], env=env)
         for _ in range(max(repeat, 1)):
             for name, path in paths.items():
-                best[name] = min(best[name], cli_wall(["study", str(path), "--json"], env=env))
+                best[name] = min(best[name], cli_wall(["study", str(path), "--json"], env=env,
+                                                      warm=False))
     return best

@@ -275,11 +275,17 @@ class _BatchStudyResult(StudyResult):
     every study's.  Everything else about it is a ``StudyResult``: equal, typed and frozen.
     """
 
+    after_tax = None
+    risk = None
+    technology = None
+
     def __init__(self, study: Study, shared: _Shared, index: int) -> None:
         # Not the dataclass __init__: before_tax and warnings come from the properties below.
-        object.__setattr__(self, "__dict__", {
-            "study": study, "after_tax": None, "risk": None, "technology": None,
-            "_shared": shared, "_index": index})
+        # (run_studies makes these without calling __init__; this is the readable form.)
+        attributes = self.__dict__
+        attributes["study"] = study
+        attributes["_shared"] = shared
+        attributes["_index"] = index
 
     @cached_property
     def before_tax(self) -> BasisResult:  # type: ignore[override]
@@ -301,6 +307,7 @@ def _batch_ready(study: Study) -> bool:
             and not has_technology(study))
 
 
+_new = object.__new__
 def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     """Every AW, ESL, the recommendation, study-period options and the replacement value of
     each study, in order (the module docstring gives the steps).
@@ -336,7 +343,14 @@ def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     out: list[StudyResult] = []
     for s, study in enumerate(studies):
         if _batch_ready(study):
-            out.append(_BatchStudyResult(study, shared, s))
+            # _BatchStudyResult(study, shared, s) without the call overhead: this runs once
+            # per study of a fleet and costs more than the numpy pass per study otherwise.
+            lazy = _new(_BatchStudyResult)
+            attributes = lazy.__dict__
+            attributes["study"] = study
+            attributes["_shared"] = shared
+            attributes["_index"] = s
+            out.append(lazy)
             continue
         before = _before_tax_basis(study, s, batch, bt, lists)
         after = _after_tax_basis(study) if study.tax is not None else None
