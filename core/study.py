@@ -57,20 +57,54 @@ from core.technology import has_technology, technology_plan
 
 
 @dataclass(frozen=True)
-class _BeforeTax:
-    """The before-tax arrays of a whole batch (rows as in ``Batch``)."""
+class _Views:
+    """The before-tax arrays only the views read (not the decision), for a whole batch."""
 
-    S: FloatArray            # market values, study money
-    Op: FloatArray            # operating costs, study money
-    X: FloatArray            # one-off costs, study money
-    annual_worth: FloatArray  # constant money at the real MARR
-    capital_recovery: FloatArray
-    operating: FloatArray
     marginal_cost: FloatArray
     present_worth: FloatArray
     negative_s: list[bool]
     negative_c: list[bool]
+
+
+@dataclass(frozen=True)
+class _BeforeTax:
+    """The before-tax arrays of a whole batch (rows as in ``Batch``): what the decision
+    needs, computed by the batch pass; ``views`` on first read."""
+
+    batch: Batch
+    S: FloatArray            # market values, study money
+    Op: FloatArray            # operating costs, study money
+    X: FloatArray            # one-off costs, study money
+    C: FloatArray            # Op + X
+    S_c: FloatArray           # market values and yearly costs in constant money
+    C_c: FloatArray
+    annual_worth: FloatArray  # constant money at the real MARR
+    capital_recovery: FloatArray
+    operating: FloatArray
+    factors: FactorTable      # per row
     decision: BatchDecision
+
+    @cached_property
+    def lists(self) -> dict[str, list]:
+        """The per-row and per-study figures as Python lists (indexing numpy scalars one by
+        one costs more than the numpy pass itself)."""
+        dec, b = self.decision, self.batch
+        return {
+            "esl": dec.economic_life.tolist(), "at": dec.at_esl.tolist(),
+            "rank": dec.rank.tolist(), "best": dec.best.tolist(), "target": dec.target.tolist(),
+            "replace": dec.replace.tolist(), "planned": dec.planned.tolist(),
+            "mc": dec.marginal_cost_next.tolist(), "keep": dec.keep_next_year.tolist(),
+            "rv": dec.replacement_value.tolist(), "marr": b.marr.tolist(),
+            "price": b.price.tolist()}
+
+    @cached_property
+    def views(self) -> _Views:
+        b, S, C = self.batch, self.S, self.C
+        mask = b.mask
+        return _Views(marginal_cost(b.price, self.S_c, self.C_c, b.marr),
+                      self.annual_worth / self.factors.capital_recovery,
+                      np.any(mask & (S < 0), axis=1).tolist(),
+                      np.any(mask & (C < 0), axis=1).tolist())
 
 
 def _repeat(table: FactorTable, counts: np.ndarray) -> FactorTable:
@@ -91,17 +125,13 @@ def _before_tax(batch: Batch) -> _BeforeTax:
     table = factor_table(study_rate, batch.width)
     rows = _repeat(table, batch.counts)
     aw, cr, op = annual_worth_parts(batch.price, S_c, C_c, rows)
-    mc = marginal_cost(batch.price, S_c, C_c, batch.marr)
-    mask = batch.mask
-    decision = decide_batch(aw, mask, batch.first, batch.counts, table.annuity,
+    decision = decide_batch(aw, batch.mask, batch.first, batch.counts, table.annuity,
                             table.capital_recovery, batch.price[batch.first])
-    return _BeforeTax(S, Op, X, aw, cr, op, mc, aw / rows.capital_recovery,
-                      np.any(mask & (S < 0), axis=1).tolist(),
-                      np.any(mask & (C < 0), axis=1).tolist(), decision)
+    return _BeforeTax(batch, S, Op, X, C, S_c, C_c, aw, cr, op, rows, decision)
 
 
-def _warnings(study: Study, S: FloatArray, rows: range, negative_s: list[bool],
-              negative_c: list[bool]) -> tuple[str, ...]:
+def _warnings(study: Study, S: FloatArray, rows: range, views: _Views) -> tuple[str, ...]:
+    negative_s, negative_c = views.negative_s, views.negative_c
     notes = []
     for alt, r in zip(study.alternatives, rows, strict=True):
         if alt.role == "defender" and alt.price < 0:
@@ -140,10 +170,11 @@ def _recommend(study: Study, aw: Sequence[FloatArray], esl: Sequence[int],
                                  check, basis)
 
 
-def _before_tax_basis(study: Study, s: int, batch: Batch, bt: _BeforeTax,
-                      lists: dict[str, list]) -> BasisResult:
+def _before_tax_basis(study: Study, s: int, bt: _BeforeTax) -> BasisResult:
+    batch, lists = bt.batch, bt.lists
     rows = batch.rows(s)
     dec = bt.decision
+    views = bt.views
     esl = lists["esl"][rows.start:rows.stop]
     at = lists["at"][rows.start:rows.stop]
     rank = lists["rank"][rows.start:rows.stop]
@@ -159,7 +190,7 @@ def _before_tax_basis(study: Study, s: int, batch: Batch, bt: _BeforeTax,
     for j, (alt, r) in enumerate(zip(study.alternatives, rows, strict=True)):
         k = alt.max_life
         aw, cr, op = aw_rows[j], bt.capital_recovery[r, :k], bt.operating[r, :k]
-        mc = bt.marginal_cost[r, :k]
+        mc = views.marginal_cost[r, :k]
         at_j = at[j]
         if then_current:  # report in the money the study states (docs/method.md §4)
             assert study.inflation is not None
@@ -173,7 +204,7 @@ def _before_tax_basis(study: Study, s: int, batch: Batch, bt: _BeforeTax,
             name=alt.name, role=alt.role, price=lists["price"][r], max_life=k,
             market_values=bt.S[r, :k], operating_costs=bt.Op[r, :k], extra_costs=bt.X[r, :k],
             annual_worth=aw_rep, annual_worth_constant=aw, capital_recovery=cr, operating=op,
-            marginal_cost=mc, present_worth=bt.present_worth[r, :k], economic_life=esl[j],
+            marginal_cost=mc, present_worth=views.present_worth[r, :k], economic_life=esl[j],
             annual_worth_at_economic_life=at_j, rank=rank[j]))
     return BasisResult(basis="before-tax", rate=rate, money=inflation.money_label(study),
                        alternatives=tuple(alts), recommendation=rec, one_more_year=check,
@@ -256,15 +287,6 @@ def _risk(study: Study, best_challenger: str) -> RiskResult:
     return run_risk(study, best_challenger=best_challenger)
 
 
-@dataclass(frozen=True)
-class _Shared:
-    """What every study of one batch reads its before-tax figures from."""
-
-    batch: Batch
-    before: _BeforeTax
-    lists: dict[str, list]
-
-
 class _BatchStudyResult(StudyResult):
     """A ``StudyResult`` whose before-tax basis and warnings are built from the batch arrays
     when first read, then kept.
@@ -273,41 +295,27 @@ class _BatchStudyResult(StudyResult):
     uncertainty or technology block: building their objects is reading and formatting
     figures already computed), so a fleet pays for the objects a caller reads, not for
     every study's.  Everything else about it is a ``StudyResult``: equal, typed and frozen.
+    ``run_studies`` makes it with ``study``, ``_before`` (the batch's ``_BeforeTax``) and
+    ``_index`` (the study's place in the batch) in its ``__dict__``.
     """
 
     after_tax = None
     risk = None
     technology = None
 
-    def __init__(self, study: Study, shared: _Shared, index: int) -> None:
-        # Not the dataclass __init__: before_tax and warnings come from the properties below.
-        # (run_studies makes these without calling __init__; this is the readable form.)
-        attributes = self.__dict__
-        attributes["study"] = study
-        attributes["_shared"] = shared
-        attributes["_index"] = index
-
     @cached_property
     def before_tax(self) -> BasisResult:  # type: ignore[override]
-        shared: _Shared = self.__dict__["_shared"]
-        return _before_tax_basis(self.study, self.__dict__["_index"], shared.batch,
-                                 shared.before, shared.lists)
+        return _before_tax_basis(self.study, self.__dict__["_index"], self.__dict__["_before"])
 
     @cached_property
     def warnings(self) -> tuple[str, ...]:  # type: ignore[override]
-        shared: _Shared = self.__dict__["_shared"]
-        bt = shared.before
-        return _warnings(self.study, bt.S, shared.batch.rows(self.__dict__["_index"]),
-                         bt.negative_s, bt.negative_c)
-
-
-def _batch_ready(study: Study) -> bool:
-    """True when the study's result is the batch pass alone (see ``_BatchStudyResult``)."""
-    return (study.study_period is None and study.tax is None and study.uncertainty is None
-            and not has_technology(study))
+        bt: _BeforeTax = self.__dict__["_before"]
+        return _warnings(self.study, bt.S, bt.batch.rows(self.__dict__["_index"]), bt.views)
 
 
 _new = object.__new__
+
+
 def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     """Every AW, ESL, the recommendation, study-period options and the replacement value of
     each study, in order (the module docstring gives the steps).
@@ -323,36 +331,31 @@ def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     >>> round(r.recommendation.replacement_value, 2)
     18062.4
     """
-    for study in studies:
-        if not study.challengers:
-            raise StudyError("challengers", "a study needs at least one challenger")
     if not studies:
         return []
     batch = stack(studies)
+    if (batch.counts < 2).any():
+        raise StudyError("challengers", "a study needs at least one challenger")
     bt = _before_tax(batch)
-    dec = bt.decision
-    # Python lists: indexing numpy scalars one by one costs more than the numpy pass itself.
-    lists: dict[str, list] = {
-        "esl": dec.economic_life.tolist(), "at": dec.at_esl.tolist(), "rank": dec.rank.tolist(),
-        "best": dec.best.tolist(), "target": dec.target.tolist(),
-        "replace": dec.replace.tolist(), "planned": dec.planned.tolist(),
-        "mc": dec.marginal_cost_next.tolist(), "keep": dec.keep_next_year.tolist(),
-        "rv": dec.replacement_value.tolist(), "marr": batch.marr.tolist(),
-        "price": batch.price.tolist()}
-    shared = _Shared(batch, bt, lists)
     out: list[StudyResult] = []
     for s, study in enumerate(studies):
-        if _batch_ready(study):
-            # _BatchStudyResult(study, shared, s) without the call overhead: this runs once
-            # per study of a fleet and costs more than the numpy pass per study otherwise.
-            lazy = _new(_BatchStudyResult)
-            attributes = lazy.__dict__
-            attributes["study"] = study
-            attributes["_shared"] = shared
-            attributes["_index"] = s
-            out.append(lazy)
-            continue
-        before = _before_tax_basis(study, s, batch, bt, lists)
+        # A _BatchStudyResult when nothing but the batch pass is left to do; made without
+        # an __init__ call (this loop runs once per study of a fleet, and calls would cost
+        # more than the numpy pass per study).
+        if (study.study_period is None and study.tax is None and study.uncertainty is None
+                and study.technology is None):
+            for challenger in study.challengers:
+                if challenger.technology is not None:
+                    break
+            else:
+                lazy = _new(_BatchStudyResult)
+                attributes = lazy.__dict__
+                attributes["study"] = study
+                attributes["_before"] = bt
+                attributes["_index"] = s
+                out.append(lazy)
+                continue
+        before = _before_tax_basis(study, s, bt)
         after = _after_tax_basis(study) if study.tax is not None else None
         decision = after if after is not None else before
         risk = (_risk(study, decision.recommendation.best_challenger)
@@ -360,8 +363,8 @@ def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
         plan = technology_plan(study) if has_technology(study) else None
         out.append(StudyResult(
             study=study, before_tax=before, after_tax=after,
-            risk=risk, warnings=_warnings(study, bt.S, batch.rows(s), bt.negative_s,
-                                          bt.negative_c), technology=plan))
+            risk=risk, warnings=_warnings(study, bt.S, batch.rows(s), bt.views),
+            technology=plan))
     return out
 
 
