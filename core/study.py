@@ -4,6 +4,8 @@
 ``run_studies([s])[0]``.  A fleet is a batch of studies: every study goes through the same
 path, so a study's figures do not depend on what else is in the batch.
 
+A fleet is run in chunks of ``CHUNK`` studies (for the CPU cache; no figure depends on it).
+
 1. ``core.batch.stack`` pads every alternative of every study into (M, N) arrays with a
    mask; ``core.batch.schedules`` builds S, Op and X (``core.cashflows`` kernels).
 2. Before tax, in one numpy pass over the batch: estimates stated in then-current money
@@ -315,6 +317,12 @@ class _BatchStudyResult(StudyResult):
 
 _new = object.__new__
 
+#: Studies per batch pass.  A fleet runs in chunks whose (rows, years) tables stay in the
+#: CPU cache: measured with benchmarks/bench_engine.py, chunks of 512-1,024 studies run a
+#: 5,000-study fleet about a quarter faster than one pass.  Every row is computed on its
+#: own, so the figures do not depend on the chunking.
+CHUNK = 1024
+
 
 def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     """Every AW, ESL, the recommendation, study-period options and the replacement value of
@@ -331,8 +339,14 @@ def run_studies(studies: Sequence[Study]) -> list[StudyResult]:
     >>> round(r.recommendation.replacement_value, 2)
     18062.4
     """
-    if not studies:
-        return []
+    out: list[StudyResult] = []
+    for start in range(0, len(studies), CHUNK):
+        out.extend(_run_chunk(studies[start:start + CHUNK]))
+    return out
+
+
+def _run_chunk(studies: Sequence[Study]) -> list[StudyResult]:
+    """``run_studies`` of at most ``CHUNK`` studies: one batch pass."""
     batch = stack(studies)
     if (batch.counts < 2).any():
         raise StudyError("challengers", "a study needs at least one challenger")

@@ -19,6 +19,7 @@ from core.cli import main
 from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
 from core.fleet import run_fleet
 from core.jsonout import _list, study_json
+from core.results import StudyResult
 from core.study import run_study
 
 
@@ -329,3 +330,43 @@ def test_batch_with_tax_inflation_and_periods_equals_single_runs() -> None:
     for got, study in zip(batch, studies, strict=True):
         _same(got, run_study(study))
     assert sum(r.after_tax is not None for r in batch) == 40
+
+
+def test_chunked_fleet_equals_one_pass_and_single_runs(monkeypatch) -> None:
+    # Source: core.study.run_study (reference).  run_studies runs a fleet in chunks of
+    # CHUNK studies; the chunk size must not change a single bit.  Chunks of 7 put studies
+    # of every kind (plain, study period) on both sides of a chunk edge.
+    import core.study
+
+    rng = random.Random(7)
+    studies = [_random_study(rng, k) for k in range(60)]
+    singles = [run_study(s) for s in studies]
+    monkeypatch.setattr(core.study, "CHUNK", 7)
+    chunked = core.study.run_studies(studies)
+    monkeypatch.setattr(core.study, "CHUNK", 10_000)
+    whole = core.study.run_studies(studies)
+    for a, b, c in zip(chunked, whole, singles, strict=True):
+        _same(a, c)
+        _same(b, c)
+
+
+def test_plain_results_are_built_when_read_and_behave_as_study_results() -> None:
+    # A plain study's objects are built from the batch arrays on first read
+    # (core.study._BatchStudyResult): they must be StudyResults in every way that matters,
+    # bit for bit what run_study gives, frozen, copied by dataclasses.replace.
+    rng = random.Random(11)
+    plain = [dataclasses.replace(_random_study(rng, k), study_period=None) for k in range(5)]
+    (first, *_) = results = run_fleet(plain)
+    assert all(isinstance(r, StudyResult) for r in results)
+    assert "before_tax" not in vars(first)          # not built yet ...
+    basis = first.before_tax
+    assert first.before_tax is basis                 # ... then built once and kept
+    assert first.after_tax is None and first.risk is None and first.technology is None
+    assert first.decision is basis and first.recommendation is basis.recommendation
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        first.warnings = ()  # type: ignore[misc]
+    _same(first, run_study(plain[0]))
+    assert repr(first).startswith("_BatchStudyResult(study=Study(")
+    replaced = dataclasses.replace(first, warnings=("checked",))
+    assert isinstance(replaced, StudyResult) and replaced.before_tax is basis
+    assert replaced.warnings == ("checked",) and replaced.after_tax is None
