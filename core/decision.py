@@ -45,34 +45,63 @@ CENT = 0.005
 IntArray = NDArray[np.intp]
 
 
-def cents(values: ArrayLike) -> FloatArray:
-    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison."""
-    return np.round(np.asarray(values, dtype=float), 2)
+def cents(values: ArrayLike, out: FloatArray | None = None) -> FloatArray:
+    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison
+    (into ``out`` if given)."""
+    return np.round(np.asarray(values, dtype=float), 2, out=out)
 
 
-def first_best(scores: ArrayLike, valid: ArrayLike | None = None) -> IntArray:
+def first_best(scores: ArrayLike, valid: ArrayLike | None = None, *,
+               work: FloatArray | None = None) -> IntArray:
     """Index of the first largest ``scores`` rounded to the cent along the last axis,
-    among the ``valid`` entries.
+    among the ``valid`` entries (a NaN counts as the largest, as in ``np.argmax``).
+
+    ``work``: an array of the shape of ``scores`` to round into instead of a new one (a
+    buffer reused from chunk to chunk of risk trials).
 
     >>> first_best([[-3.0, -2.0, -2.001]]).tolist(), int(first_best([5.0, 9.0], [True, False]))
     ([1], 0)
+    >>> tall = np.asfortranarray([[-3.0, -2.0, -2.001], [1.0, np.nan, 2.0], [4.0, 4.0, 1.0],
+    ...                           [0.0, -1.0, 0.004], [-np.inf, -np.inf, -np.inf]])
+    >>> first_best(tall).tolist()
+    [1, 1, 0, 0, 0]
     """
-    rounded = cents(scores)
+    rounded = cents(scores, out=work)
     if valid is not None:
         rounded = np.where(valid, rounded, -np.inf)
+    if rounded.ndim == 2 and rounded.shape[0] > rounded.shape[1] \
+            and rounded.strides[0] == rounded.itemsize:
+        return _first_best_by_column(rounded)
     return np.argmax(rounded, axis=-1)
 
 
-def economic_life(annual_worth: ArrayLike, valid: ArrayLike | None = None) -> IntArray:
+def _first_best_by_column(rounded: FloatArray) -> IntArray:
+    """``np.argmax(rounded, axis=-1)`` for a tall (m, n) array laid out column by column
+    (risk trials, trial-contiguous), by whole-column operations: ``np.argmax`` would copy
+    it to rows first and then loop over m short rows."""
+    n = rounded.shape[1]
+    top = rounded.max(axis=-1)
+    hits = rounded == top[:, None]
+    weight = np.arange(n, 0, -1, dtype=np.int8 if n < 2**7 else np.intp)
+    best = n - np.multiply(hits, weight).max(axis=-1).astype(np.intp)  # the first hit
+    missing = np.isnan(top)
+    if missing.any():
+        best[missing] = np.argmax(rounded[missing], axis=-1)
+    return best
+
+
+def economic_life(annual_worth: ArrayLike, valid: ArrayLike | None = None, *,
+                  work: FloatArray | None = None) -> IntArray:
     """Economic service life: the k (1-based) with the largest AW; exact ties (to the cent) go
-    to the shorter life.  ``valid`` masks padded years (k > max_life) of a batch.
+    to the shorter life.  ``valid`` masks padded years (k > max_life) of a batch; ``work``
+    as in ``first_best``.
 
     >>> int(economic_life([-5000.0, -4761.9, -4761.904]))
     2
     >>> economic_life([[-3.0, -2.0], [-1.0, -1.001]]).tolist()
     [2, 1]
     """
-    return first_best(annual_worth, valid) + 1
+    return first_best(annual_worth, valid, work=work) + 1
 
 
 def replaces(challenger_aw: ArrayLike, defender_aw: ArrayLike) -> NDArray[np.bool_]:

@@ -127,7 +127,7 @@ def simulate(study: Study, trials: int | None = None, seed: int | None = None,
         if cancelled is not None and cancelled():
             raise RiskCancelled(f"cancelled after {done} of {trials} trials")
         size = min(step, trials - done)
-        out = model.evaluate(draws.next(size), size)
+        out = model.evaluate(draws.next(size), size, reuse=True)
         sl = slice(done, done + size)
         replace[sl] = out.replace
         difference[sl] = out.difference
