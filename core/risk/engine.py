@@ -324,18 +324,22 @@ class Model:
         aw: dict[str, np.ndarray] = {}
         esl: dict[str, np.ndarray] = {}
         at_esl: dict[str, np.ndarray] = {}
+        rows = np.arange(size)
         for alt in study.alternatives:
             raw = self._annual_worth(alt, values, marr, factors, size, buffers)
-            schedule = np.broadcast_to(raw, (size, alt.max_life))
-            work = buffers.get("CR", size, alt.max_life) if raw.ndim > 1 else None
+            n = alt.max_life
+            if raw.shape == (size, n):
+                schedule, work = raw, buffers.get("CR", size, n)
+            else:
+                schedule, work = np.broadcast_to(raw, (size, n)), None
             life = economic_life(schedule, work=work)
             aw[alt.name] = schedule
             esl[alt.name] = life
-            at_esl[alt.name] = np.take_along_axis(schedule, life[:, None] - 1, axis=-1)[:, 0]
+            at_esl[alt.name] = schedule[rows, life - 1]
         d_name = study.defender.name
         ch_aw = np.stack([at_esl[c.name] for c in study.challengers], axis=-1)
         best = first_best(ch_aw)
-        c_best = np.take_along_axis(ch_aw, best[:, None], axis=-1)[:, 0]
+        c_best = ch_aw[rows, best]
         if study.study_period is None:
             replace_now = replaces(c_best, at_esl[d_name])
             difference = c_best - at_esl[d_name]
