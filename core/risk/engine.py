@@ -337,7 +337,9 @@ class Model:
             esl[alt.name] = life
             at_esl[alt.name] = schedule[rows, life - 1]
         d_name = study.defender.name
-        ch_aw = np.stack([at_esl[c.name] for c in study.challengers], axis=-1)
+        ch_aw = np.empty((len(study.challengers), size)).T  # trial-contiguous, as above
+        for j, c in enumerate(study.challengers):
+            ch_aw[:, j] = at_esl[c.name]
         best = first_best(ch_aw)
         c_best = ch_aw[rows, best]
         if study.study_period is None:
