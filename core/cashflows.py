@@ -55,8 +55,8 @@ def gradient_costs(first: ArrayLike, gradient: ArrayLike, ages: ArrayLike,
     >>> gradient_costs([[100.0], [50.0]], 10.0, [0.0, 1.0], out=np.empty((2, 2))).tolist()
     [[100.0, 110.0], [50.0, 60.0]]
     """
-    if out is None:
-        return np.add(first, np.multiply(ages, gradient))
+    if out is None or np.size(gradient) == 1:
+        return np.add(first, np.multiply(ages, gradient), out=out)
     np.multiply(ages, gradient, out=out)
     return np.add(first, out, out=out)
 
