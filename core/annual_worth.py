@@ -55,17 +55,26 @@ def running_sum(values: FloatArray) -> FloatArray:
 
 
 def annual_worth_parts(price: ArrayLike, market_values: ArrayLike, costs: ArrayLike,
-                       factors: FactorTable) -> tuple[FloatArray, FloatArray, FloatArray]:
+                       factors: FactorTable,
+                       out: tuple[FloatArray, FloatArray, FloatArray] | None = None
+                       ) -> tuple[FloatArray, FloatArray, FloatArray]:
     """(AW_k, CR_k, OP_k) for k = 1..n from a factor table (equations in the module docstring).
 
     ``price`` (...), ``market_values`` and ``costs`` (..., n), ``factors`` (..., n) or (n,):
     the kernel under ``annual_worth_schedule``, the batch of studies and the risk trials.
+    ``out``: three arrays of the full batch shape to write (AW, CR, OP) into, in any memory
+    layout (the risk engine passes batch-contiguous ones); the values are the same.
 
     >>> from core.factors import factor_table
     >>> aw, cr, op = annual_worth_parts(10000.0, [7000.0, 5000.0], [1000.0, 1500.0],
     ...                                 factor_table(0.10, 2))
     >>> aw.round(2).tolist(), cr.round(2).tolist()
     ([-5000.0, -4619.05], [4000.0, 3380.95])
+    >>> bufs = tuple(np.empty((2, 1)).T for _ in range(3))
+    >>> aw = annual_worth_parts([10000.0], [[7000.0, 5000.0]], [1000.0, 1500.0],
+    ...                         factor_table(0.10, 2), out=bufs)[0]
+    >>> aw is bufs[0], aw.round(2).tolist()
+    (True, [[-5000.0, -4619.05]])
     """
     P_col = np.asarray(price, dtype=float)[..., None]
     S = np.asarray(market_values, dtype=float)
@@ -75,15 +84,20 @@ def annual_worth_parts(price: ArrayLike, market_values: ArrayLike, costs: ArrayL
     # trials, spends its time allocating otherwise); the same operations in the same order.
     shape = np.broadcast_shapes(P_col.shape, cap.shape, S.shape, C.shape,
                                 factors.sinking_fund.shape, factors.discount.shape)
-    capital_recovery = np.multiply(P_col, cap, out=np.empty(shape))
-    operating = np.multiply(S, factors.sinking_fund, out=np.empty(shape))
+    if out is None:
+        annual_worth, capital_recovery, operating = (np.empty(shape) for _ in range(3))
+    else:
+        annual_worth, capital_recovery, operating = out
+        if any(a.shape != shape for a in out):
+            raise ValueError(f"out arrays must have the batch shape {shape}")
+    np.multiply(P_col, cap, out=capital_recovery)
+    np.multiply(S, factors.sinking_fund, out=operating)
     capital_recovery -= operating
     np.multiply(C, factors.discount, out=operating)
     running_sum(operating)
     np.negative(operating, out=operating)
     operating *= cap
-    annual_worth = np.negative(capital_recovery)
-    annual_worth += operating
+    np.subtract(operating, capital_recovery, out=annual_worth)  # -CR + OP, the same double
     return annual_worth, capital_recovery, operating
 
 

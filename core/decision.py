@@ -45,37 +45,66 @@ CENT = 0.005
 IntArray = NDArray[np.intp]
 
 
-def cents(values: ArrayLike) -> FloatArray:
-    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison."""
-    return np.round(np.asarray(values, dtype=float), 2)
+def cents(values: ArrayLike, out: FloatArray | None = None) -> FloatArray:
+    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison
+    (into ``out`` if given)."""
+    return np.round(np.asarray(values, dtype=float), 2, out=out)
 
 
-def first_best(scores: ArrayLike, valid: ArrayLike | None = None) -> IntArray:
+def first_best(scores: ArrayLike, valid: ArrayLike | None = None, *,
+               work: FloatArray | None = None) -> IntArray:
     """Index of the first largest ``scores`` rounded to the cent along the last axis,
-    among the ``valid`` entries.
+    among the ``valid`` entries (a NaN counts as the largest, as in ``np.argmax``).
+
+    ``work``: an array of the shape of ``scores`` to round into instead of a new one (a
+    buffer reused from chunk to chunk of risk trials).
 
     >>> first_best([[-3.0, -2.0, -2.001]]).tolist(), int(first_best([5.0, 9.0], [True, False]))
     ([1], 0)
+    >>> tall = np.asfortranarray([[-3.0, -2.0, -2.001], [1.0, np.nan, 2.0], [4.0, 4.0, 1.0],
+    ...                           [0.0, -1.0, 0.004], [-np.inf, -np.inf, -np.inf]])
+    >>> first_best(tall).tolist()
+    [1, 1, 0, 0, 0]
     """
     # In hundredths: rint(100 x) orders and ties exactly as cents(x) = rint(100 x)/100 (numpy's
     # rounding), one pass fewer over a fleet's (rows, years) table.
-    hundredths = np.multiply(np.asarray(scores, dtype=float), 100.0)
+    hundredths = np.multiply(np.asarray(scores, dtype=float), 100.0, out=work)
     np.rint(hundredths, out=hundredths)
     if valid is not None:
         hundredths = np.where(valid, hundredths, -np.inf)
+    if hundredths.ndim == 2 and hundredths.shape[0] > hundredths.shape[1] \
+            and hundredths.strides[0] == hundredths.itemsize:
+        return _first_best_by_column(hundredths)
     return np.argmax(hundredths, axis=-1)
 
 
-def economic_life(annual_worth: ArrayLike, valid: ArrayLike | None = None) -> IntArray:
+def _first_best_by_column(rounded: FloatArray) -> IntArray:
+    """``np.argmax(rounded, axis=-1)`` for a tall (m, n) array laid out column by column
+    (risk trials, trial-contiguous), by whole-column operations: ``np.argmax`` would copy
+    it to rows first and then loop over m short rows."""
+    n = rounded.shape[1]
+    top = rounded.max(axis=-1)
+    hits = rounded == top[:, None]
+    weight = np.arange(n, 0, -1, dtype=np.int8 if n < 2**7 else np.intp)
+    best = n - np.multiply(hits, weight).max(axis=-1).astype(np.intp)  # the first hit
+    missing = np.isnan(top)
+    if missing.any():
+        best[missing] = np.argmax(rounded[missing], axis=-1)
+    return best
+
+
+def economic_life(annual_worth: ArrayLike, valid: ArrayLike | None = None, *,
+                  work: FloatArray | None = None) -> IntArray:
     """Economic service life: the k (1-based) with the largest AW; exact ties (to the cent) go
-    to the shorter life.  ``valid`` masks padded years (k > max_life) of a batch.
+    to the shorter life.  ``valid`` masks padded years (k > max_life) of a batch; ``work``
+    as in ``first_best``.
 
     >>> int(economic_life([-5000.0, -4761.9, -4761.904]))
     2
     >>> economic_life([[-3.0, -2.0], [-1.0, -1.001]]).tolist()
     [2, 1]
     """
-    return first_best(annual_worth, valid) + 1
+    return first_best(annual_worth, valid, work=work) + 1
 
 
 def replaces(challenger_aw: ArrayLike, defender_aw: ArrayLike) -> NDArray[np.bool_]:

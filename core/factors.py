@@ -184,7 +184,7 @@ class FactorTable:
                            self.capital_recovery[..., :n], self.sinking_fund[..., :n])
 
 
-def factor_table(i: ArrayLike, n: int) -> FactorTable:
+def factor_table(i: ArrayLike, n: int, *, out: FactorTable | None = None) -> FactorTable:
     """(P/F), (P/A), (A/P) and (A/F) at rate(s) ``i`` for k = 1..n, two powers per rate.
 
     The floating-point steps of ``pf``, ``pa``, ``ap`` and ``af`` (every value is bit for
@@ -193,26 +193,51 @@ def factor_table(i: ArrayLike, n: int) -> FactorTable:
         (P/F) = (1+i)^-k,  (P/A) = (1 - (P/F))/i,  (A/P) = 1/(P/A),
         (A/F) = 1/(F/A) = i/((1+i)^k - 1);   at i = 0: (P/A) = (F/A) = k.
 
+    ``out``: a table of arrays of shape ``i.shape + (n,)`` to fill instead of new ones, in
+    any memory layout (the risk engine passes trial-contiguous ones, reused from chunk to
+    chunk); the values are the same.  The exponents are first written into ``out`` in
+    full, because numpy rounds x**2 and x**-1 differently when the exponent is constant
+    along its inner loop.
+
     >>> t = factor_table([0.10, 0.0], 2)
     >>> t.capital_recovery.round(4).tolist(), t.sinking_fund.round(4).tolist()
     ([[1.1, 0.5762], [1.0, 0.5]], [[1.0, 0.4762], [1.0, 0.5]])
     >>> bool(t.annuity[0, 1] == pa(0.10, 2)) and bool(t.sinking_fund[0, 1] == af(0.10, 2))
     True
+    >>> f = factor_table([0.10, 0.0], 2, out=FactorTable(*(np.empty((2, 2)).T for _ in range(4))))
+    >>> bool(np.array_equal(f.annuity, t.annuity)), bool(f.discount.flags.f_contiguous)
+    (True, True)
     """
     rate = _check_rate(i)
     periods = np.arange(1, n + 1, dtype=float)
     col = rate[..., None]
-    disc = np.power(1.0 + col, -periods)
     zero = _zero_mask(col)
     safe = np.where(zero, 1.0, col)
-    annuity = np.subtract(1.0, np.power(1.0 + safe, -periods) if zero.any() else disc)
+    if out is None:
+        disc = np.power(1.0 + col, -periods)
+        annuity = np.subtract(1.0, np.power(1.0 + safe, -periods) if zero.any() else disc)
+        fund = np.power(1.0 + safe, periods)
+    else:
+        if any(a.shape != rate.shape + (n,) for a in
+               (out.discount, out.annuity, out.capital_recovery, out.sinking_fund)):
+            raise ValueError(f"out arrays must have the shape {rate.shape + (n,)}")
+        disc, annuity, fund = out.discount, out.annuity, out.sinking_fund
+        np.copyto(disc, -periods)
+        np.power(1.0 + col, disc, out=disc)
+        if zero.any():
+            np.copyto(annuity, -periods)
+            np.power(1.0 + safe, annuity, out=annuity)
+            np.subtract(1.0, annuity, out=annuity)
+        else:
+            np.subtract(1.0, disc, out=annuity)
+        np.copyto(fund, periods)
+        np.power(1.0 + safe, fund, out=fund)
     annuity /= safe
-    fund = np.power(1.0 + safe, periods)
     fund -= 1.0
     fund /= safe
     if zero.any():
-        annuity = np.where(zero, periods, annuity)
-        fund = np.where(zero, periods, fund)
-    cap = np.divide(1.0, annuity)
+        np.copyto(annuity, periods, where=zero)
+        np.copyto(fund, periods, where=zero)
+    cap = np.divide(1.0, annuity, out=None if out is None else out.capital_recovery)
     sink = np.divide(1.0, fund, out=fund)
     return FactorTable(disc, annuity, cap, sink)

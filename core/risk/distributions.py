@@ -61,6 +61,8 @@ class Bounds:
         return " and ".join(parts) if parts else "any value"
 
     def clip(self, x: np.ndarray) -> np.ndarray:
+        if self == Bounds():
+            return x  # np.clip to (-inf, inf) would return the same numbers
         low = np.nextafter(self.low, INF) if self.low_open else self.low
         high = np.nextafter(self.high, -INF) if self.high_open else self.high
         return np.clip(x, low, high)
@@ -179,7 +181,8 @@ def ppf(dist: Distribution, q: np.ndarray | Sequence[float] | float,
         a, b = _pert_shape(p)
         return low + (high - low) * betaincinv(a, b, u)
     lo, hi = _cdf(dist, bounds.low), _cdf(dist, bounds.high)
-    z = ndtri(np.clip(lo + u * (hi - lo), 1e-300, 1.0 - 1e-16))
+    share = u if lo == 0.0 and hi == 1.0 else lo + u * (hi - lo)  # untruncated: u itself
+    z = ndtri(np.clip(share, 1e-300, 1.0 - 1e-16))
     if dist.kind == "normal":
         x = p[0] + p[1] * z
     else:

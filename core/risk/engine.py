@@ -170,8 +170,35 @@ class _AfterTax:
         return out.present_worth * ap(np.asarray(decision, float)[..., None], years)
 
 
+class _Buffers:
+    """(size, n) arrays laid out trial-contiguous (each year a contiguous run of the
+    trials): new ones each time, or with ``keep`` the same memory from one chunk of trials
+    to the next (a new large array costs page faults on every chunk)."""
+
+    def __init__(self, keep: bool, kept: dict[str, np.ndarray]) -> None:
+        self.keep = keep
+        self._kept = kept
+
+    def get(self, key: str, size: int, n: int) -> np.ndarray:
+        if not self.keep:
+            return np.empty((n, size)).T
+        array = self._kept.get(key)
+        if array is None or array.shape[0] < size or array.shape[1] < n:
+            rows = max(size, 0 if array is None else array.shape[0])
+            cols = max(n, 0 if array is None else array.shape[1])
+            array = self._kept[key] = np.empty((cols, rows)).T
+        return array[:size, :n]
+
+
 class Model:
-    """A study prepared for batch evaluation (see the module docstring)."""
+    """A study prepared for batch evaluation (see the module docstring).
+
+    The batch arrays are laid out trial-contiguous (each year a contiguous run of the
+    trials), so per-trial amounts broadcast over contiguous runs and the running sums add
+    whole columns; the values do not depend on the layout.  What does not move with the
+    inputs given to ``evaluate`` (the factor table at the study's MARR, the AW schedule of
+    an alternative none of whose inputs is given) is computed once per model.
+    """
 
     def __init__(self, study: Study) -> None:
         self.study = study
@@ -183,6 +210,11 @@ class Model:
         self._extras = {a.name: a.extra_cost_array() for a in study.alternatives}
         self._years = {a.name: np.arange(1, a.max_life + 1, dtype=float)
                        for a in study.alternatives}
+        self._width = max([a.max_life for a in study.alternatives] + [study.study_period or 0])
+        self._inputs = {a.name: _addresses(a) for a in study.alternatives}
+        self._base_factors: FactorTable | None = None
+        self._fixed_rows: dict[str, np.ndarray] = {}
+        self._kept: dict[str, np.ndarray] = {}
 
     # ------------------------------------------------------------------ inputs
     def estimate(self, address: str) -> float:
@@ -192,9 +224,11 @@ class Model:
             return float(self.study.marr)
         return float(_get(alt, suffix))
 
-    def _arrays(self, alt: Alternative, values: Mapping[str, np.ndarray]
-                ) -> tuple[np.ndarray | float, np.ndarray, np.ndarray]:
+    def _arrays(self, alt: Alternative, values: Mapping[str, np.ndarray], size: int,
+                buffers: _Buffers) -> tuple[np.ndarray | float, np.ndarray, np.ndarray]:
+        """(P, S_k, C_j + X_j) of one alternative: (n,) or (size, n) trial-contiguous."""
         name = alt.name
+        n = alt.max_life
         price_key = f"{name}.{'market_value' if alt.role == 'defender' else 'first_cost'}"
         price = values.get(price_key, alt.price)
         years = self._years[name]
@@ -203,62 +237,111 @@ class Model:
             s = alt.market_value_array()
         else:
             d = values.get(f"{name}.market_values.decline_rate", mv.decline_rate or 0.0)
+            batch = np.ndim(d) > 0 or np.ndim(price) > 0
             s = declining_market_values(np.asarray(price, float)[..., None],
-                                        np.asarray(d, float)[..., None], years)
+                                        np.asarray(d, float)[..., None], years,
+                                        out=buffers.get("S", size, n) if batch else None)
         oc = alt.operating_costs
         if oc.values is not None:
-            c = alt.operating_cost_array()
+            c = alt.operating_cost_array() + self._extras[name]
         else:
-            first = np.asarray(values.get(f"{name}.operating_costs.first", oc.first or 0.0),
-                               float)[..., None]
+            first = values.get(f"{name}.operating_costs.first", oc.first or 0.0)
             if oc.growth is not None:
-                g = np.asarray(values.get(f"{name}.operating_costs.growth", oc.growth),
-                               float)[..., None]
-                c = geometric_costs(first, g, years - 1.0)
+                g = values.get(f"{name}.operating_costs.growth", oc.growth)
+                batch = np.ndim(g) > 0 or np.ndim(first) > 0
+                c = geometric_costs(np.asarray(first, float)[..., None],
+                                    np.asarray(g, float)[..., None], years - 1.0,
+                                    out=buffers.get("C", size, n) if batch else None)
             else:
-                grad = np.asarray(values.get(f"{name}.operating_costs.gradient",
-                                             oc.gradient or 0.0), float)[..., None]
-                c = gradient_costs(first, grad, years - 1.0)
-        c = c + self._extras[name]
+                grad = values.get(f"{name}.operating_costs.gradient", oc.gradient or 0.0)
+                batch = np.ndim(grad) > 0 or np.ndim(first) > 0
+                c = gradient_costs(np.asarray(first, float)[..., None],
+                                   np.asarray(grad, float)[..., None], years - 1.0,
+                                   out=buffers.get("C", size, n) if batch else None)
+            if batch:
+                c += self._extras[name]
+            else:
+                c = c + self._extras[name]
         if self.inflation is not None:
             fp_, fs, fc = self.inflation.factors[name]
             price, s, c = np.asarray(price, float) * fp_, s * fs, c * fc
         return price, s, c
 
     # ------------------------------------------------------------------ decision
-    def evaluate(self, values: Mapping[str, np.ndarray], size: int) -> Outcome:
+    def _factors(self, values: Mapping[str, np.ndarray], rate: np.ndarray | float, size: int,
+                 buffers: _Buffers) -> FactorTable:
+        """The factor table at the decision rate(s): once per model at the study's MARR."""
+        if "marr" not in values:
+            if self._base_factors is None:
+                self._base_factors = factor_table(rate, self._width)
+            return self._base_factors
+        if np.ndim(rate) == 0:
+            return factor_table(rate, self._width)
+        out = FactorTable(*(buffers.get(key, size, self._width)
+                            for key in ("P/F", "P/A", "A/P", "A/F")))
+        return factor_table(rate, self._width, out=out)
+
+    def _annual_worth(self, alt: Alternative, values: Mapping[str, np.ndarray],
+                      marr: np.ndarray | float, factors: FactorTable, size: int,
+                      buffers: _Buffers) -> np.ndarray:
+        """AW_k of one alternative: (n,) when nothing of it moves, else (size, n)."""
+        fixed = "marr" not in values and not any(k in values for k in self._inputs[alt.name])
+        if fixed and alt.name in self._fixed_rows:
+            return self._fixed_rows[alt.name]
+        price, s, c = self._arrays(alt, values, size, buffers)
+        if self.after_tax is not None:
+            raw = self.after_tax.annual_worth(alt, price, s, c, marr)
+        else:
+            n = alt.max_life
+            head = factors.head(n)
+            batch = np.ndim(price) > 0 or s.ndim > 1 or c.ndim > 1 or head.discount.ndim > 1
+            out = ((buffers.get(f"AW {alt.name}", size, n), buffers.get("CR", size, n),
+                    buffers.get("OP", size, n)) if batch else None)
+            raw = annual_worth_parts(price, s, c, head, out=out)[0]
+        if fixed:
+            self._fixed_rows[alt.name] = raw
+        return raw
+
+    def evaluate(self, values: Mapping[str, np.ndarray], size: int,
+                 reuse: bool = False) -> Outcome:
         """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed).
 
         The AW kernels of ``core.annual_worth`` / ``core.aftertax`` and the rules of
-        ``core.decision``, with the trials as the batch axis.
+        ``core.decision``, with the trials as the batch axis.  With ``reuse`` the (size, n)
+        arrays, the AW schedules of the outcome among them, live in memory the model keeps
+        for the next call with ``reuse``, which overwrites them: for a loop over chunks of
+        trials that reads each outcome before the next.
         """
         values = {k: np.asarray(v, dtype=float) for k, v in values.items()}
+        buffers = _Buffers(reuse, self._kept)
         marr = values.get("marr", self.study.marr)
         if self.after_tax is not None:
             rate = self.after_tax.rates(marr)[0]
         else:
             rate = self.inflation.rate(marr) if self.inflation is not None else marr
         study = self.study
-        width = max([a.max_life for a in study.alternatives] + [study.study_period or 0])
-        factors = factor_table(rate, width)
+        factors = self._factors(values, rate, size, buffers)
         aw: dict[str, np.ndarray] = {}
         esl: dict[str, np.ndarray] = {}
         at_esl: dict[str, np.ndarray] = {}
+        rows = np.arange(size)
         for alt in study.alternatives:
-            price, s, c = self._arrays(alt, values)
-            if self.after_tax is not None:
-                raw = self.after_tax.annual_worth(alt, price, s, c, marr)
+            raw = self._annual_worth(alt, values, marr, factors, size, buffers)
+            n = alt.max_life
+            if raw.shape == (size, n):
+                schedule, work = raw, buffers.get("CR", size, n)
             else:
-                raw = annual_worth_parts(price, s, c, factors.head(alt.max_life))[0]
-            schedule = np.broadcast_to(raw, (size, alt.max_life))
-            life = economic_life(schedule)
+                schedule, work = np.broadcast_to(raw, (size, n)), None
+            life = economic_life(schedule, work=work)
             aw[alt.name] = schedule
             esl[alt.name] = life
-            at_esl[alt.name] = np.take_along_axis(schedule, life[:, None] - 1, axis=-1)[:, 0]
+            at_esl[alt.name] = schedule[rows, life - 1]
         d_name = study.defender.name
-        ch_aw = np.stack([at_esl[c.name] for c in study.challengers], axis=-1)
+        ch_aw = np.empty((len(study.challengers), size)).T  # trial-contiguous, as above
+        for j, c in enumerate(study.challengers):
+            ch_aw[:, j] = at_esl[c.name]
         best = first_best(ch_aw)
-        c_best = np.take_along_axis(ch_aw, best[:, None], axis=-1)[:, 0]
+        c_best = ch_aw[rows, best]
         if study.study_period is None:
             replace_now = replaces(c_best, at_esl[d_name])
             difference = c_best - at_esl[d_name]
@@ -285,6 +368,14 @@ class Model:
         else:
             difference = np.full(size, np.nan)
         return grid.replace_now[top], difference
+
+
+def _addresses(alt: Alternative) -> tuple[str, ...]:
+    """Every input address that moves ``alt``'s cash flows."""
+    price = "market_value" if alt.role == "defender" else "first_cost"
+    return tuple(f"{alt.name}.{suffix}" for suffix in (
+        price, "market_values.decline_rate", "operating_costs.first",
+        "operating_costs.gradient", "operating_costs.growth"))
 
 
 def _get(alt: Alternative, suffix: str) -> float:
