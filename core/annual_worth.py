@@ -46,7 +46,12 @@ def running_sum(values: FloatArray) -> FloatArray:
 
     >>> running_sum(np.array([[1.0, 2.0, 3.0]])).tolist()
     [[1.0, 3.0, 6.0]]
+    >>> running_sum(np.ones((2, 3, 2))).tolist()[1]
+    [[1.0, 2.0], [1.0, 2.0], [1.0, 2.0]]
     """
+    if values.ndim > 2 and values.flags.c_contiguous:  # a block of row batches
+        running_sum(values.reshape(-1, values.shape[-1]))
+        return values
     if values.ndim == 2 and values.shape[0] > values.shape[1]:
         for j in range(1, values.shape[1]):
             np.add(values[:, j - 1], values[:, j], out=values[:, j])

@@ -36,7 +36,9 @@ class Batch:
 
     Per row (M,): ``price``, ``life``, ``marr`` (the study's), ``inflation`` f and
     ``then_current`` (estimates stated in then-current money); per study (S,): ``first``
-    (defender row) and ``counts`` (alternatives).  The schedule parameters: decline rate
+    (defender row), ``counts`` (alternatives) and ``plain`` (no study period, tax,
+    uncertainty or technology block: the batch pass is all its result needs).  The schedule
+    parameters: decline rate
     ``s_decline``; gradient ``o_first``/``o_gradient``; growth ``o_growth_first``/
     ``o_growth``/``o_geometric`` (rows using it); explicit S and Op values; extras X.
     """
@@ -50,6 +52,7 @@ class Batch:
     mask: NDArray[np.bool_]
     first: IntArray
     counts: IntArray
+    plain: NDArray[np.bool_]
     s_decline: FloatArray
     s_values: Explicit
     o_first: FloatArray
@@ -98,6 +101,7 @@ def stack(studies: Sequence[Study]) -> Batch:
     ([[True, True, False], [True, True, True]], [50.0, 25.0])
     """
     counts_b, marr_b, infl_b, tc_b = array("q"), array("d"), array("d"), array("q")
+    plain_b = array("b")
     price_b, life_b = array("d"), array("q")
     sv_r, sv_v, ov_r, ov_v = array("q"), array("d"), array("q"), array("d")
     x_r, x_c, x_v = array("q"), array("q"), array("d")
@@ -106,6 +110,7 @@ def stack(studies: Sequence[Study]) -> Batch:
     grow_r, grow_f, grow_g = array("q"), array("d"), array("d")
     # Bound appends: the loop runs once per alternative of the fleet, so each lookup counts.
     counts_a, marr_a, infl_a, tc_a = counts_b.append, marr_b.append, infl_b.append, tc_b.append
+    plain_a = plain_b.append
     life_a, price_a = life_b.append, price_b.append
     sv_ra, sv_ve, ov_ra, ov_ve = sv_r.append, sv_v.extend, ov_r.append, ov_v.extend
     dec_ra, dec_da = dec_r.append, dec_d.append
@@ -123,6 +128,8 @@ def stack(studies: Sequence[Study]) -> Batch:
         else:
             infl_a(inflation.rate)
             tc_a(1 if inflation.estimates == "then-current" else 0)
+        plain = (study.study_period is None and study.tax is None
+                 and study.uncertainty is None and study.technology is None)
         for a in (study.defender, *challengers):
             k = a.max_life
             life_a(k)
@@ -150,6 +157,8 @@ def stack(studies: Sequence[Study]) -> Batch:
                     grad_ra(r)
                     grad_fa(oc.first or 0.0)
                     grad_ga(oc.gradient or 0.0)
+            if a.technology is not None:
+                plain = False
             extras = a.extra_costs
             if extras:
                 for extra in extras:
@@ -159,6 +168,7 @@ def stack(studies: Sequence[Study]) -> Batch:
                         x_c.append(year - 1)
                         x_v.append(extra.amount)
             r += 1
+        plain_a(plain)
     m = r
     life = _rows(life_b)
     n = int(life.max()) if m else 1
@@ -182,6 +192,7 @@ def stack(studies: Sequence[Study]) -> Batch:
         inflation=np.repeat(_buffer(infl_b, np.float64), counts),
         then_current=np.repeat(_rows(tc_b) == 1, counts),
         mask=np.arange(1, n + 1)[None, :] <= life[:, None], first=first, counts=counts,
+        plain=_buffer(plain_b, np.int8).astype(bool),
         s_decline=column(dec_r, dec_d),
         s_values=(_explicit(_rows(sv_r), life, n), _buffer(sv_v, np.float64)),
         o_first=column(grad_r, grad_f), o_gradient=column(grad_r, grad_g),

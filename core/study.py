@@ -83,7 +83,7 @@ class _BeforeTax:
     annual_worth: FloatArray  # constant money at the real MARR
     capital_recovery: FloatArray
     operating: FloatArray
-    factors: FactorTable      # per row
+    factors: FactorTable      # per row (M, N), or per study (S, 1, N) when each has K rows
     decision: BatchDecision
 
     @cached_property
@@ -103,8 +103,11 @@ class _BeforeTax:
     def views(self) -> _Views:
         b, S, C = self.batch, self.S, self.C
         mask = b.mask
+        aw = self.annual_worth
+        cap = self.factors.capital_recovery   # per row, or per study over (studies, K, years)
         return _Views(marginal_cost(b.price, self.S_c, self.C_c, b.marr),
-                      self.annual_worth / self.factors.capital_recovery,
+                      (aw.reshape(cap.shape[0], -1, aw.shape[-1]) / cap).reshape(aw.shape)
+                      if cap.ndim == 3 else aw / cap,
                       np.any(mask & (S < 0), axis=1).tolist(),
                       np.any(mask & (C < 0), axis=1).tolist())
 
@@ -125,9 +128,22 @@ def _before_tax(batch: Batch) -> _BeforeTax:
         C_c[tc] = inflation.to_constant(C[tc], batch.inflation[tc])
     study_rate = batch.marr[batch.first]     # core.inflation.before_tax_rate: the real MARR
     table = factor_table(study_rate, batch.width)
-    rows = _repeat(table, batch.counts)
-    aw, cr, op = annual_worth_parts(batch.price, S_c, C_c, rows)
-    decision = decide_batch(aw, batch.mask, batch.first, batch.counts, table.annuity,
+    counts = batch.counts
+    if (counts == counts[0]).all():
+        # Every study has K alternatives: the rows are a (studies, K, years) block, so each
+        # study's factors broadcast over its rows instead of being copied to every row.
+        n_studies, k, n = counts.size, int(counts[0]), batch.width
+        rows = FactorTable(*(a[:, None, :] for a in (table.discount, table.annuity,
+                                                      table.capital_recovery,
+                                                      table.sinking_fund)))
+        parts = annual_worth_parts(batch.price.reshape(n_studies, k),
+                                   S_c.reshape(n_studies, k, n), C_c.reshape(n_studies, k, n),
+                                   rows)
+        aw, cr, op = (a.reshape(-1, n) for a in parts)
+    else:
+        rows = _repeat(table, counts)
+        aw, cr, op = annual_worth_parts(batch.price, S_c, C_c, rows)
+    decision = decide_batch(aw, batch.mask, batch.first, counts, table.annuity,
                             table.capital_recovery, batch.price[batch.first])
     return _BeforeTax(batch, S, Op, X, C, S_c, C_c, aw, cr, op, rows, decision)
 
@@ -352,23 +368,18 @@ def _run_chunk(studies: Sequence[Study]) -> list[StudyResult]:
         raise StudyError("challengers", "a study needs at least one challenger")
     bt = _before_tax(batch)
     out: list[StudyResult] = []
+    plain = batch.plain.tolist()
     for s, study in enumerate(studies):
-        # A _BatchStudyResult when nothing but the batch pass is left to do; made without
-        # an __init__ call (this loop runs once per study of a fleet, and calls would cost
-        # more than the numpy pass per study).
-        if (study.study_period is None and study.tax is None and study.uncertainty is None
-                and study.technology is None):
-            for challenger in study.challengers:
-                if challenger.technology is not None:
-                    break
-            else:
-                lazy = _new(_BatchStudyResult)
-                attributes = lazy.__dict__
-                attributes["study"] = study
-                attributes["_before"] = bt
-                attributes["_index"] = s
-                out.append(lazy)
-                continue
+        if plain[s]:
+            # A _BatchStudyResult, made without an __init__ call: this loop runs once per
+            # study of a fleet, and a call would cost more than the numpy pass per study.
+            lazy = _new(_BatchStudyResult)
+            attributes = lazy.__dict__
+            attributes["study"] = study
+            attributes["_before"] = bt
+            attributes["_index"] = s
+            out.append(lazy)
+            continue
         before = _before_tax_basis(study, s, bt)
         after = _after_tax_basis(study) if study.tax is not None else None
         decision = after if after is not None else before
