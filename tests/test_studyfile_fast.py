@@ -1,0 +1,124 @@
+"""The study file's fast paths read and fingerprint exactly as the plain per-field path does.
+
+The fingerprint is stored in workbooks and signed memos, so it must never change: the
+values pinned below were computed with the implementation before the fast paths existed
+(``study_to_dict`` + ``json.dumps(sort_keys=True, separators=(",", ":"),
+ensure_ascii=False)`` + SHA-256, docs/method.md §5).
+Sources: docs/method.md §5 (canonical form), "common practice, no source" for the rest.
+"""
+
+from __future__ import annotations
+
+import copy
+from typing import Any
+
+from conftest import BASE_STUDY, parse_one
+
+from core.demo import demo_studies
+from core.studyfile import fingerprint
+
+#: A study with every optional block: study period, tax (every depreciation method),
+#: inflation, uncertainty, technology (study and challenger), extra costs, notes, and text
+#: that JSON must escape.
+EVERY_BLOCK: dict[str, Any] = {
+    "title": "Zoë's \"big\" press — Ouseburn\\Yard",
+    "marr": 0.095,
+    "study_period": 6,
+    "defender": {"name": "Press 1998", "market_value": 42000, "max_life": 5,
+                 "market_values": {"values": [36000.5, 30000, 25500.25, 21000, 18000.0]},
+                 "operating_costs": {"first": 14500, "gradient": 2800.5},
+                 "extra_costs": [{"year": 2, "amount": 9000, "label": "rebuild ✓"},
+                                 {"year": 5, "amount": 1234.56}],
+                 "depreciation": {"method": "straight_line", "basis": 80000, "years": 8,
+                                  "age": 3, "salvage": 4000}},
+    "challengers": [
+        {"name": "Servo press", "first_cost": 96000, "max_life": 10,
+         "market_values": {"decline_rate": 0.18},
+         "operating_costs": {"values": [5200, 5300.5, 5400, 5500, 5600, 5700, 5800, 5900,
+                                        6000, 6100.75, 6200]},
+         "depreciation": {"method": "macrs", "class": 7},
+         "technology": {"first_cost_change": -0.02, "operating_cost_change": -0.04}},
+        {"name": "Hydraulic press", "first_cost": 71000.5, "max_life": 8,
+         "market_values": {"decline_rate": 0.2},
+         "operating_costs": {"first": 6100, "growth": 0.035},
+         "depreciation": {"method": "declining_balance", "basis": 70000, "years": 6,
+                          "rate": 0.25},
+         "technology": {"horizon": 12}},
+    ],
+    "tax": {"rate": 0.25, "after_tax_marr": 0.06},
+    "inflation": {"rate": 0.03, "estimates": "then-current"},
+    "uncertainty": {"trials": 2000, "seed": 7, "inputs": {
+        "Servo press.first_cost": {"triangular": [85000, 96000, 115000]},
+        "Press 1998.operating_costs.first": {"uniform": [13000, 16000.5]},
+        "marr": {"pert": [0.07, 0.095, 0.12]},
+        "Hydraulic press.operating_costs.growth": {"normal": [0.035, 0.01]},
+        "Hydraulic press.market_values.decline_rate": {"lognormal": [0.2, 0.05]}}},
+    "notes": "Line one\n\tindented \"quoted\" line\r\nend",
+    "technology": {"horizon": 12, "first_cost_change": 0.01, "operating_cost_change": 0},
+}
+
+#: Numbers whose canonical text is easy to get wrong: integer-valued floats (written as
+#: integers), -0.0, exponents, long fractions, a negative market value (a warning).
+ODD_NUMBERS: dict[str, Any] = {
+    "title": "Odd numbers",
+    "marr": 0,
+    "defender": {"name": "Old", "market_value": -0.0, "max_life": 4,
+                 "market_values": {"values": [-1500.0, 1e-7, 0.30000000000000004, 1e11,
+                                              -0.0]},
+                 "operating_costs": {"first": 12000.0, "growth": 1e-05}},
+    "challengers": [{"name": "New", "first_cost": 999999999999.5, "max_life": 3,
+                     "market_values": {"decline_rate": -0.0},
+                     "operating_costs": {"values": [2.5e-05, 100, 123456789.125]},
+                     "extra_costs": [{"year": 3, "amount": -0.0, "label": ""}]}],
+}
+
+#: SHA-256 fingerprints computed before the fast paths (see the module docstring).
+PINNED = {
+    "base": "bb3e1633008270dea848c5e077c9ef6888bbc5670f07f0dfda06809523561f4b",
+    "every block": "5dc40611cd3f66249d71187a951da02a5cc2bb7bc128d6d73374628741d6f4fd",
+    "odd numbers": "6a1d361e7b95e014c06d05b61093aa9a373875844c8ddae9ddeb205407ac0379",
+}
+
+#: The demo studies' fingerprints (title: fingerprint), computed the same way.
+PINNED_DEMO: dict[str, str] = {
+    "Kestrel Road — AC-101 Rotary screw compressor 75 kW":
+        "1a782f74b6de72bf05fd7b134ab5db9ebaeed4f930e0cabf720b4f83ef28ac33",
+    "Kestrel Road — AC-102 Rotary screw compressor 55 kW":
+        "59932820f576497ae3d84d9e3df9202206918a445928309734b8657d68977441",
+    "Millbrook — AC-201 Reciprocating compressor 22 kW":
+        "741b1dfb582750c5f109a63b2c1110ae65efdcbdd8bc5500d2e7a7930235055d",
+    "Kestrel Road — FL-07 Diesel forklift 2.5 t":
+        "2b2c598dd99589f860f441f3689bf41bcbcac75a167f50574dd0ecc2fd9ca768",
+    "Millbrook — FL-11 Electric forklift 1.8 t":
+        "10dd1d2766b1c1e7db59bd158622d7363173ebee7f2ed7502901121179db9810",
+    "Ouseburn Yard — FL-15 LPG forklift 3 t":
+        "3e1a00bfdca579c1eb48667f01deda4b467d5ff97b3fe9e6b1a832712bf7f1ca",
+    "Millbrook — PU-03 Cooling water pump 30 kW":
+        "27bf6de2f16382ad2336a65598368c7f75f689f94be5a81b9b17e3274de0dd6f",
+    "Millbrook — PU-04 Process water pump 30 kW":
+        "2b48fe673e160622a7e188b15eae1a07e3ac224611eb5f262baf8cf73291f9b1",
+    "Ouseburn Yard — PU-12 Wash-bay booster pump 30 kW":
+        "b6860fc3c62f6efa16cf95581a6880f729e18a3783c6a0e78849c4ce23d4f4c7",
+    "Kestrel Road — PK-01 Case erector and taper":
+        "ea3f05487666c8cdabaf3da1bff5ca6c5a3af102d63a8139bd57c665e8677ae0",
+    "Ouseburn Yard — PK-02 Stretch wrapper":
+        "79f7cbbd9dccb458ec890d72d0f1b5102adc876f8bbfc094fc2a7052d200b0b6",
+    "Millbrook — PK-05 Carton labelling line":
+        "e1fd30267d084fd76b6b280c5717e42ed0d95f126ec49d71076fa74214087440",
+    "Ouseburn Yard — PB-02 Hydraulic press brake 100 t":
+        "281067a990f38875e3adb5a8316ad29074cc774bfeacf6ba43e9d8b67de96309",
+    "Kestrel Road — PB-05 Hydraulic press brake 60 t":
+        "d8dc94b81a76da927f1197f144a07b686f156ee527a390c56fc4af286f48db74",
+}
+
+
+def test_fingerprints_never_change() -> None:
+    # Source: the fingerprints computed before the fast paths (module docstring).
+    assert fingerprint(parse_one(BASE_STUDY)) == PINNED["base"]
+    assert fingerprint(parse_one(copy.deepcopy(EVERY_BLOCK))) == PINNED["every block"]
+    assert fingerprint(parse_one(copy.deepcopy(ODD_NUMBERS))) == PINNED["odd numbers"]
+
+
+def test_demo_fingerprints_never_change() -> None:
+    # Source: the fingerprints computed before the fast paths (module docstring).
+    assert {s.title: fingerprint(s) for s in demo_studies()} == PINNED_DEMO
