@@ -21,6 +21,7 @@ import dataclasses
 import hashlib
 import json
 import math
+import re
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -544,7 +545,23 @@ STUDY_KEYS = {"title", "marr", "study_period", "defender", "challengers", "tax",
 
 
 def parse_study(obj: Any, path: str = "$", warnings: list[str] | None = None) -> Study:
-    """Parse one study object (docs/method.md §5), refusing anything doubtful with a StudyError."""
+    """Parse one study object (docs/method.md §5), refusing anything doubtful with a StudyError.
+
+    The common shapes are read by :func:`_quick_study`; anything it leaves (a refusal, a
+    warning, an unusual but valid form) goes through the per-field path, which names the
+    problem.  Both give the same Study for what they both accept.
+    """
+    warnings = [] if warnings is None else warnings
+    try:
+        return _quick_study(obj)
+    except (_NotQuick, StudyError):
+        pass
+    return parse_study_fields(obj, path, warnings)
+
+
+def parse_study_fields(obj: Any, path: str = "$", warnings: list[str] | None = None) -> Study:
+    """``parse_study`` field by field: every check in order, the first problem refused with
+    its JSON path; the reference the quick reader is tested against."""
     warnings = [] if warnings is None else warnings
     data = _keys(obj, path, STUDY_KEYS, {"title", "marr", "defender", "challengers"})
     title = _text(data["title"], f"{path}.title").strip()
@@ -655,6 +672,205 @@ def load_study_file(path: str | Path) -> list[Study]:
     except UnicodeDecodeError:
         raise StudyError(str(file), "not UTF-8 text") from None
     return loads_study_document(text)
+
+
+# --------------------------------------------------------------------------- quick reader
+class _NotQuick(Exception):
+    """The quick reader leaves this study to the per-field path (a refusal, a warning or an
+    unusual form: it never decides a refusal itself)."""
+
+
+#: Characters ``_text`` refuses (C0 and C1 controls, DEL, lone surrogates); ``_LINE_BREAKS``
+#: for notes, where newline, carriage return and tab are allowed.
+_CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f\ud800-\udfff]")
+_CONTROLS_IN_LINES = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff]")
+_STUDY_REQUIRED = frozenset({"title", "marr", "defender", "challengers"})
+_DEFENDER_KEYS = frozenset({"name", "market_value", "max_life", "market_values",
+                            "operating_costs", "extra_costs", "depreciation"})
+_DEFENDER_REQUIRED = frozenset({"name", "market_value", "max_life", "market_values",
+                                "operating_costs"})
+_CHALLENGER_KEYS = _DEFENDER_KEYS - {"market_value"} | {"first_cost", "technology"}
+_CHALLENGER_REQUIRED = _DEFENDER_REQUIRED - {"market_value"} | {"first_cost"}
+_FIRST_COST_KEYS = frozenset({"first", "gradient", "growth"})
+_EXTRA_KEYS = frozenset({"year", "amount", "label"})
+_EXTRA_REQUIRED = frozenset({"year", "amount"})
+_INFLATION_KEYS = frozenset({"rate", "estimates"})
+_TAX_KEYS = {"rate", "after_tax_marr"}
+_NUMBER_TYPES = frozenset({float, int})
+
+
+def _quick_name(value: Any) -> str:
+    """A name or title as ``_text(...).strip()`` gives it (isprintable() excludes every
+    character ``_text`` refuses, so the regular expression runs only for the rest)."""
+    if type(value) is str and (value.isprintable() or _CONTROLS.search(value) is None):
+        name = value.strip()
+        if name:
+            return name
+    raise _NotQuick
+
+
+def _quick_number(value: Any, low: float, high: float) -> float:
+    """A float or int in [low, high] as a float (NaN fails every comparison)."""
+    if (type(value) is float or type(value) is int) and low <= value <= high:
+        return float(value)
+    raise _NotQuick
+
+
+def _quick_rate(value: Any, high: float = MAX_RATE) -> float:
+    """A float or int in (-1, high] as a float: ``_rate`` by default, a decline rate with
+    high = 1, a growth with high = MAX_GROWTH."""
+    if (type(value) is float or type(value) is int) and -1.0 < value <= high:
+        return float(value)
+    raise _NotQuick
+
+
+def _quick_amounts(value: Any, life: int, nonnegative: bool) -> tuple[float, ...]:
+    """``_number_list`` for lists of plain numbers (``nonnegative``: a negative one would warn)."""
+    if type(value) is not list or len(value) < life:
+        raise _NotQuick
+    kinds = set(map(type, value))
+    if kinds == {float}:
+        out = tuple(value)
+    elif kinds <= _NUMBER_TYPES:
+        try:
+            out = tuple(map(float, value))
+        except OverflowError:
+            raise _NotQuick from None
+    else:
+        raise _NotQuick
+    total = sum(out)
+    if total - total != 0.0:  # a NaN or an infinity somewhere (min and max would miss a NaN)
+        raise _NotQuick
+    if not (-MAX_AMOUNT <= min(out) and max(out) <= MAX_AMOUNT) or (nonnegative and min(out) < 0):
+        raise _NotQuick
+    return out
+
+
+def _quick_alternative(obj: Any, role: Role) -> Alternative:
+    """``_alternative`` for the common shapes, with no warning; ``_NotQuick`` otherwise."""
+    if type(obj) is not dict:
+        raise _NotQuick
+    keys = obj.keys()
+    if role == "defender":
+        if not _DEFENDER_REQUIRED <= keys <= _DEFENDER_KEYS:
+            raise _NotQuick
+        price = _quick_number(obj["market_value"], 0.0, MAX_AMOUNT)  # < 0 warns
+    else:
+        if not _CHALLENGER_REQUIRED <= keys <= _CHALLENGER_KEYS:
+            raise _NotQuick
+        price = _quick_number(obj["first_cost"], 0.0, MAX_AMOUNT)
+    name = _quick_name(obj["name"])
+    life = obj["max_life"]
+    if type(life) is not int or not 1 <= life <= 100:
+        raise _NotQuick
+    mv = obj["market_values"]
+    if type(mv) is not dict or len(mv) != 1:
+        raise _NotQuick
+    if "values" in mv:
+        market_values = MarketValues(values=_quick_amounts(mv["values"], life, True))
+    elif "decline_rate" in mv:
+        market_values = MarketValues(decline_rate=_quick_rate(mv["decline_rate"], 1.0))
+    else:
+        raise _NotQuick
+    oc = obj["operating_costs"]
+    if type(oc) is not dict:
+        raise _NotQuick
+    if "values" in oc:
+        if len(oc) != 1:
+            raise _NotQuick
+        operating = OperatingCosts(values=_quick_amounts(oc["values"], life, False))
+    else:
+        if "first" not in oc or not oc.keys() <= _FIRST_COST_KEYS or len(oc) == 3:
+            raise _NotQuick
+        gradient = oc.get("gradient")
+        growth = oc.get("growth")
+        if (gradient is None and "gradient" in oc) or (growth is None and "growth" in oc):
+            raise _NotQuick
+        operating = OperatingCosts(
+            first=_quick_number(oc["first"], -MAX_AMOUNT, MAX_AMOUNT),
+            gradient=None if gradient is None else _quick_number(gradient, -MAX_AMOUNT, MAX_AMOUNT),
+            growth=None if growth is None else _quick_rate(growth, MAX_GROWTH))
+    extras: tuple[ExtraCost, ...] = ()
+    if "extra_costs" in obj:
+        items = obj["extra_costs"]
+        if type(items) is not list:
+            raise _NotQuick
+        extras = tuple(_quick_extra(item, life) for item in items)
+    depreciation = None
+    if "depreciation" in obj:
+        depreciation = _depreciation(obj["depreciation"], "", role)
+        if depreciation.basis is None and depreciation.salvage > price:
+            raise _NotQuick
+    technology = obj.get("technology")
+    if technology is not None:
+        technology = _technology(technology, "", horizon_required=False)
+    return Alternative(name, role, price, life, market_values, operating, extras, depreciation,
+                       technology)
+
+
+def _quick_extra(obj: Any, life: int) -> ExtraCost:
+    if type(obj) is not dict or not _EXTRA_REQUIRED <= obj.keys() <= _EXTRA_KEYS:
+        raise _NotQuick
+    year = obj["year"]
+    if type(year) is not int or not 1 <= year <= life:
+        raise _NotQuick
+    label = obj.get("label", "")
+    if type(label) is not str or not (label.isprintable() or _CONTROLS.search(label) is None):
+        raise _NotQuick
+    return ExtraCost(year, _quick_number(obj["amount"], -MAX_AMOUNT, MAX_AMOUNT), label)
+
+
+def _quick_study(obj: Any) -> Study:
+    """``parse_study_fields`` for the common shapes, or ``_NotQuick`` (a StudyError from a
+    shared part also sends the study to the per-field path, which then names the first
+    problem in its own order)."""
+    if type(obj) is not dict or not _STUDY_REQUIRED <= obj.keys() <= STUDY_KEYS:
+        raise _NotQuick
+    title = _quick_name(obj["title"])
+    marr = _quick_rate(obj["marr"])
+    period = obj.get("study_period")
+    if period is not None and (type(period) is not int or period < 1):
+        raise _NotQuick
+    defender = _quick_alternative(obj["defender"], "defender")
+    items = obj["challengers"]
+    if type(items) is not list or not items:
+        raise _NotQuick
+    challengers = tuple(_quick_alternative(c, "challenger") for c in items)
+    if len({defender.name, *(c.name for c in challengers)}) != 1 + len(challengers):
+        raise _NotQuick
+    tax = obj.get("tax")
+    if tax is not None:
+        if type(tax) is not dict or tax.keys() != _TAX_KEYS:
+            raise _NotQuick
+        tax = Tax(_quick_number(tax["rate"], 0.0, 0.99), _quick_rate(tax["after_tax_marr"]))
+        if defender.depreciation is None or any(c.depreciation is None for c in challengers):
+            raise _NotQuick
+    inflation = obj.get("inflation")
+    if inflation is not None:
+        if type(inflation) is not dict or not ("rate" in inflation
+                                               and inflation.keys() <= _INFLATION_KEYS):
+            raise _NotQuick
+        estimates = inflation.get("estimates", "constant")
+        if estimates not in ("constant", "then-current"):
+            raise _NotQuick
+        inflation = Inflation(_quick_rate(inflation["rate"]), estimates)
+    notes = obj.get("notes", "")
+    if type(notes) is not str or not (notes.isprintable()
+                                      or _CONTROLS_IN_LINES.search(notes) is None):
+        raise _NotQuick
+    technology = obj.get("technology")
+    if technology is not None:
+        technology = _technology(technology, "", horizon_required=True)
+    if period is not None and period > defender.max_life + max(c.max_life for c in challengers):
+        raise _NotQuick
+    study = Study(title, marr, defender, challengers, period, tax, inflation, None, notes,
+                  technology)
+    if technology is not None or any(c.technology is not None for c in challengers):
+        _check_horizons(study, "")
+    uncertainty = obj.get("uncertainty")
+    if uncertainty is not None:
+        study = dataclasses.replace(study, uncertainty=_uncertainty(uncertainty, "", study))
+    return study
 
 
 # --------------------------------------------------------------------------- writing

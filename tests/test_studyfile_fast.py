@@ -10,12 +10,26 @@ Sources: docs/method.md §5 (canonical form), "common practice, no source" for t
 from __future__ import annotations
 
 import copy
+import random
+from collections.abc import Callable
 from typing import Any
 
+import pytest
 from conftest import BASE_STUDY, parse_one
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from core.demo import demo_studies
-from core.studyfile import fingerprint
+from core.errors import StudyError
+from core.estimates import Study
+from core.studyfile import (
+    _NotQuick,
+    _quick_study,
+    canonical_json,
+    fingerprint,
+    parse_study,
+    parse_study_fields,
+)
 
 #: A study with every optional block: study period, tax (every depreciation method),
 #: inflation, uncertainty, technology (study and challenger), extra costs, notes, and text
@@ -122,3 +136,172 @@ def test_fingerprints_never_change() -> None:
 def test_demo_fingerprints_never_change() -> None:
     # Source: the fingerprints computed before the fast paths (module docstring).
     assert {s.title: fingerprint(s) for s in demo_studies()} == PINNED_DEMO
+
+
+# --------------------------------------------------------------------------- quick reader
+_ODD_VALUES: list[Any] = [None, True, False, "x", "", " ", "a\nb", "\u202e", "\ud800", [], {}, [1.0],
+                          {"x": 1}, 0, -0.0, 1, -1, 2.5, 3.0, 0.99, 1.0, 1.5, -1.0, -0.5, 100,
+                          101, 60, 61, 0.9900001, 1.0000001, -0.9999999, 1e12, 1e12 + 1,
+                          -1e12, -1e12 - 1, 10**13, float("nan"), float("inf"),
+                          -float("inf"), 10**400, 2**53 + 1]
+
+
+def _random_alternative(rng: random.Random, role: str, name: str) -> dict[str, Any]:
+    life = rng.randint(1, 12)
+    alt: dict[str, Any] = {"name": name,
+                           "market_value" if role == "defender" else "first_cost":
+                               rng.choice([rng.uniform(0, 1e5), rng.randint(0, 10**5), 0, 0.0])}
+    alt["max_life"] = life
+    if rng.random() < 0.5:
+        alt["market_values"] = {"decline_rate": rng.choice([rng.uniform(-0.5, 1.0), 0, 1])}
+    else:
+        alt["market_values"] = {"values": [rng.choice([rng.uniform(0, 5e4), rng.randint(0, 9000)])
+                                           for _ in range(life + rng.choice([0, 0, 2]))]}
+    kind = rng.random()
+    if kind < 0.2:
+        alt["operating_costs"] = {"values": [rng.uniform(-100, 9000) for _ in range(life)]}
+    elif kind < 0.5:
+        alt["operating_costs"] = {"first": rng.uniform(0, 9000), "gradient": rng.uniform(-50, 900)}
+    elif kind < 0.8:
+        alt["operating_costs"] = {"first": rng.randint(0, 9000), "growth": rng.uniform(-0.5, 1.0)}
+    else:
+        alt["operating_costs"] = {"first": rng.uniform(0, 9000)}
+    if rng.random() < 0.4:
+        alt["extra_costs"] = [{"year": rng.randint(1, life), "amount": rng.uniform(-10, 9e3),
+                               **({"label": rng.choice(["", "overhaul", " x "])}
+                                  if rng.random() < 0.5 else {})}
+                              for _ in range(rng.randint(0, 2))]
+    if rng.random() < 0.2:
+        alt["depreciation"] = rng.choice([
+            {"method": "macrs", "class": 7},
+            {"method": "straight_line", "basis": 9e4, "years": 8,
+             **({"age": 2} if role == "defender" else {})},
+            {"method": "declining_balance", "basis": 5e4, "years": 6, "rate": 0.25}])
+    if role == "challenger" and rng.random() < 0.1:
+        alt["technology"] = {"first_cost_change": -0.02, **({"horizon": 10}
+                                                           if rng.random() < 0.5 else {})}
+    return alt
+
+
+def _random_study(rng: random.Random) -> dict[str, Any]:
+    study: dict[str, Any] = {
+        "title": rng.choice(["Press line", "  Zoë's pump ", "Kestrel Road — AC-101"]),
+        "marr": rng.choice([rng.uniform(-0.5, 1.0), 0, 1]),
+        "defender": _random_alternative(rng, "defender", "Old"),
+        "challengers": [_random_alternative(rng, "challenger", f"New {k}")
+                        for k in range(rng.randint(1, 3))]}
+    if rng.random() < 0.3:
+        study["study_period"] = rng.choice([None, rng.randint(1, 20)])
+    if rng.random() < 0.2:
+        study["tax"] = {"rate": rng.choice([0.25, 0, 0.99]), "after_tax_marr": 0.06}
+    if rng.random() < 0.2:
+        study["inflation"] = {"rate": 0.03, **({"estimates": rng.choice(["constant",
+                                                                        "then-current"])}
+                                               if rng.random() < 0.5 else {})}
+    if rng.random() < 0.2:
+        study["notes"] = rng.choice(["", "two\nlines\tand a tab", "plain"])
+    if rng.random() < 0.1:
+        study["technology"] = {"horizon": 10, "operating_cost_change": -0.01}
+    if rng.random() < 0.1:
+        study["uncertainty"] = {"trials": 100, "inputs": {"marr": {"uniform": [0.05, 0.1]}}}
+    return study
+
+
+def _leaves(obj: Any, path: tuple[Any, ...] = ()) -> list[tuple[Any, ...]]:
+    """Every (path) to a value inside ``obj``, containers included."""
+    out = [path]
+    if isinstance(obj, dict):
+        for key, value in obj.items():
+            out += _leaves(value, (*path, key))
+    elif isinstance(obj, list):
+        for k, value in enumerate(obj):
+            out += _leaves(value, (*path, k))
+    return out
+
+
+def _mutate(rng: random.Random, study: dict[str, Any]) -> None:
+    """Change, delete or add one thing anywhere in ``study``."""
+    path = rng.choice(_leaves(study)[1:])
+    parent = study
+    for key in path[:-1]:
+        parent = parent[key]
+    what = rng.random()
+    if what < 0.6:
+        parent[path[-1]] = copy.deepcopy(rng.choice(_ODD_VALUES))
+    elif what < 0.8:
+        del parent[path[-1]]
+    elif isinstance(parent, dict):
+        parent[rng.choice(["colour", "values", "growth", "gradient", "label", "horizon",
+                           "decline_rate", "technology", "depreciation", "extra_costs"])] = \
+            copy.deepcopy(rng.choice(_ODD_VALUES))
+    else:
+        parent.append(copy.deepcopy(rng.choice(_ODD_VALUES)))
+
+
+def _outcome(parse: Callable[..., Study], obj: Any) -> tuple[Any, ...]:
+    warnings: list[str] = []
+    try:
+        study = parse(copy.deepcopy(obj), "$.x", warnings)
+    except StudyError as exc:
+        return ("refused", exc.path, exc.message, warnings)
+    return ("parsed", study, fingerprint(study) if _finite(study) else None, warnings)
+
+
+def _finite(study: Study) -> bool:
+    try:
+        canonical_json(study)
+    except ValueError:
+        return False
+    return True
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.integers(0, 2**32 - 1), st.integers(0, 3))
+def test_quick_reader_matches_the_per_field_path(seed: int, mutations: int) -> None:
+    # Source: the per-field path (parse_study_fields) is the reference: same Study, same
+    # refusal (path and words), same warnings, for valid and damaged studies alike.
+    rng = random.Random(seed)
+    study = _random_study(rng)
+    for _ in range(mutations):
+        _mutate(rng, study)
+    assert _outcome(parse_study, study) == _outcome(parse_study_fields, study)
+    try:
+        quick = _quick_study(copy.deepcopy(study))
+    except (_NotQuick, StudyError):
+        return
+    warnings: list[str] = []
+    assert quick == parse_study_fields(copy.deepcopy(study), "$", warnings) and not warnings
+
+
+def test_quick_reader_takes_the_common_shapes() -> None:
+    # Source: common practice, no source (the fast path must actually be used).
+    assert _quick_study(copy.deepcopy(BASE_STUDY)) == parse_study_fields(copy.deepcopy(BASE_STUDY))
+    assert _quick_study(copy.deepcopy(EVERY_BLOCK)) == parse_study_fields(
+        copy.deepcopy(EVERY_BLOCK))
+    with pytest.raises(_NotQuick):  # a negative market value warns: the per-field path's job
+        _quick_study(copy.deepcopy(ODD_NUMBERS))
+
+
+#: EVERY_BLOCK with lists where it has rates and the other way round, for the walk below.
+_SWAPPED: dict[str, Any] = copy.deepcopy(EVERY_BLOCK)
+_SWAPPED["defender"]["market_values"] = {"decline_rate": 0.1}
+_SWAPPED["challengers"][0]["market_values"] = {"values": [9e4 - 5e3 * k for k in range(10)]}
+_SWAPPED["challengers"][0]["operating_costs"] = {"first": 5200, "gradient": 100}
+
+
+@pytest.mark.parametrize("base", [BASE_STUDY, EVERY_BLOCK, ODD_NUMBERS, _SWAPPED],
+                         ids=["base", "every block", "odd numbers", "swapped"])
+def test_every_value_replaced_or_deleted_reads_as_the_per_field_path(base: dict[str, Any]) -> None:
+    # Source: the per-field path (parse_study_fields) is the reference; every place in the
+    # study gets every odd value (bounds, wrong types, NaN, huge numbers) and is deleted once.
+    for path in _leaves(base)[1:]:
+        for value in [*_ODD_VALUES, "delete"]:
+            study = copy.deepcopy(base)
+            parent = study
+            for key in path[:-1]:
+                parent = parent[key]
+            if value == "delete":
+                del parent[path[-1]]
+            else:
+                parent[path[-1]] = copy.deepcopy(value)
+            assert _outcome(parse_study, study) == _outcome(parse_study_fields, study), path
