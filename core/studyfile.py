@@ -18,11 +18,12 @@ lone surrogates).
 from __future__ import annotations
 
 import dataclasses
+import functools
 import hashlib
 import json
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -899,25 +900,28 @@ def alternative_to_dict(alt: Alternative) -> dict[str, Any]:
     if alt.extra_costs:
         out["extra_costs"] = [{"year": x.year, "amount": _num(x.amount), "label": x.label}
                               for x in alt.extra_costs]
-    dep = alt.depreciation
-    if dep is not None:
-        d: dict[str, Any] = {"method": dep.method}
-        if dep.basis is not None:
-            d["basis"] = _num(dep.basis)
-        if dep.macrs_class is not None:
-            d["class"] = dep.macrs_class
-        if dep.years is not None:
-            d["years"] = dep.years
-        if dep.age:
-            d["age"] = dep.age
-        if dep.method == "straight_line" and dep.salvage:
-            d["salvage"] = _num(dep.salvage)
-        if dep.rate is not None:
-            d["rate"] = _num(dep.rate)
-        out["depreciation"] = d
+    if alt.depreciation is not None:
+        out["depreciation"] = _depreciation_dict(alt.depreciation)
     if alt.technology is not None:
         out["technology"] = technology_to_dict(alt.technology)
     return out
+
+
+def _depreciation_dict(dep: Depreciation) -> dict[str, Any]:
+    d: dict[str, Any] = {"method": dep.method}
+    if dep.basis is not None:
+        d["basis"] = _num(dep.basis)
+    if dep.macrs_class is not None:
+        d["class"] = dep.macrs_class
+    if dep.years is not None:
+        d["years"] = dep.years
+    if dep.age:
+        d["age"] = dep.age
+    if dep.method == "straight_line" and dep.salvage:
+        d["salvage"] = _num(dep.salvage)
+    if dep.rate is not None:
+        d["rate"] = _num(dep.rate)
+    return d
 
 
 def technology_to_dict(tech: Technology) -> dict[str, Any]:
@@ -940,18 +944,21 @@ def study_to_dict(study: Study) -> dict[str, Any]:
         out["inflation"] = {"rate": _num(study.inflation.rate),
                             "estimates": study.inflation.estimates}
     if study.uncertainty is not None:
-        unc = study.uncertainty
-        u: dict[str, Any] = {"trials": unc.trials,
-                             "inputs": {a: {d.kind: [_num(p) for p in d.params]}
-                                        for a, d in unc.inputs}}
-        if unc.seed is not None:
-            u["seed"] = unc.seed
-        out["uncertainty"] = u
+        out["uncertainty"] = _uncertainty_dict(study.uncertainty)
     if study.notes:
         out["notes"] = study.notes
     if study.technology is not None:
         out["technology"] = technology_to_dict(study.technology)
     return out
+
+
+def _uncertainty_dict(unc: Uncertainty) -> dict[str, Any]:
+    u: dict[str, Any] = {"trials": unc.trials,
+                         "inputs": {a: {d.kind: [_num(p) for p in d.params]}
+                                    for a, d in unc.inputs}}
+    if unc.seed is not None:
+        u["seed"] = unc.seed
+    return u
 
 
 def dump_study_document(studies: list[Study] | tuple[Study, ...], indent: int | None = 2) -> str:
@@ -972,5 +979,122 @@ def canonical_json(study: Study) -> str:
 
 
 def fingerprint(study: Study) -> str:
-    """SHA-256 (hex) of the canonical study JSON: the memo footer's study fingerprint."""
-    return hashlib.sha256(canonical_json(study).encode("utf-8")).hexdigest()
+    """SHA-256 (hex) of the canonical study JSON: the memo footer's study fingerprint.
+
+    The text is :func:`canonical_text`, the same characters as :func:`canonical_json` written
+    without building the dictionaries first.
+    """
+    return hashlib.sha256(canonical_text(study).encode("utf-8")).hexdigest()
+
+
+# --------------------------------------------------------------------------- canonical text
+#: ``json.dumps`` with the canonical settings (sorted keys, no spaces, UTF-8, no NaN).
+_dumps = functools.partial(json.dumps, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                           allow_nan=False)
+#: The string encoder ``json.dumps`` uses with ensure_ascii=False.
+_string: Callable[[str], str] = json.encoder.encode_basestring
+_WHOLE_LIMIT = 2.0**53
+
+
+def _number_text(x: Any) -> str:
+    """``_dumps(_num(x))``: a float by its repr, a whole one below 2**53 as an integer."""
+    if type(x) is float:
+        if x.is_integer():
+            if -_WHOLE_LIMIT < x < _WHOLE_LIMIT:
+                return str(int(x))
+        elif x - x == 0.0:  # finite
+            return repr(x)
+    return _dumps(_num(x))
+
+
+def _numbers_text(values: Any) -> str:
+    """``_dumps([_num(v) for v in values])``: the reprs joined when every value is a finite
+    float, the whole ones (repr "x.0") then written as ``_num`` writes them."""
+    if set(map(type, values)) == {float}:
+        total = sum(values)
+        if total - total == 0.0:
+            texts = list(map(repr, values))
+            body = ",".join(texts)
+            if ".0," in body or body.endswith(".0"):
+                body = ",".join([_number_text(v) if t[-2:] == ".0" else t
+                                 for v, t in zip(values, texts, strict=True)])
+            return "[" + body + "]"
+    return "[" + ",".join([_number_text(v) for v in values]) + "]"
+
+
+def _plain_text(value: Any) -> str:
+    """``_dumps(value)`` for what ``study_to_dict`` writes as it is (whole numbers, None)."""
+    if type(value) is int:
+        return str(value)
+    return "null" if value is None else _dumps(value)
+
+
+def _text_text(value: Any) -> str:
+    return _string(value) if type(value) is str else _dumps(value)
+
+
+def _alternative_text(alt: Alternative) -> str:
+    """``_dumps(alternative_to_dict(alt))``, keys in sorted order."""
+    head = ""
+    if alt.depreciation is not None:
+        head = '"depreciation":' + _dumps(_depreciation_dict(alt.depreciation)) + ","
+    if alt.extra_costs:
+        head += '"extra_costs":[' + ",".join([
+            '{"amount":' + _number_text(x.amount) + ',"label":' + _text_text(x.label)
+            + ',"year":' + _plain_text(x.year) + "}" for x in alt.extra_costs]) + "],"
+    mv = alt.market_values
+    if mv.values is not None:
+        market_values = '{"values":' + _numbers_text(mv.values) + "}"
+    else:
+        market_values = '{"decline_rate":' + _number_text(mv.decline_rate or 0.0) + "}"
+    oc = alt.operating_costs
+    if oc.values is not None:
+        operating = '{"values":' + _numbers_text(oc.values) + "}"
+    else:
+        operating = '{"first":' + _number_text(oc.first or 0.0)
+        if oc.gradient is not None:
+            operating += ',"gradient":' + _number_text(oc.gradient)
+        if oc.growth is not None:
+            operating += ',"growth":' + _number_text(oc.growth)
+        operating += "}"
+    tail = "" if alt.technology is None else (
+        ',"technology":' + _dumps(technology_to_dict(alt.technology)))
+    price_key = '"market_value":' if alt.role == "defender" else '"first_cost":'
+    return (f'{{{head}{price_key}{_number_text(alt.price)},"market_values":{market_values},'
+            f'"max_life":{_plain_text(alt.max_life)},"name":{_text_text(alt.name)},'
+            f'"operating_costs":{operating}{tail}}}')
+
+
+def canonical_text(study: Study) -> str:
+    """:func:`canonical_json`, character for character, written directly (keys in sorted
+    order, numbers through ``_num``): the fingerprint's text, about twice as fast.
+
+    >>> from core.estimates import Alternative, MarketValues, OperatingCosts
+    >>> d = Alternative("Old", "defender", 10.0, 1, MarketValues(values=(5.5,)),
+    ...                 OperatingCosts(first=2.0))
+    >>> c = Alternative("New", "challenger", 20.0, 1, MarketValues(decline_rate=0.25),
+    ...                 OperatingCosts(values=(1.0,)))
+    >>> s = Study("Zoë", 0.1, d, (c,))
+    >>> canonical_text(s) == canonical_json(s)
+    True
+    """
+    parts = ['"challengers":[' + ",".join([_alternative_text(c) for c in study.challengers])
+             + "]", '"defender":' + _alternative_text(study.defender),
+             '"format":' + _string(FORMAT)]
+    if study.inflation is not None:
+        parts.append('"inflation":' + _dumps({"rate": _num(study.inflation.rate),
+                                              "estimates": study.inflation.estimates}))
+    parts.append('"marr":' + _number_text(study.marr))
+    if study.notes:
+        parts.append('"notes":' + _text_text(study.notes))
+    parts.append('"study_period":' + _plain_text(study.study_period))
+    if study.tax is not None:
+        parts.append('"tax":' + _dumps({"rate": _num(study.tax.rate),
+                                        "after_tax_marr": _num(study.tax.after_tax_marr)}))
+    if study.technology is not None:
+        parts.append('"technology":' + _dumps(technology_to_dict(study.technology)))
+    parts.append('"title":' + _text_text(study.title))
+    if study.uncertainty is not None:
+        parts.append('"uncertainty":' + _dumps(_uncertainty_dict(study.uncertainty)))
+    parts.append('"version":' + _plain_text(VERSION))
+    return "{" + ",".join(parts) + "}"

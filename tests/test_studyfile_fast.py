@@ -10,10 +10,12 @@ Sources: docs/method.md §5 (canonical form), "common practice, no source" for t
 from __future__ import annotations
 
 import copy
+import dataclasses
 import random
 from collections.abc import Callable
 from typing import Any
 
+import numpy as np
 import pytest
 from conftest import BASE_STUDY, parse_one
 from hypothesis import given, settings
@@ -21,11 +23,12 @@ from hypothesis import strategies as st
 
 from core.demo import demo_studies
 from core.errors import StudyError
-from core.estimates import Study
+from core.estimates import Alternative, Study
 from core.studyfile import (
     _NotQuick,
     _quick_study,
     canonical_json,
+    canonical_text,
     fingerprint,
     parse_study,
     parse_study_fields,
@@ -305,3 +308,75 @@ def test_every_value_replaced_or_deleted_reads_as_the_per_field_path(base: dict[
             else:
                 parent[path[-1]] = copy.deepcopy(value)
             assert _outcome(parse_study, study) == _outcome(parse_study_fields, study), path
+
+
+# --------------------------------------------------------------------------- canonical text
+_NUMBERS: list[Any] = [0.0, -0.0, 1.0, -1.0, 0.5, 12345.67, 12000.0, 0.1 + 0.2, 1e-7, 2.5e-05,
+                       1e11, 1e15 + 0.5, 2.0**53 - 1, 2.0**53, -(2.0**53), 2.0**53 + 2, 1e16,
+                       1.5e300, 7, 0, -3, 2**53, 2**60, True, np.float64(2.5), np.float64(3.0),
+                       float("nan"), float("inf")]
+
+
+def _canonical(study: Study) -> tuple[str, Any]:
+    """canonical_json's text, or the type of what it raised."""
+    try:
+        return "text", canonical_json(study)
+    except (ValueError, TypeError, OverflowError) as exc:
+        return "raised", type(exc)
+
+
+def _canonical_fast(study: Study) -> tuple[str, Any]:
+    try:
+        return "text", canonical_text(study)
+    except (ValueError, TypeError, OverflowError) as exc:
+        return "raised", type(exc)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.integers(0, 2**32 - 1))
+def test_canonical_text_is_canonical_json(seed: int) -> None:
+    # Source: canonical_json (study_to_dict + json.dumps, sorted keys) is the definition;
+    # random studies with every number the writer treats specially, built directly (not
+    # through the parser, so ints, bools, numpy floats and NaN reach the writer too).
+    rng = random.Random(seed)
+    study = parse_one(_random_valid_study(rng))
+
+    def odd(x: Any) -> Any:
+        return rng.choice(_NUMBERS) if rng.random() < 0.3 else x
+
+    def alternative(alt: Alternative) -> Alternative:
+        mv, oc = alt.market_values, alt.operating_costs
+        mv = (dataclasses.replace(mv, values=tuple(odd(v) for v in mv.values))
+              if mv.values is not None else dataclasses.replace(mv, decline_rate=odd(mv.decline_rate)))
+        oc = (dataclasses.replace(oc, values=tuple(odd(v) for v in oc.values))
+              if oc.values is not None else dataclasses.replace(
+                  oc, first=odd(oc.first), gradient=oc.gradient and odd(oc.gradient)))
+        extras = tuple(dataclasses.replace(x, amount=odd(x.amount)) for x in alt.extra_costs)
+        return dataclasses.replace(alt, price=odd(alt.price), market_values=mv,
+                                   operating_costs=oc, extra_costs=extras,
+                                   max_life=rng.choice([alt.max_life, alt.max_life, 3.0, True]))
+
+    study = dataclasses.replace(study, marr=odd(study.marr),
+                                defender=alternative(study.defender),
+                                challengers=tuple(alternative(c) for c in study.challengers),
+                                study_period=rng.choice([None, study.study_period, 4.0]))
+    assert _canonical_fast(study) == _canonical(study)
+
+
+def _random_valid_study(rng: random.Random) -> dict[str, Any]:
+    while True:
+        study = _random_study(rng)
+        try:
+            parse_one(copy.deepcopy(study))
+        except StudyError:
+            continue
+        return study
+
+
+def test_canonical_text_of_the_pinned_studies() -> None:
+    # Source: canonical_json is the definition (docs/method.md §5).
+    for body in (BASE_STUDY, EVERY_BLOCK, ODD_NUMBERS, _SWAPPED):
+        study = parse_one(copy.deepcopy(body))
+        assert canonical_text(study) == canonical_json(study)
+    for study in demo_studies():
+        assert canonical_text(study) == canonical_json(study)
