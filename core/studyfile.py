@@ -23,9 +23,10 @@ import hashlib
 import json
 import math
 import re
+import types
 from collections.abc import Callable, Mapping
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 from core.errors import StudyError
 from core.estimates import (
@@ -676,6 +677,9 @@ def load_study_file(path: str | Path) -> list[Study]:
 
 
 # --------------------------------------------------------------------------- quick reader
+_T = TypeVar("_T")
+
+
 class _NotQuick(Exception):
     """The quick reader leaves this study to the per-field path (a refusal, a warning or an
     unusual form: it never decides a refusal itself)."""
@@ -698,6 +702,36 @@ _EXTRA_REQUIRED = frozenset({"year", "amount"})
 _INFLATION_KEYS = frozenset({"rate", "estimates"})
 _TAX_KEYS = {"rate", "after_tax_marr"}
 _NUMBER_TYPES = frozenset({float, int})
+
+
+def _slot_builder(cls: type[_T]) -> Callable[..., _T]:
+    """A positional constructor of the frozen, slotted dataclass ``cls`` that stores each field
+    straight into its slot, for the quick reader.
+
+    A frozen dataclass's generated ``__init__`` assigns through ``object.__setattr__``, which
+    is about twice as slow; the estimates have no ``__post_init__`` and every field is passed,
+    so ``builder(*values) == cls(*values)`` (tests/test_studyfile_fast.py compares them).
+    Generated with ``exec`` as dataclasses generates ``__init__``: a loop over the setters
+    would cost what it saves.
+    """
+    names = [f.name for f in dataclasses.fields(cls)]  # type: ignore[arg-type]
+    slots = {f"_set_{name}": cls.__dict__[name] for name in names}
+    if hasattr(cls, "__post_init__") or not all(
+            isinstance(slot, types.MemberDescriptorType) for slot in slots.values()):
+        raise TypeError(f"{cls.__name__} is not a plain frozen, slotted dataclass")
+    source = (f"def build({', '.join(names)}):\n    obj = _new(_cls)\n"
+              + "".join(f"    _set_{name}.__set__(obj, {name})\n" for name in names)
+              + "    return obj\n")
+    namespace: dict[str, Any] = {"_new": object.__new__, "_cls": cls, **slots}
+    exec(source, namespace)  # noqa: S102 - field names of our own dataclasses only
+    return namespace["build"]
+
+
+_new_alternative = _slot_builder(Alternative)
+_new_market_values = _slot_builder(MarketValues)
+_new_operating_costs = _slot_builder(OperatingCosts)
+_new_extra_cost = _slot_builder(ExtraCost)
+_new_study = _slot_builder(Study)
 
 
 def _quick_name(value: Any) -> str:
@@ -768,9 +802,9 @@ def _quick_alternative(obj: Any, role: Role) -> Alternative:
     if type(mv) is not dict or len(mv) != 1:
         raise _NotQuick
     if "values" in mv:
-        market_values = MarketValues(values=_quick_amounts(mv["values"], life, True))
+        market_values = _new_market_values(_quick_amounts(mv["values"], life, True), None)
     elif "decline_rate" in mv:
-        market_values = MarketValues(decline_rate=_quick_rate(mv["decline_rate"], 1.0))
+        market_values = _new_market_values(None, _quick_rate(mv["decline_rate"], 1.0))
     else:
         raise _NotQuick
     oc = obj["operating_costs"]
@@ -779,7 +813,8 @@ def _quick_alternative(obj: Any, role: Role) -> Alternative:
     if "values" in oc:
         if len(oc) != 1:
             raise _NotQuick
-        operating = OperatingCosts(values=_quick_amounts(oc["values"], life, False))
+        operating = _new_operating_costs(_quick_amounts(oc["values"], life, False), None, None,
+                                         None)
     else:
         if "first" not in oc or not oc.keys() <= _FIRST_COST_KEYS or len(oc) == 3:
             raise _NotQuick
@@ -787,10 +822,10 @@ def _quick_alternative(obj: Any, role: Role) -> Alternative:
         growth = oc.get("growth")
         if (gradient is None and "gradient" in oc) or (growth is None and "growth" in oc):
             raise _NotQuick
-        operating = OperatingCosts(
-            first=_quick_number(oc["first"], -MAX_AMOUNT, MAX_AMOUNT),
-            gradient=None if gradient is None else _quick_number(gradient, -MAX_AMOUNT, MAX_AMOUNT),
-            growth=None if growth is None else _quick_rate(growth, MAX_GROWTH))
+        operating = _new_operating_costs(
+            None, _quick_number(oc["first"], -MAX_AMOUNT, MAX_AMOUNT),
+            None if gradient is None else _quick_number(gradient, -MAX_AMOUNT, MAX_AMOUNT),
+            None if growth is None else _quick_rate(growth, MAX_GROWTH))
     extras: tuple[ExtraCost, ...] = ()
     if "extra_costs" in obj:
         items = obj["extra_costs"]
@@ -805,8 +840,8 @@ def _quick_alternative(obj: Any, role: Role) -> Alternative:
     technology = obj.get("technology")
     if technology is not None:
         technology = _technology(technology, "", horizon_required=False)
-    return Alternative(name, role, price, life, market_values, operating, extras, depreciation,
-                       technology)
+    return _new_alternative(name, role, price, life, market_values, operating, extras,
+                            depreciation, technology)
 
 
 def _quick_extra(obj: Any, life: int) -> ExtraCost:
@@ -818,7 +853,7 @@ def _quick_extra(obj: Any, life: int) -> ExtraCost:
     label = obj.get("label", "")
     if type(label) is not str or not (label.isprintable() or _CONTROLS.search(label) is None):
         raise _NotQuick
-    return ExtraCost(year, _quick_number(obj["amount"], -MAX_AMOUNT, MAX_AMOUNT), label)
+    return _new_extra_cost(year, _quick_number(obj["amount"], -MAX_AMOUNT, MAX_AMOUNT), label)
 
 
 def _quick_study(obj: Any) -> Study:
@@ -864,8 +899,8 @@ def _quick_study(obj: Any) -> Study:
         technology = _technology(technology, "", horizon_required=True)
     if period is not None and period > defender.max_life + max(c.max_life for c in challengers):
         raise _NotQuick
-    study = Study(title, marr, defender, challengers, period, tax, inflation, None, notes,
-                  technology)
+    study = _new_study(title, marr, defender, challengers, period, tax, inflation, None, notes,
+                       technology)
     if technology is not None or any(c.technology is not None for c in challengers):
         _check_horizons(study, "")
     uncertainty = obj.get("uncertainty")

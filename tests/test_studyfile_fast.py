@@ -380,3 +380,29 @@ def test_canonical_text_of_the_pinned_studies() -> None:
         assert canonical_text(study) == canonical_json(study)
     for study in demo_studies():
         assert canonical_text(study) == canonical_json(study)
+
+
+def test_slot_builders_make_what_the_constructors_make() -> None:
+    # Source: common practice, no source (every field distinct, so a field stored in the
+    # wrong slot or left out would show in ==, hash or repr).
+    from core.estimates import ExtraCost, MarketValues, OperatingCosts
+    from core.studyfile import (
+        _new_alternative,
+        _new_extra_cost,
+        _new_market_values,
+        _new_operating_costs,
+        _new_study,
+    )
+    mv, oc = MarketValues((1.0, 2.0), 0.1), OperatingCosts((3.0,), 4.0, 5.0, 6.0)
+    extra = ExtraCost(2, 7.0, "x")
+    assert _new_market_values((1.0, 2.0), 0.1) == mv
+    assert _new_operating_costs((3.0,), 4.0, 5.0, 6.0) == oc
+    assert _new_extra_cost(2, 7.0, "x") == extra
+    args = ("a", "challenger", 8.0, 9, mv, oc, (extra,), None, None)
+    alt = _new_alternative(*args)
+    assert alt == Alternative(*args) and hash(alt) == hash(Alternative(*args))
+    assert repr(alt) == repr(Alternative(*args))
+    study_args = ("t", 0.1, alt, (alt,), 3, None, None, None, "n", None)
+    assert _new_study(*study_args) == Study(*study_args)
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        alt.name = "b"  # type: ignore[misc]
