@@ -1044,12 +1044,12 @@ def _number_text(x: Any) -> str:
 
 def _numbers_text(values: Any) -> str:
     """``_dumps([_num(v) for v in values])``: the reprs joined when every value is a finite
-    float, the whole ones (repr "x.0") then written as ``_num`` writes them."""
+    float (a finite float's repr has no "n"; "nan" and "inf" do), the whole ones (repr "x.0")
+    then written as ``_num`` writes them."""
     if set(map(type, values)) == {float}:
-        total = sum(values)
-        if total - total == 0.0:
-            texts = list(map(repr, values))
-            body = ",".join(texts)
+        texts = list(map(repr, values))
+        body = ",".join(texts)
+        if "n" not in body:  # no "nan", "inf": every value finite
             if ".0," in body or body.endswith(".0"):
                 body = ",".join([_number_text(v) if t[-2:] == ".0" else t
                                  for v, t in zip(values, texts, strict=True)])
