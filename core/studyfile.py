@@ -685,8 +685,8 @@ class _NotQuick(Exception):
     unusual form: it never decides a refusal itself)."""
 
 
-#: Characters ``_text`` refuses (C0 and C1 controls, DEL, lone surrogates); ``_LINE_BREAKS``
-#: for notes, where newline, carriage return and tab are allowed.
+#: Characters ``_text`` refuses (C0 and C1 controls, DEL, lone surrogates); the second for
+#: notes, where newline, carriage return and tab are allowed.
 _CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f\ud800-\udfff]")
 _CONTROLS_IN_LINES = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff]")
 _STUDY_REQUIRED = frozenset({"title", "marr", "defender", "challengers"})
@@ -696,11 +696,11 @@ _DEFENDER_REQUIRED = frozenset({"name", "market_value", "max_life", "market_valu
                                 "operating_costs"})
 _CHALLENGER_KEYS = _DEFENDER_KEYS - {"market_value"} | {"first_cost", "technology"}
 _CHALLENGER_REQUIRED = _DEFENDER_REQUIRED - {"market_value"} | {"first_cost"}
-_FIRST_COST_KEYS = frozenset({"first", "gradient", "growth"})
+_COST_FORMULA_KEYS = frozenset({"first", "gradient", "growth"})
 _EXTRA_KEYS = frozenset({"year", "amount", "label"})
 _EXTRA_REQUIRED = frozenset({"year", "amount"})
 _INFLATION_KEYS = frozenset({"rate", "estimates"})
-_TAX_KEYS = {"rate", "after_tax_marr"}
+_TAX_KEYS = frozenset({"rate", "after_tax_marr"})
 _NUMBER_TYPES = frozenset({float, int})
 
 
@@ -715,15 +715,16 @@ def _slot_builder(cls: type[_T]) -> Callable[..., _T]:
     would cost what it saves.
     """
     names = [f.name for f in dataclasses.fields(cls)]  # type: ignore[arg-type]
-    slots = {f"_set_{name}": cls.__dict__[name] for name in names}
+    slots = [cls.__dict__[name] for name in names]
     if hasattr(cls, "__post_init__") or not all(
-            isinstance(slot, types.MemberDescriptorType) for slot in slots.values()):
+            isinstance(slot, types.MemberDescriptorType) for slot in slots):
         raise TypeError(f"{cls.__name__} is not a plain frozen, slotted dataclass")
     source = (f"def build({', '.join(names)}):\n    obj = _new(_cls)\n"
-              + "".join(f"    _set_{name}.__set__(obj, {name})\n" for name in names)
+              + "".join(f"    _set_{name}(obj, {name})\n" for name in names)
               + "    return obj\n")
-    namespace: dict[str, Any] = {"_new": object.__new__, "_cls": cls, **slots}
-    exec(source, namespace)  # noqa: S102 - field names of our own dataclasses only
+    namespace: dict[str, Any] = {"_new": object.__new__, "_cls": cls}
+    namespace.update({f"_set_{name}": slot.__set__ for name, slot in zip(names, slots, strict=True)})
+    exec(source, namespace)  # the field names of our own dataclasses only
     return namespace["build"]
 
 
@@ -816,7 +817,7 @@ def _quick_alternative(obj: Any, role: Role) -> Alternative:
         operating = _new_operating_costs(_quick_amounts(oc["values"], life, False), None, None,
                                          None)
     else:
-        if "first" not in oc or not oc.keys() <= _FIRST_COST_KEYS or len(oc) == 3:
+        if "first" not in oc or not oc.keys() <= _COST_FORMULA_KEYS or len(oc) == 3:
             raise _NotQuick
         gradient = oc.get("gradient")
         growth = oc.get("growth")
