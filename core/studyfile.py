@@ -18,7 +18,6 @@ lone surrogates).
 from __future__ import annotations
 
 import dataclasses
-import functools
 import hashlib
 import json
 import math
@@ -1024,9 +1023,10 @@ def fingerprint(study: Study) -> str:
 
 
 # --------------------------------------------------------------------------- canonical text
-#: ``json.dumps`` with the canonical settings (sorted keys, no spaces, UTF-8, no NaN).
-_dumps = functools.partial(json.dumps, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
-                           allow_nan=False)
+#: ``json.dumps`` with the canonical settings (sorted keys, no spaces, UTF-8, no NaN): the
+#: encoder ``json.dumps`` would build on every call, built once.
+_dumps = json.JSONEncoder(sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                          allow_nan=False).encode
 #: The string encoder ``json.dumps`` uses with ensure_ascii=False.
 _string: Callable[[str], str] = json.encoder.encode_basestring
 _WHOLE_LIMIT = 2.0**53
@@ -1045,15 +1045,21 @@ def _number_text(x: Any) -> str:
 
 def _numbers_text(values: Any) -> str:
     """``_dumps([_num(v) for v in values])``: the reprs joined when every value is a finite
-    float (a finite float's repr has no "n"; "nan" and "inf" do), the whole ones (repr "x.0")
-    then written as ``_num`` writes them."""
+    float (a finite float's repr has no "n"; "nan" and "inf" do), the whole ones (repr "x.0",
+    the only reprs ending in ".0") then written as ``_num`` writes them."""
     if set(map(type, values)) == {float}:
         texts = list(map(repr, values))
         body = ",".join(texts)
         if "n" not in body:  # no "nan", "inf": every value finite
-            if ".0," in body or body.endswith(".0"):
-                body = ",".join([_number_text(v) if t[-2:] == ".0" else t
-                                 for v, t in zip(values, texts, strict=True)])
+            if ".0," in body or body.endswith(".0"):  # whole values: written without ".0"
+                if ("-0.0," in body or body.endswith("-0.0")
+                        or not -_WHOLE_LIMIT < min(values) <= max(values) < _WHOLE_LIMIT):
+                    body = ",".join([_number_text(v) if t[-2:] == ".0" else t
+                                     for v, t in zip(values, texts, strict=True)])
+                else:  # no -0.0 (written "0") and none past 2**53 (kept a float)
+                    body = body.replace(".0,", ",")
+                    if body.endswith(".0"):
+                        body = body[:-2]
             return "[" + body + "]"
     return "[" + ",".join([_number_text(v) for v in values]) + "]"
 
@@ -1069,11 +1075,40 @@ def _text_text(value: Any) -> str:
     return _string(value) if type(value) is str else _dumps(value)
 
 
+def _flat_text(block: dict[str, Any]) -> str:
+    """``_dumps(block)`` for a block of plain values (depreciation, tax, inflation,
+    technology): each ``json.dumps`` call costs a few microseconds of set-up."""
+    parts = []
+    for key in sorted(block):
+        value = block[key]
+        if type(value) is str:
+            text = _string(value)
+        elif type(value) is int:
+            text = str(value)
+        elif type(value) is float and value - value == 0.0:
+            text = repr(value)
+        else:
+            text = _dumps(value)
+        parts.append(_string(key) + ":" + text)
+    return "{" + ",".join(parts) + "}"
+
+
+def _uncertainty_text(unc: Uncertainty) -> str:
+    """``_dumps(_uncertainty_dict(unc))``, keys in sorted order."""
+    inputs = dict(unc.inputs)  # as _uncertainty_dict: a repeated address keeps its last value
+    if not all(type(address) is str for address in inputs):
+        return _dumps(_uncertainty_dict(unc))
+    body = ",".join([_string(address) + ":{" + _text_text(inputs[address].kind) + ":"
+                     + _numbers_text(inputs[address].params) + "}" for address in sorted(inputs)])
+    seed = "" if unc.seed is None else ',"seed":' + _plain_text(unc.seed)
+    return '{"inputs":{' + body + "}" + seed + ',"trials":' + _plain_text(unc.trials) + "}"
+
+
 def _alternative_text(alt: Alternative) -> str:
     """``_dumps(alternative_to_dict(alt))``, keys in sorted order."""
     head = ""
     if alt.depreciation is not None:
-        head = '"depreciation":' + _dumps(_depreciation_dict(alt.depreciation)) + ","
+        head = '"depreciation":' + _flat_text(_depreciation_dict(alt.depreciation)) + ","
     if alt.extra_costs:
         head += '"extra_costs":[' + ",".join([
             '{"amount":' + _number_text(x.amount) + ',"label":' + _text_text(x.label)
@@ -1094,7 +1129,7 @@ def _alternative_text(alt: Alternative) -> str:
             operating += ',"growth":' + _number_text(oc.growth)
         operating += "}"
     tail = "" if alt.technology is None else (
-        ',"technology":' + _dumps(technology_to_dict(alt.technology)))
+        ',"technology":' + _flat_text(technology_to_dict(alt.technology)))
     price_key = '"market_value":' if alt.role == "defender" else '"first_cost":'
     return (f'{{{head}{price_key}{_number_text(alt.price)},"market_values":{market_values},'
             f'"max_life":{_plain_text(alt.max_life)},"name":{_text_text(alt.name)},'
@@ -1118,19 +1153,19 @@ def canonical_text(study: Study) -> str:
              + "]", '"defender":' + _alternative_text(study.defender),
              '"format":' + _string(FORMAT)]
     if study.inflation is not None:
-        parts.append('"inflation":' + _dumps({"rate": _num(study.inflation.rate),
+        parts.append('"inflation":' + _flat_text({"rate": _num(study.inflation.rate),
                                               "estimates": study.inflation.estimates}))
     parts.append('"marr":' + _number_text(study.marr))
     if study.notes:
         parts.append('"notes":' + _text_text(study.notes))
     parts.append('"study_period":' + _plain_text(study.study_period))
     if study.tax is not None:
-        parts.append('"tax":' + _dumps({"rate": _num(study.tax.rate),
+        parts.append('"tax":' + _flat_text({"rate": _num(study.tax.rate),
                                         "after_tax_marr": _num(study.tax.after_tax_marr)}))
     if study.technology is not None:
-        parts.append('"technology":' + _dumps(technology_to_dict(study.technology)))
+        parts.append('"technology":' + _flat_text(technology_to_dict(study.technology)))
     parts.append('"title":' + _text_text(study.title))
     if study.uncertainty is not None:
-        parts.append('"uncertainty":' + _dumps(_uncertainty_dict(study.uncertainty)))
+        parts.append('"uncertainty":' + _uncertainty_text(study.uncertainty))
     parts.append('"version":' + _plain_text(VERSION))
     return "{" + ",".join(parts) + "}"

@@ -23,7 +23,7 @@ from hypothesis import strategies as st
 
 from core.demo import demo_studies
 from core.errors import StudyError
-from core.estimates import Alternative, Study
+from core.estimates import Alternative, Distribution, Study, Uncertainty
 from core.studyfile import (
     _NotQuick,
     _quick_study,
@@ -363,6 +363,13 @@ def test_canonical_text_is_canonical_json(seed: int) -> None:
                                 defender=alternative(study.defender),
                                 challengers=tuple(alternative(c) for c in study.challengers),
                                 study_period=rng.choice([None, study.study_period, 4.0]))
+    if rng.random() < 0.5:  # addresses repeated, unsorted, with characters JSON escapes
+        inputs = tuple((rng.choice(["marr", "b", "a", 'Zoë "x"\\.first_cost']),
+                        Distribution(rng.choice(["uniform", "normal"]),
+                                     tuple(odd(x) for x in (0.5, 1.0, 2.5))))
+                       for _ in range(rng.randint(1, 4)))
+        study = dataclasses.replace(study, uncertainty=Uncertainty(
+            rng.choice([10, 2000]), rng.choice([None, 7, 2**64 - 1]), inputs))
     assert _canonical_fast(study) == _canonical(study)
 
 
