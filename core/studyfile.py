@@ -21,7 +21,6 @@ import dataclasses
 import hashlib
 import json
 import math
-import re
 import types
 from collections.abc import Callable, Mapping
 from pathlib import Path
@@ -684,10 +683,6 @@ class _NotQuick(Exception):
     unusual form: it never decides a refusal itself)."""
 
 
-#: Characters ``_text`` refuses (C0 and C1 controls, DEL, lone surrogates); the second for
-#: notes, where newline, carriage return and tab are allowed.
-_CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f\ud800-\udfff]")
-_CONTROLS_IN_LINES = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff]")
 _STUDY_REQUIRED = frozenset({"title", "marr", "defender", "challengers"})
 _DEFENDER_KEYS = frozenset({"name", "market_value", "max_life", "market_values",
                             "operating_costs", "extra_costs", "depreciation"})
@@ -735,9 +730,10 @@ _new_study = _slot_builder(Study)
 
 
 def _quick_name(value: Any) -> str:
-    """A name or title as ``_text(...).strip()`` gives it (isprintable() excludes every
-    character ``_text`` refuses, so the regular expression runs only for the rest)."""
-    if type(value) is str and (value.isprintable() or _CONTROLS.search(value) is None):
+    """A name or title as ``_text(...).strip()`` gives it.  ``isprintable()`` is false for
+    every character ``_text`` refuses (controls, lone surrogates) and for a few it accepts
+    (a no-break space, a bidi mark): those names take the per-field path."""
+    if type(value) is str and value.isprintable():
         name = value.strip()
         if name:
             return name
@@ -851,7 +847,7 @@ def _quick_extra(obj: Any, life: int) -> ExtraCost:
     if type(year) is not int or not 1 <= year <= life:
         raise _NotQuick
     label = obj.get("label", "")
-    if type(label) is not str or not (label.isprintable() or _CONTROLS.search(label) is None):
+    if type(label) is not str or not label.isprintable():
         raise _NotQuick
     return _new_extra_cost(year, _quick_number(obj["amount"], -MAX_AMOUNT, MAX_AMOUNT), label)
 
@@ -891,8 +887,9 @@ def _quick_study(obj: Any) -> Study:
             raise _NotQuick
         inflation = Inflation(_quick_rate(inflation["rate"]), estimates)
     notes = obj.get("notes", "")
-    if type(notes) is not str or not (notes.isprintable()
-                                      or _CONTROLS_IN_LINES.search(notes) is None):
+    if type(notes) is not str or not (  # notes may hold line breaks and tabs
+            notes.isprintable()
+            or notes.replace("\n", "").replace("\r", "").replace("\t", "").isprintable()):
         raise _NotQuick
     technology = obj.get("technology")
     if technology is not None:
