@@ -35,7 +35,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from core.errors import StudyError
 from core.factors import FactorTable, FloatArray
-from core.results import Basis, Favours, OneMoreYear, Recommendation, StudyOption
+from core.results import Basis, BasisResult, Favours, OneMoreYear, Recommendation, StudyOption
 from core.text import money, years
 
 #: Half a cent: the one-more-year check keeps only when the marginal cost is more than
@@ -289,26 +289,94 @@ def period_options(grid: OptionGrid, defender_aw: ArrayLike,
 
 
 # --------------------------------------------------------------------------- sentences
+def no_period_reason(d_name: str, best: str, esl: Mapping[str, int],
+                     aw_at_esl: Mapping[str, float], replace: bool, basis: Basis,
+                     currency: str = "") -> str:
+    """The one-sentence reason of a decision without a study period (AW at the ESL in the
+    decision's money, ``currency`` before each amount).
+
+    >>> no_period_reason("Old", "New", {"Old": 2, "New": 6}, {"Old": -120.0, "New": -100.0},
+    ...                  True, "before-tax", "$")  # doctest: +NORMALIZE_WHITESPACE
+    "Replace Old now with New: its equivalent annual cost of $100 over its economic life of
+    6 years is $20 a year less than the defender's best, $120 over 2 years."
+    """
+    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
+    tag = " (after tax)" if basis == "after-tax" else ""
+    if replace:
+        return (f"Replace {d_name} now with {best}: its equivalent annual cost{tag} of "
+                f"{money(-c_aw, currency)} over its economic life of {years(esl[best])} is "
+                f"{money(c_aw - d_best, currency)} a year less than the defender's best, "
+                f"{money(-d_best, currency)} over {years(esl[d_name])}.")
+    return (f"Keep {d_name}: its equivalent annual cost{tag} of {money(-d_best, currency)} "
+            f"over its best remaining life of {years(esl[d_name])} is "
+            f"{money(d_best - c_aw, currency)} a year less than the best challenger, {best} "
+            f"({money(-c_aw, currency)} over {years(esl[best])}); keep it next year only while "
+            f"its marginal cost stays below {money(-c_aw, currency)}, and restudy each year.")
+
+
 def no_period_recommendation(d_name: str, best: str, esl: Mapping[str, int],
                              aw_at_esl: Mapping[str, float], replace: bool,
                              rv: float | None, planned: int, check: OneMoreYear,
                              basis: Basis) -> Recommendation:
     """Keep or replace without a study period, with its sentence (``replace`` from
     ``replaces``)."""
-    c_aw, d_best = aw_at_esl[best], aw_at_esl[d_name]
-    tag = " (after tax)" if basis == "after-tax" else ""
+    reason = no_period_reason(d_name, best, esl, aw_at_esl, replace, basis)
     if replace:
-        reason = (f"Replace {d_name} now with {best}: its equivalent annual cost{tag} of "
-                  f"{money(-c_aw)} over its economic life of {years(esl[best])} is "
-                  f"{money(c_aw - d_best)} a year less than the defender's best, "
-                  f"{money(-d_best)} over {years(esl[d_name])}.")
         return Recommendation("replace", best, None, rv, basis, reason, best, 0, check)
-    reason = (f"Keep {d_name}: its equivalent annual cost{tag} of {money(-d_best)} over "
-              f"its best remaining life of {years(esl[d_name])} is "
-              f"{money(d_best - c_aw)} a year less than the best challenger, {best} "
-              f"({money(-c_aw)} over {years(esl[best])}); keep it next year only while its "
-              f"marginal cost stays below {money(-c_aw)}, and restudy each year.")
     return Recommendation("keep", None, None, rv, basis, reason, best, max(planned, 1), check)
+
+
+def period_reason(d_name: str, top: StudyOption, period: int, count: int, basis: Basis,
+                  currency: str = "") -> str:
+    """The one-sentence reason of the best study-period option ``top`` among ``count``
+    feasible ones (``currency`` before the amount).
+
+    >>> period_reason("Old", StudyOption(0, "New", 5, -90.0, True), 5, 3, "after-tax", "EUR")
+    'Replace Old now with New for the 5-year study period: annual worth (after tax) -EUR 90, the best of 3 feasible options.'
+    """
+    assert top.annual_worth is not None
+    tag = " (after tax)" if basis == "after-tax" else ""
+    aw = money(top.annual_worth, currency)
+    if top.challenger is None:
+        return (f"Keep {d_name} for the whole {period}-year study period: that option's "
+                f"annual worth{tag} of {aw} is the best of {count} feasible options.")
+    if top.defender_years == 0:
+        return (f"Replace {d_name} now with {top.challenger} for the {period}-year study "
+                f"period: annual worth{tag} {aw}, the best of {count} feasible options.")
+    return (f"Keep {d_name} {top.defender_years} more year"
+            f"{'s' if top.defender_years != 1 else ''}, then replace it with "
+            f"{top.challenger} for the remaining {top.challenger_years} years of the "
+            f"{period}-year study period: annual worth{tag} {aw}, "
+            f"the best of {count} feasible options.")
+
+
+def reason(basis: BasisResult, currency: str = "") -> str:
+    """``basis.recommendation.reason`` written with ``currency`` before each amount (the
+    sentence of ``no_period_recommendation`` / ``period_recommendation``, from the figures
+    the basis holds).
+
+    >>> from core.estimates import Alternative, MarketValues, OperatingCosts, Study
+    >>> from core.study import run_study
+    >>> d = Alternative("Old", "defender", 20000.0, 3, MarketValues(decline_rate=0.3),
+    ...                 OperatingCosts(first=9000.0, gradient=2500.0))
+    >>> c = Alternative("New", "challenger", 60000.0, 8, MarketValues(decline_rate=0.2),
+    ...                 OperatingCosts(first=3000.0, gradient=500.0))
+    >>> b = run_study(Study("Line", 0.10, d, (c,))).decision
+    >>> reason(b) == b.recommendation.reason, reason(b, "$")[:60]
+    (True, 'Replace Old now with New: its equivalent annual cost of $14,')
+    """
+    rec = basis.recommendation
+    d_name = basis.defender.name
+    if rec.study_period is None:
+        esl = {a.name: a.economic_life for a in basis.alternatives}
+        at = {a.name: float(a.annual_worth_constant[a.economic_life - 1])
+              for a in basis.alternatives}
+        return no_period_reason(d_name, rec.best_challenger, esl, at, rec.action == "replace",
+                                rec.basis, currency)
+    assert basis.best_option is not None
+    options = basis.study_period_options
+    return period_reason(d_name, options[basis.best_option], rec.study_period,
+                         sum(o.feasible for o in options), rec.basis, currency)
 
 
 def period_recommendation(d_name: str, d_life: int, challengers: Sequence[str],
@@ -331,25 +399,13 @@ def period_recommendation(d_name: str, d_life: int, challengers: Sequence[str],
                          f"at most {years(d_life)} and no challenger covers the rest")
     best_index = int(first_best(values, grid.feasible))
     top = options[best_index]
-    assert top.annual_worth is not None
-    tag = " (after tax)" if basis == "after-tax" else ""
+    reason = period_reason(d_name, top, period, count, basis)
     if top.challenger is None:
-        reason = (f"Keep {d_name} for the whole {period}-year study period: that option's "
-                  f"annual worth{tag} of {money(top.annual_worth)} is the best of "
-                  f"{count} feasible options.")
         rec = Recommendation("keep", None, period, rv, basis, reason, best, period, check, period)
     elif top.defender_years == 0:
-        reason = (f"Replace {d_name} now with {top.challenger} for the {period}-year study "
-                  f"period: annual worth{tag} {money(top.annual_worth)}, the best of "
-                  f"{count} feasible options.")
         rec = Recommendation("replace", top.challenger, 0, rv, basis, reason, best, 0, check,
                              period)
     else:
-        reason = (f"Keep {d_name} {top.defender_years} more year"
-                  f"{'s' if top.defender_years != 1 else ''}, then replace it with "
-                  f"{top.challenger} for the remaining {top.challenger_years} years of the "
-                  f"{period}-year study period: annual worth{tag} {money(top.annual_worth)}, "
-                  f"the best of {count} feasible options.")
         rec = Recommendation("keep", top.challenger, top.defender_years, rv, basis, reason,
                              best, top.defender_years, check, period)
     return rec, options, best_index

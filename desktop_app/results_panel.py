@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from core.decision import reason
 from core.memo.cautions import caution_texts as memo_cautions
 from core.results import Recommendation, StudyOption, StudyResult
 from core.text import money
@@ -271,7 +272,7 @@ class ResultsPanel(QWidget):
         study = r.study
         self._set_badge(*badge_for(rec))
         self.title_label.setText(f"<b>{_html(study.title)}</b>")
-        self.reason_label.setText(rec.reason)
+        self.reason_label.setText(reason(r.decision, self._currency))
         self.basis_label.setText(self._basis_words(r, after))
 
         before = r.before_tax_recommendation
@@ -281,7 +282,8 @@ class ResultsPanel(QWidget):
             verdict = badge_for(before)[0].lower()
             self.before_tax_label.setText(
                 f"Before tax the study says the same ({verdict})." if same else
-                f"Before tax the study would say {verdict}: {before.reason}")
+                f"Before tax the study would say {verdict}: "
+                f"{reason(r.before_tax, self._currency)}")
             self.before_tax_label.show()
         else:
             self.before_tax_label.hide()

@@ -16,7 +16,15 @@ import pytest
 from conftest import document
 
 from core.cli import main
-from core.estimates import Alternative, ExtraCost, MarketValues, OperatingCosts, Study
+from core.estimates import (
+    Alternative,
+    Depreciation,
+    ExtraCost,
+    MarketValues,
+    OperatingCosts,
+    Study,
+    Tax,
+)
 from core.fleet import run_fleet
 from core.jsonout import _list, study_json
 from core.results import StudyResult
@@ -370,3 +378,31 @@ def test_plain_results_are_built_when_read_and_behave_as_study_results() -> None
     replaced = dataclasses.replace(first, warnings=("checked",))
     assert isinstance(replaced, StudyResult) and replaced.before_tax is basis
     assert replaced.warnings == ("checked",) and replaced.after_tax is None
+
+
+def test_reason_with_a_currency_is_the_recommendation_sentence() -> None:
+    # core.decision.reason rewrites a basis' sentence from the figures it holds (the window
+    # puts the workbook's currency in it): without a currency it must be the sentence the
+    # decision wrote, on both bases, with and without a study period; with one, the same
+    # words with the symbol before every amount.
+    from core.decision import reason
+
+    rng = random.Random(3)
+    studies = [_random_study(rng, k) for k in range(80)]
+    taxed = [dataclasses.replace(
+        s, tax=Tax(0.25, 0.06),
+        defender=dataclasses.replace(s.defender, depreciation=Depreciation(
+            "straight_line", basis=30000.0, years=6, age=2)),
+        challengers=tuple(dataclasses.replace(c, depreciation=Depreciation("macrs", macrs_class=7))
+                          for c in s.challengers)) for s in studies[:20]]
+    checked = 0
+    for r in run_fleet(studies + taxed):
+        for basis in (r.before_tax, r.after_tax):
+            if basis is None:
+                continue
+            assert reason(basis) == basis.recommendation.reason
+            with_symbol = reason(basis, "£")
+            assert with_symbol.replace("£", "") == basis.recommendation.reason
+            assert "£" in with_symbol
+            checked += 1
+    assert checked == 120

@@ -58,6 +58,10 @@ def test_replace_now_shows_badge_reason_and_figures(panel):
     # core.study's doctest: replacement value 18,062.40 for this study (hand-checked there).
     assert "Replacement value 18,062" in text and "20,000" in text
     assert "One more year" in text
+    panel.set_currency("£")   # the workbook's currency goes into the sentence too
+    panel.set_result(result)
+    assert panel.recommendation_text() == result.recommendation.reason.replace(
+        "cost of ", "cost of £").replace("is ", "is £").replace("best, ", "best, £")
 
 
 def test_keep_and_replace_later_badges(panel):
