@@ -1,7 +1,7 @@
 """The Monte Carlo's chunked, trial-contiguous, buffer-reusing path against plain computations.
 
 ``core.risk.simulate`` runs the trials in chunks whose (trials x years) arrays are laid out
-trial-contiguous and reused from chunk to chunk (``Model.evaluate(..., reuse=True)``).  None of
+trial-contiguous and reused from chunk to chunk (``Model.evaluate(..., workspace)``).  None of
 that may change a figure: the checks here are exact (bit for bit), against
 
 - the naive loop: ``core.study.run_study`` on each perturbed study (the per-study engine), for
@@ -23,6 +23,7 @@ from core import risk
 from core.cashflows import declining_market_values, geometric_costs, gradient_costs
 from core.decision import economic_life, first_best
 from core.factors import FactorTable, factor_table
+from core.risk.engine import Workspace
 from core.study import run_study
 from core.studyfile import parse_study
 
@@ -89,7 +90,7 @@ def test_one_trial_is_bit_for_bit_the_naive_study(case):
                                        {"rate": 0.03, "estimates": "constant"}])
 @pytest.mark.parametrize("period", [None, 8])
 def test_chunk_size_and_buffer_reuse_change_nothing_with_inflation(inflation, period):
-    # Reference: one plain evaluation of every trial at once (new arrays, reuse=False) and a
+    # Reference: one plain evaluation of every trial at once (new arrays, no workspace) and a
     # size-1 evaluation per trial (no batch layout at all); before tax with inflation the
     # engine states flows in constant money by year factors, as run_study does up to the
     # last bits (checked to 1e-9 in test_risk_aftertax), so the reference is the engine's own.
@@ -103,8 +104,9 @@ def test_chunk_size_and_buffer_reuse_change_nothing_with_inflation(inflation, pe
         for name, life in whole.economic_life.items():
             np.testing.assert_array_equal(sim.economic_life[name], life)
     model = risk.Model(study)
+    workspace = Workspace()
     for t in range(0, TRIALS, 7):
-        one = model.evaluate({a: v[t:t + 1] for a, v in draws.items()}, 1, reuse=True)
+        one = model.evaluate({a: v[t:t + 1] for a, v in draws.items()}, 1, workspace)
         assert one.difference[0] == whole.difference[t] or (
             np.isnan(one.difference[0]) and np.isnan(whole.difference[t]))
         for name, aw in whole.annual_worth.items():

@@ -23,7 +23,7 @@ from core.results import (
     TwoWayMap,
 )
 from core.risk import distributions as dists
-from core.risk.engine import Model, Outcome
+from core.risk.engine import Model, Outcome, Workspace
 from core.studyfile import split_address
 
 Progress = Callable[[float], None]
@@ -124,12 +124,13 @@ def simulate(study: Study, trials: int | None = None, seed: int | None = None,
     difference = np.empty(trials)
     best = np.empty(trials, dtype=np.int32)
     esl = {a.name: np.empty(trials, dtype=np.int16) for a in study.alternatives}
+    workspace = Workspace()
     done = 0
     while done < trials:
         if cancelled is not None and cancelled():
             raise RiskCancelled(f"cancelled after {done} of {trials} trials")
         size = min(step, trials - done)
-        out = model.evaluate(draws.next(size), size, reuse=True)
+        out = model.evaluate(draws.next(size), size, workspace)
         sl = slice(done, done + size)
         replace[sl] = out.replace
         difference[sl] = out.difference
