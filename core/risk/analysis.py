@@ -6,8 +6,13 @@ chunk of trials (or per grid), never a Python loop over trials.
 
 from __future__ import annotations
 
+import contextvars
 import math
+import os
+from collections import deque
 from collections.abc import Callable, Mapping
+from concurrent.futures import Future, ThreadPoolExecutor
+from contextlib import nullcontext
 
 import numpy as np
 from scipy.optimize import brentq
@@ -23,7 +28,7 @@ from core.results import (
     TwoWayMap,
 )
 from core.risk import distributions as dists
-from core.risk.engine import Model, Outcome
+from core.risk.engine import Model, Outcome, Workspace
 from core.studyfile import split_address
 
 Progress = Callable[[float], None]
@@ -34,6 +39,8 @@ Cancelled = Callable[[], bool]
 #: from one step to the next, and the chunk's few one-byte temporaries stay small enough
 #: to be reused by the allocator (a larger chunk is slower, not faster).
 CHUNK_ELEMENTS = 100_000
+#: Threads that evaluate the chunks at once (at most one per CPU).
+THREADS = 2
 GRID_POINTS = 241
 MAP_POINTS = 41
 RATE_INPUTS = ("marr", "market_values.decline_rate", "operating_costs.growth")
@@ -106,8 +113,12 @@ def simulate(study: Study, trials: int | None = None, seed: int | None = None,
 
     Vectorised across trials in chunks of ``chunk`` (default from ``CHUNK_ELEMENTS``);
     seeded and reproducible (the same seed gives the same draws whatever the chunk).
-    ``progress(fraction)`` is called after each chunk; ``cancelled()`` before each one
-    (True raises ``RiskCancelled``).
+    The chunks are drawn in order on the calling thread and, with two or more CPUs and
+    more than one chunk, evaluated on two threads (numpy releases the GIL in its array
+    loops), each with its own ``Workspace`` and writing its own slice of the results, so
+    the figures are bit for bit those of one thread.  ``cancelled()`` is asked before
+    each chunk is drawn (True raises ``RiskCancelled``); ``progress(fraction)`` is called
+    on the calling thread as the chunks finish, in order.
     """
     unc = study.uncertainty
     if unc is None:
@@ -120,25 +131,49 @@ def simulate(study: Study, trials: int | None = None, seed: int | None = None,
     model = Model(study) if model is None else model
     draws = _Draws(study, seed)
     step = chunk or chunk_trials(study)
+    starts = range(0, trials, step)
+    threads = min(THREADS, os.cpu_count() or 1) if len(starts) > 1 else 1
+    workspaces = [Workspace() for _ in range(threads)]
     replace = np.empty(trials, dtype=bool)
     difference = np.empty(trials)
     best = np.empty(trials, dtype=np.int32)
     esl = {a.name: np.empty(trials, dtype=np.int16) for a in study.alternatives}
-    done = 0
-    while done < trials:
-        if cancelled is not None and cancelled():
-            raise RiskCancelled(f"cancelled after {done} of {trials} trials")
-        size = min(step, trials - done)
-        out = model.evaluate(draws.next(size), size, reuse=True)
-        sl = slice(done, done + size)
+
+    def evaluate(sl: slice, values: dict[str, np.ndarray], workspace: Workspace) -> int:
+        """One chunk of trials into its slice of the results; the chunk's end."""
+        out = model.evaluate(values, sl.stop - sl.start, workspace)
         replace[sl] = out.replace
         difference[sl] = out.difference
         best[sl] = out.best_challenger
         for name, years in out.economic_life.items():
             esl[name][sl] = years
-        done += size
+        return sl.stop
+
+    def finished(end: int) -> None:
         if progress is not None:
-            progress(done / trials)
+            progress(end / trials)
+
+    done = 0
+    with ThreadPoolExecutor(threads) if threads > 1 else nullcontext() as pool:
+        running: deque[Future[int]] = deque()
+        for k, start in enumerate(starts):
+            if cancelled is not None and cancelled():
+                raise RiskCancelled(f"cancelled after {done} of {trials} trials")
+            sl = slice(start, min(start + step, trials))
+            values = draws.next(sl.stop - sl.start)
+            if pool is None:  # one thread: the calling one
+                done = evaluate(sl, values, workspaces[0])
+                finished(done)
+                continue
+            if len(running) == threads:  # chunk k - threads, whose workspace chunk k takes
+                done = running.popleft().result()
+                finished(done)
+            # the chunk runs in a copy of the caller's context (numpy's error state is in it)
+            running.append(pool.submit(contextvars.copy_context().run, evaluate, sl, values,
+                                       workspaces[k % threads]))
+        while running:
+            done = running.popleft().result()
+            finished(done)
     return Simulation(trials, seed, replace, difference, esl, best)
 
 

@@ -170,24 +170,30 @@ class _AfterTax:
         return out.present_worth * ap(np.asarray(decision, float)[..., None], years)
 
 
-class _Buffers:
-    """(size, n) arrays laid out trial-contiguous (each year a contiguous run of the
-    trials): new ones each time, or with ``keep`` the same memory from one chunk of trials
-    to the next (a new large array costs page faults on every chunk)."""
+class Workspace:
+    """Memory for the (size, n) batch arrays of ``Model.evaluate``, laid out trial-contiguous
+    (each year a contiguous run of the trials) and kept from one call to the next (a new large
+    array costs page faults on every chunk of trials).  Each call overwrites what the previous
+    one left there: one workspace serves one thread, and an outcome is read before the next
+    call with the same workspace."""
 
-    def __init__(self, keep: bool, kept: dict[str, np.ndarray]) -> None:
-        self.keep = keep
-        self._kept = kept
+    def __init__(self) -> None:
+        self._kept: dict[str, np.ndarray] = {}
 
     def get(self, key: str, size: int, n: int) -> np.ndarray:
-        if not self.keep:
-            return np.empty((n, size)).T
         array = self._kept.get(key)
         if array is None or array.shape[0] < size or array.shape[1] < n:
             rows = max(size, 0 if array is None else array.shape[0])
             cols = max(n, 0 if array is None else array.shape[1])
             array = self._kept[key] = np.empty((cols, rows)).T
         return array[:size, :n]
+
+
+class _Fresh(Workspace):
+    """New trial-contiguous arrays on every request (an evaluation without a workspace)."""
+
+    def get(self, key: str, size: int, n: int) -> np.ndarray:
+        return np.empty((n, size)).T
 
 
 class Model:
@@ -197,7 +203,10 @@ class Model:
     trials), so per-trial amounts broadcast over contiguous runs and the running sums add
     whole columns; the values do not depend on the layout.  What does not move with the
     inputs given to ``evaluate`` (the factor table at the study's MARR, the AW schedule of
-    an alternative none of whose inputs is given) is computed once per model.
+    an alternative none of whose inputs is given) is computed once, when the model is made:
+    after that ``evaluate`` only reads the model and writes into fresh arrays or the caller's
+    ``Workspace``, so several threads may evaluate one model at once, each with its own
+    workspace.
     """
 
     def __init__(self, study: Study) -> None:
@@ -212,9 +221,10 @@ class Model:
                        for a in study.alternatives}
         self._width = max([a.max_life for a in study.alternatives] + [study.study_period or 0])
         self._inputs = {a.name: _addresses(a) for a in study.alternatives}
-        self._base_factors: FactorTable | None = None
-        self._fixed_rows: dict[str, np.ndarray] = {}
-        self._kept: dict[str, np.ndarray] = {}
+        self._base_factors = factor_table(self._rate(study.marr), self._width)
+        self._fixed_rows = {a.name: self._schedule(a, {}, study.marr, self._base_factors, 1,
+                                                   _Fresh())
+                            for a in study.alternatives}
 
     # ------------------------------------------------------------------ inputs
     def estimate(self, address: str) -> float:
@@ -225,7 +235,7 @@ class Model:
         return float(_get(alt, suffix))
 
     def _arrays(self, alt: Alternative, values: Mapping[str, np.ndarray], size: int,
-                buffers: _Buffers) -> tuple[np.ndarray | float, np.ndarray, np.ndarray]:
+                buffers: Workspace) -> tuple[np.ndarray | float, np.ndarray, np.ndarray]:
         """(P, S_k, C_j + X_j) of one alternative: (n,) or (size, n) trial-contiguous."""
         name = alt.name
         n = alt.max_life
@@ -268,12 +278,16 @@ class Model:
         return price, s, c
 
     # ------------------------------------------------------------------ decision
+    def _rate(self, marr: np.ndarray | float) -> np.ndarray | float:
+        """The rate the decision discounts at, for each MARR value."""
+        if self.after_tax is not None:
+            return self.after_tax.rates(marr)[0]
+        return self.inflation.rate(marr) if self.inflation is not None else marr
+
     def _factors(self, values: Mapping[str, np.ndarray], rate: np.ndarray | float, size: int,
-                 buffers: _Buffers) -> FactorTable:
+                 buffers: Workspace) -> FactorTable:
         """The factor table at the decision rate(s): once per model at the study's MARR."""
         if "marr" not in values:
-            if self._base_factors is None:
-                self._base_factors = factor_table(rate, self._width)
             return self._base_factors
         if np.ndim(rate) == 0:
             return factor_table(rate, self._width)
@@ -283,42 +297,40 @@ class Model:
 
     def _annual_worth(self, alt: Alternative, values: Mapping[str, np.ndarray],
                       marr: np.ndarray | float, factors: FactorTable, size: int,
-                      buffers: _Buffers) -> np.ndarray:
+                      buffers: Workspace) -> np.ndarray:
         """AW_k of one alternative: (n,) when nothing of it moves, else (size, n)."""
-        fixed = "marr" not in values and not any(k in values for k in self._inputs[alt.name])
-        if fixed and alt.name in self._fixed_rows:
+        if "marr" not in values and not any(k in values for k in self._inputs[alt.name]):
             return self._fixed_rows[alt.name]
+        return self._schedule(alt, values, marr, factors, size, buffers)
+
+    def _schedule(self, alt: Alternative, values: Mapping[str, np.ndarray],
+                  marr: np.ndarray | float, factors: FactorTable, size: int,
+                  buffers: Workspace) -> np.ndarray:
+        """AW_k of one alternative computed from the values: (n,) or (size, n)."""
         price, s, c = self._arrays(alt, values, size, buffers)
         if self.after_tax is not None:
-            raw = self.after_tax.annual_worth(alt, price, s, c, marr)
-        else:
-            n = alt.max_life
-            head = factors.head(n)
-            batch = np.ndim(price) > 0 or s.ndim > 1 or c.ndim > 1 or head.discount.ndim > 1
-            out = ((buffers.get(f"AW {alt.name}", size, n), buffers.get("CR", size, n),
-                    buffers.get("OP", size, n)) if batch else None)
-            raw = annual_worth_parts(price, s, c, head, out=out)[0]
-        if fixed:
-            self._fixed_rows[alt.name] = raw
-        return raw
+            return self.after_tax.annual_worth(alt, price, s, c, marr)
+        n = alt.max_life
+        head = factors.head(n)
+        batch = np.ndim(price) > 0 or s.ndim > 1 or c.ndim > 1 or head.discount.ndim > 1
+        out = ((buffers.get(f"AW {alt.name}", size, n), buffers.get("CR", size, n),
+                buffers.get("OP", size, n)) if batch else None)
+        return annual_worth_parts(price, s, c, head, out=out)[0]
 
     def evaluate(self, values: Mapping[str, np.ndarray], size: int,
-                 reuse: bool = False) -> Outcome:
+                 workspace: Workspace | None = None) -> Outcome:
         """Every AW, ESL and the decision for ``size`` cases (inputs not in ``values`` fixed).
 
         The AW kernels of ``core.annual_worth`` / ``core.aftertax`` and the rules of
-        ``core.decision``, with the trials as the batch axis.  With ``reuse`` the (size, n)
-        arrays, the AW schedules of the outcome among them, live in memory the model keeps
-        for the next call with ``reuse``, which overwrites them: for a loop over chunks of
-        trials that reads each outcome before the next.
+        ``core.decision``, with the trials as the batch axis.  With a ``workspace`` the
+        (size, n) arrays, the AW schedules of the outcome among them, live in its memory,
+        which the next call with that workspace overwrites: for a loop over chunks of trials
+        that reads each outcome before the next (one workspace per thread).
         """
         values = {k: np.asarray(v, dtype=float) for k, v in values.items()}
-        buffers = _Buffers(reuse, self._kept)
+        buffers = _Fresh() if workspace is None else workspace
         marr = values.get("marr", self.study.marr)
-        if self.after_tax is not None:
-            rate = self.after_tax.rates(marr)[0]
-        else:
-            rate = self.inflation.rate(marr) if self.inflation is not None else marr
+        rate = self._rate(marr)
         study = self.study
         factors = self._factors(values, rate, size, buffers)
         aw: dict[str, np.ndarray] = {}
