@@ -322,11 +322,11 @@ class _BatchStudyResult(StudyResult):
     technology = None
 
     @cached_property
-    def before_tax(self) -> BasisResult:  # type: ignore[override]
+    def before_tax(self) -> BasisResult:
         return _before_tax_basis(self.study, self.__dict__["_index"], self.__dict__["_before"])
 
     @cached_property
-    def warnings(self) -> tuple[str, ...]:  # type: ignore[override]
+    def warnings(self) -> tuple[str, ...]:
         bt: _BeforeTax = self.__dict__["_before"]
         return _warnings(self.study, bt.S, bt.batch.rows(self.__dict__["_index"]), bt.views)
 
