@@ -45,10 +45,9 @@ CENT = 0.005
 IntArray = NDArray[np.intp]
 
 
-def cents(values: ArrayLike, out: FloatArray | None = None) -> FloatArray:
-    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison
-    (into ``out`` if given)."""
-    return np.round(np.asarray(values, dtype=float), 2, out=out)
+def cents(values: ArrayLike) -> FloatArray:
+    """Amounts rounded to the cent (numpy's rounding), the basis of every comparison."""
+    return np.round(np.asarray(values, dtype=float), 2)
 
 
 def first_best(scores: ArrayLike, valid: ArrayLike | None = None, *,
