@@ -129,6 +129,11 @@ def test_memo_text_cautions_pointer_and_both_study_period_tables(tmp_path):
         assert "Spindle and way overhaul: £28,000 in year 3" in first
         assert "KEEP 2 YEARS, THEN REPLACE" in first and "£16,024" in first
         assert "Capital required in 2 years, to buy Manual grinder, rebuilt" in first
+        # The replacement value and the one-more-year check compare economic lives; with a
+        # study period the signer is told so, next to a recommendation that may differ.
+        assert ("no study period; the recommendation above is the best option over the "
+                "6-year study period") in first
+        assert "One-more-year check (next year) without a study period" in first
         whole = _flat(" ".join(pages))
         a = whole.index("Study-period options, after tax (decision basis)")
         b = whole.index("Study-period options, before tax (for comparison)")

@@ -268,6 +268,10 @@ def page_one_facts(result: StudyResult, currency: str = "",
         else:
             rv_text = (f"Replacement value {money(rv)}: replacing pays as long as {d.name} "
                        f"sells for more than that (today about {money(mv)}).")
+        if rec.study_period is not None:  # the figure compares economic lives, not the period
+            rv_text += (f" This compares each alternative at its economic life with no study "
+                        f"period; the recommendation above is the best option over the "
+                        f"{rec.study_period}-year study period.")
     where = f" on page {cautions_page}" if cautions_page else " near the end"
     cautions = (f"Before signing, read the cautions{where}: the result rests on estimates "
                 "of future costs and resale values, and on the interest rate chosen.")

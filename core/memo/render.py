@@ -274,13 +274,15 @@ class _Builder:
                           f"{pct(r.study.tax.rate)}"])
         if rec.best_challenger:
             facts.append(["Best challenger", rec.best_challenger])
+        # With a study period these two compare economic lives, not the period's options.
+        no_period = " without a study period" if r.study.study_period else ""
         if rec.replacement_value is not None:
-            facts.append([f"Replacement value of the defender ({cur})",
+            facts.append([f"Replacement value of the defender ({cur}){no_period}",
                           f"{money(rec.replacement_value)} (market value today "
                           f"{money(r.defender.price)})"])
         omy = rec.one_more_year
         keep = "keep" if omy.keep_next_year else "do not keep"
-        facts.append(["One-more-year check (next year)",
+        facts.append([f"One-more-year check (next year){no_period}",
                       f"defender marginal cost {format_money(omy.defender_marginal_cost, cur)} "
                       f"vs best challenger EAC {format_money(omy.challenger_annual_cost, cur)}"
                       f": {keep} it another year"])
