@@ -52,9 +52,11 @@ from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
     QFileDialog,
+    QGraphicsGridLayout,
     QHBoxLayout,
     QLabel,
     QMessageBox,
+    QSizePolicy,
     QStackedWidget,
     QTabBar,
     QToolButton,
@@ -208,21 +210,37 @@ class _Legend:
     def addItem(self, item: Any, label: str) -> None:  # noqa: N802 (pyqtgraph naming)
         self._pending.append((item, label))
 
+    def _columns(self) -> int:
+        longest = max((len(label) for _item, label in self._pending), default=0)
+        columns = 3 if longest <= 20 else 2 if longest <= 32 else 1
+        if self._width is not None:
+            # the legend's row is as wide as its widest row: never wider than the plot
+            font = QFont()
+            font.setPointSizeF(9.0)
+            metrics = QFontMetrics(font)
+            entry = max((metrics.horizontalAdvance(label) for _i, label in self._pending),
+                        default=0) + 60
+            while columns > 1 and columns * entry > self._width():
+                columns -= 1
+        return columns
+
     def commit(self) -> None:
+        """Show the pending entries, in as many columns as the plot's width allows now (also
+        called on resize: a legend laid out for a wider plot would hold it wider than its
+        panel)."""
         wanted = [(id(item), label) for item, label in self._pending]
-        if wanted != self._shown:
+        columns = self._columns()
+        if wanted != self._shown or columns != self.item.columnCount:
             self.item.clear()
-            longest = max((len(label) for _item, label in self._pending), default=0)
-            columns = 3 if longest <= 20 else 2 if longest <= 32 else 1
-            if self._width is not None:
-                # the legend's row is as wide as its widest row: never wider than the plot
-                font = QFont()
-                font.setPointSizeF(9.0)
-                metrics = QFontMetrics(font)
-                entry = max((metrics.horizontalAdvance(label) for _i, label in self._pending),
-                            default=0) + 60
-                while columns > 1 and columns * entry > self._width():
-                    columns -= 1
+            if columns != self.item.columnCount:
+                # A grid layout keeps its old column count once emptied, and the legend
+                # would keep the old row's width: start from a new, empty one.
+                old = self.item.layout
+                layout = QGraphicsGridLayout()
+                layout.setHorizontalSpacing(old.horizontalSpacing())
+                layout.setVerticalSpacing(old.verticalSpacing())
+                self.item.layout = layout
+                self.item.setLayout(layout)
             self.item.setColumnCount(columns)
             for item, label in self._pending:
                 self.item.addItem(item, escape(label))
@@ -273,6 +291,9 @@ class _Plot(pg.PlotWidget):
         # The legend sits in its own row under the x axis, so it never hides data.
         legend = pg.LegendItem(offset=None, labelTextColor="k", labelTextSize="9pt",
                                colCount=3, horSpacing=24, verSpacing=-4)
+        # Its width never sets the plot's: a legend laid out for a wider window must not hold
+        # the plot wider than its panel (``_Legend.commit`` recounts its columns on resize).
+        legend.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         item.layout.addItem(legend, 4, 1)
         item.layout.setAlignment(legend, Qt.AlignmentFlag.AlignHCenter)
         self.legend = _Legend(legend, self.column_width)
@@ -392,6 +413,8 @@ class _Plot(pg.PlotWidget):
             self._fit_axis_label(axis)
 
     def resizeEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        if "legend" in self.__dict__:  # before pyqtgraph lays the plot out at the new width
+            self.legend.commit()
         super().resizeEvent(event)
         if "_shown_labels" in self.__dict__:  # pyqtgraph calls this from its __init__ too
             for axis in ("left", "bottom"):
@@ -911,6 +934,10 @@ class ChartPanel(QWidget):
         if key == "marginal" and "Defender marginal cost" in self._series[key]:
             n = len(self._series[key]["Defender marginal cost"][0])
             x_range = (0.4, n + 0.6)
+        elif key == "aw" and self._series[key]:
+            # Room right of the longest life for its star and "ESL n y" label.
+            last = max(float(np.max(x)) for x, _y in self._series[key].values() if len(x))
+            x_range = (0.4, last + 1.2)
         # Auto-range only the axes not fixed here: enabling both and then fixing one made
         # pyqtgraph compute and apply a throw-away range first (every curve re-plotted twice).
         if x_range is None:
